@@ -1,0 +1,126 @@
+package engine
+
+import (
+	"fmt"
+	"strings"
+)
+
+// Severity says whether a diagnostic stops the numbers (Error) or only
+// flags a likely mistake (Warning).
+type Severity uint8
+
+// Severities.
+const (
+	SevWarning Severity = iota
+	SevError
+)
+
+// String returns "warning" or "error".
+func (s Severity) String() string {
+	if s == SevError {
+		return "error"
+	}
+	return "warning"
+}
+
+// Code identifies a diagnostic; the message is built from the code and the
+// numbers stored with it only when asked for, so evaluating a stack with
+// diagnostics allocates nothing per layer.
+type Code uint8
+
+// Diagnostic codes.
+const (
+	ErrOutputSize     Code = iota + 1 // output size not positive
+	ErrKernelTooLarge                 // effective kernel larger than the padded input
+	ErrGroupsChannels                 // input channels not divisible by groups
+	ErrGroupsFilters                  // filters not divisible by groups
+	ErrDenseSpatial                   // dense layer on a spatial map
+	ErrReshapeCount                   // reshape changes the element count
+	ErrOverflow                       // a size or count does not fit in int64
+	ErrPoolPad                        // pooling padding larger than half the window
+	ErrOutPad                         // transposed output padding too large
+	ErrSamePad                        // same padding where it is not defined
+	ErrNormGroups                     // channels not divisible by norm groups
+	ErrValue                          // a field is missing or out of range
+	WarnStrideDrop                    // floor division leaves input rows/columns unused
+	WarnSameAsym                      // same padding needs one extra row/column on one side
+	WarnFinalRF                       // final receptive field smaller than the input
+	WarnParamShare                    // one layer holds over half of all parameters
+	WarnChannels8                     // channel count not a multiple of 8
+)
+
+// Diagnostic is one problem found in a stack, tied to a row of the result.
+type Diagnostic struct {
+	Severity Severity
+	Code     Code
+	Row      int    // index into Result.Rows
+	Field    string // the stack-file field at fault, e.g. "kernel"
+	Axis     byte   // 'h' or 'w' for per-axis problems, else 0
+	// The numbers involved; their meaning depends on Code.
+	A, B, C, D, E int64
+}
+
+func axisName(a byte, rows bool) string {
+	switch {
+	case a == 'h' && rows:
+		return "rows"
+	case a == 'w' && rows:
+		return "columns"
+	case a == 'h':
+		return "height"
+	case a == 'w':
+		return "width"
+	}
+	return "size"
+}
+
+func plural(n int64, one, many string) string {
+	if n == 1 {
+		return one
+	}
+	return many
+}
+
+// Message returns a one-line description that states the numbers involved
+// and how to fix the problem. It does not name the layer; see Result.Describe.
+func (d Diagnostic) Message() string {
+	ax := axisName(d.Axis, false)
+	switch d.Code {
+	case ErrOutputSize:
+		return fmt.Sprintf("output %s would be %d from input %s %d; lower the %s or padding, or raise the input", ax, d.A, ax, d.B, d.Field)
+	case ErrKernelTooLarge:
+		return fmt.Sprintf("kernel %s spans %d pixels but the padded input %s is only %d; use a smaller kernel or dilation, or add padding", ax, d.A, ax, d.B)
+	case ErrGroupsChannels:
+		return fmt.Sprintf("input channels %d are not divisible by groups %d; pick groups that divide %d", d.A, d.B, d.A)
+	case ErrGroupsFilters:
+		return fmt.Sprintf("filters %d are not divisible by groups %d; use a multiple of %d", d.A, d.B, d.B)
+	case ErrDenseSpatial:
+		return fmt.Sprintf("dense layer reached by a spatial map %d×%d×%d; insert flatten or global-pool before it", d.A, d.B, d.C)
+	case ErrReshapeCount:
+		return fmt.Sprintf("reshape target holds %d elements but the input holds %d; make C·H·W equal %d", d.A, d.B, d.B)
+	case ErrOverflow:
+		return fmt.Sprintf("%s does not fit in a 64-bit count; the sizes are too large", d.Field)
+	case ErrPoolPad:
+		return fmt.Sprintf("padding %d is more than half the window %d on the %s; use padding ≤ %d", d.A, d.B, ax, d.B/2)
+	case ErrOutPad:
+		return fmt.Sprintf("output padding %d on the %s must be smaller than the stride (%d) or the dilation (%d)", d.A, ax, d.B, d.C)
+	case ErrSamePad:
+		return fmt.Sprintf("padding \"same\" is not defined for %s; give the padding as a number", d.Field)
+	case ErrNormGroups:
+		return fmt.Sprintf("channels %d are not divisible by norm groups %d; pick groups that divide %d", d.A, d.B, d.A)
+	case ErrValue:
+		return fmt.Sprintf("%s is %d; it must be at least %d", d.Field, d.A, d.B)
+	case WarnStrideDrop:
+		return fmt.Sprintf("stride %d leaves the last %d input %s unused ((%d + 2·%d − %d) mod %d = %d); adjust padding or input size",
+			d.A, d.B, plural(d.B, strings.TrimSuffix(axisName(d.Axis, true), "s"), axisName(d.Axis, true)), d.C, d.D, d.E, d.A, d.B)
+	case WarnSameAsym:
+		return fmt.Sprintf("padding \"same\" needs %d padding %s, split unevenly (%d before, %d after); frameworks without asymmetric padding differ", d.A, axisName(d.Axis, true), d.A/2, d.A-d.A/2)
+	case WarnFinalRF:
+		return fmt.Sprintf("final receptive field %d×%d is smaller than the input %d×%d; outputs see only part of the image", d.A, d.B, d.C, d.D)
+	case WarnParamShare:
+		return fmt.Sprintf("holds %s of the stack's %s parameters (%d%%); consider global pooling, fewer units or a narrower layer", GroupDigits(d.A), GroupDigits(d.B), d.C)
+	case WarnChannels8:
+		return fmt.Sprintf("%s %d is not a multiple of 8 (common practice for tensor-core efficiency); try %d", d.Field, d.A, d.B)
+	}
+	return "unknown problem"
+}

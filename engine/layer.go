@@ -1,0 +1,292 @@
+package engine
+
+// Kind identifies what a layer does.
+type Kind uint8
+
+// Layer kinds. The names returned by String are the keys used in stack files.
+const (
+	KindInvalid   Kind = iota
+	KindConv           // 2-D convolution
+	KindDeconv         // 2-D transposed convolution
+	KindPool           // max or average pooling with a fixed window
+	KindGlobalPool     // pooling over the whole map to 1×1
+	KindPoolTo         // average pooling to a fixed output size (adaptive)
+	KindUpsample       // upsampling by an integer factor
+	KindNorm           // batch, group, instance or layer normalisation
+	KindAct            // element-wise activation
+	KindDropout        // dropout
+	KindFlatten        // C×H×W → C·H·W×1×1
+	KindDense          // fully connected layer
+	KindReshape        // reinterpret the elements as a new C×H×W
+	kindCount
+)
+
+var kindNames = [kindCount]string{
+	KindInvalid:    "invalid",
+	KindConv:       "conv",
+	KindDeconv:     "deconv",
+	KindPool:       "pool",
+	KindGlobalPool: "global-pool",
+	KindPoolTo:     "pool-to",
+	KindUpsample:   "upsample",
+	KindNorm:       "norm",
+	KindAct:        "act",
+	KindDropout:    "dropout",
+	KindFlatten:    "flatten",
+	KindDense:      "dense",
+	KindReshape:    "reshape",
+}
+
+// String returns the kind's stack-file key.
+func (k Kind) String() string {
+	if k < kindCount {
+		return kindNames[k]
+	}
+	return "invalid"
+}
+
+// Kinds lists every layer kind a stack may hold, in display order.
+func Kinds() []Kind {
+	out := make([]Kind, 0, kindCount-1)
+	for k := KindConv; k < kindCount; k++ {
+		out = append(out, k)
+	}
+	return out
+}
+
+// KindByName returns the kind whose stack-file key is name.
+func KindByName(name string) (Kind, bool) {
+	for k := KindConv; k < kindCount; k++ {
+		if kindNames[k] == name {
+			return k, true
+		}
+	}
+	return KindInvalid, false
+}
+
+// PadMode says how the padding of a convolution is chosen.
+type PadMode uint8
+
+// Padding modes.
+const (
+	PadExplicit PadMode = iota // Pad.H rows and Pad.W columns on each side
+	PadSame                    // output = ⌈input/stride⌉; extra row/column at bottom/right when odd
+	PadValid                   // no padding
+)
+
+// Padding is a convolution or pooling padding.
+type Padding struct {
+	Mode PadMode
+	Size Pair // per side, for PadExplicit
+}
+
+// PoolMode says how a pooling window is reduced.
+type PoolMode uint8
+
+// Pooling modes.
+const (
+	PoolMax PoolMode = iota
+	PoolAvg
+)
+
+// String returns the stack-file value.
+func (m PoolMode) String() string {
+	if m == PoolAvg {
+		return "avg"
+	}
+	return "max"
+}
+
+// UpsampleMode is the interpolation of an upsampling layer.
+type UpsampleMode uint8
+
+// Upsampling modes.
+const (
+	UpNearest UpsampleMode = iota
+	UpBilinear
+)
+
+// String returns the stack-file value.
+func (m UpsampleMode) String() string {
+	if m == UpBilinear {
+		return "bilinear"
+	}
+	return "nearest"
+}
+
+// NormKind is the flavour of a normalisation layer.
+type NormKind uint8
+
+// Normalisation flavours.
+const (
+	NormBatch    NormKind = iota // per channel over batch and positions; running statistics as buffers
+	NormGroup                    // per group of channels over positions
+	NormInstance                 // per channel over positions
+	NormLayer                    // over channels at each position (the convolutional layer norm)
+)
+
+var normNames = [...]string{"batch", "group", "instance", "layer"}
+
+// String returns the stack-file value.
+func (n NormKind) String() string {
+	if int(n) < len(normNames) {
+		return normNames[n]
+	}
+	return "invalid"
+}
+
+// NormKinds lists the normalisation flavours.
+func NormKinds() []NormKind { return []NormKind{NormBatch, NormGroup, NormInstance, NormLayer} }
+
+// Toggle is an optional boolean: unset means the kind's default.
+type Toggle uint8
+
+// Toggle values.
+const (
+	Unset Toggle = iota
+	On
+	Off
+)
+
+// Or resolves the toggle against a default.
+func (t Toggle) Or(def bool) bool {
+	switch t {
+	case On:
+		return true
+	case Off:
+		return false
+	}
+	return def
+}
+
+// ActKind is an element-wise activation function.
+type ActKind uint8
+
+// Activation functions.
+const (
+	ActReLU ActKind = iota
+	ActLeakyReLU
+	ActGELU
+	ActSiLU
+	ActSigmoid
+	ActTanh
+)
+
+var actNames = [...]string{"relu", "leaky-relu", "gelu", "silu", "sigmoid", "tanh"}
+
+// String returns the stack-file value.
+func (a ActKind) String() string {
+	if int(a) < len(actNames) {
+		return actNames[a]
+	}
+	return "invalid"
+}
+
+// ActKinds lists the activation functions.
+func ActKinds() []ActKind {
+	return []ActKind{ActReLU, ActLeakyReLU, ActGELU, ActSiLU, ActSigmoid, ActTanh}
+}
+
+// Layer is one item of a stack. Which fields matter depends on Kind; the
+// zero value of every optional field means "the kind's default" (stride 1,
+// dilation 1, one group, bias on, pooling stride equal to its window, ...).
+type Layer struct {
+	Kind Kind
+	Name string // optional short identifier
+	Note string // optional free text
+
+	// conv, deconv: output channels. dense: output units.
+	Filters int64
+	// conv, deconv, pool: window size.
+	Kernel Pair
+	// conv, deconv, pool: step; zero means 1 (pool: the kernel).
+	Stride Pair
+	// conv, deconv, pool: padding.
+	Pad Padding
+	// conv, deconv: spacing between kernel taps; zero means 1.
+	Dilation Pair
+	// conv, deconv: number of channel groups; zero means 1.
+	Groups int64
+	// conv, deconv: one group per input channel (groups = input channels).
+	Depthwise bool
+	// conv, deconv, dense: no additive bias.
+	NoBias bool
+	// deconv: extra rows/columns added at the bottom/right of the output.
+	OutPad Pair
+
+	// pool, global-pool: max or average.
+	Pool PoolMode
+	// pool: round the output size up instead of down.
+	Ceil bool
+	// pool-to: output height and width.
+	Size Pair
+	// upsample: integer scale factor per axis.
+	Factor Pair
+	// upsample: interpolation.
+	Upsample UpsampleMode
+	// norm: flavour, number of groups (group norm) and learnable scale/shift.
+	Norm       NormKind
+	NormGroups int64
+	Affine     Toggle
+	// act: function and negative slope (leaky-relu; zero means 0.01).
+	Act   ActKind
+	Slope float64
+	// dropout: probability of zeroing an element.
+	Rate float64
+	// reshape: target shape.
+	Target Shape
+}
+
+// stride returns the effective stride.
+func (l *Layer) stride() Pair {
+	if l.Kind == KindPool {
+		return fill(l.Stride, l.Kernel)
+	}
+	return fill(l.Stride, Square(1))
+}
+
+// dilation returns the effective dilation.
+func (l *Layer) dilation() Pair { return fill(l.Dilation, Square(1)) }
+
+// fill replaces each zero value of p with the matching value of d.
+func fill(p, d Pair) Pair {
+	if p.H == 0 {
+		p.H = d.H
+	}
+	if p.W == 0 {
+		p.W = d.W
+	}
+	return p
+}
+
+// EffectiveStride returns the layer's stride with defaults applied.
+func (l *Layer) EffectiveStride() Pair { return l.stride() }
+
+// EffectiveDilation returns the layer's dilation with defaults applied.
+func (l *Layer) EffectiveDilation() Pair { return l.dilation() }
+
+// HasWeights reports whether the kind carries a weight matrix whose width
+// the user chooses (conv, deconv, dense).
+func (k Kind) HasWeights() bool { return k == KindConv || k == KindDeconv || k == KindDense }
+
+// Normalized returns the layer with every field that equals its kind's
+// default reset to the zero value, so that two layers that compute the same
+// thing compare equal (the stack file's canonical form relies on this).
+func (l Layer) Normalized() Layer {
+	if l.Kind == KindPool && l.Stride == l.Kernel || l.Kind != KindPool && l.Stride == Square(1) {
+		l.Stride = Pair{}
+	}
+	if l.Dilation == Square(1) {
+		l.Dilation = Pair{}
+	}
+	if l.Groups == 1 {
+		l.Groups = 0
+	}
+	if l.Affine == On && l.Norm != NormInstance || l.Affine == Off && l.Norm == NormInstance {
+		l.Affine = Unset
+	}
+	if l.Pad.Mode != PadExplicit {
+		l.Pad.Size = Pair{}
+	}
+	return l
+}

@@ -1,0 +1,43 @@
+package engine
+
+import "strconv"
+
+// MaxDepth is the deepest nesting a path can record.
+const MaxDepth = 8
+
+// Path locates a row in the flattened stack: 1-based item numbers, one per
+// nesting level ("4.2.1" is item 4, repeat 2, layer 1). It is a value type
+// so that evaluating a stack allocates no path strings.
+type Path struct {
+	n   uint8
+	seg [MaxDepth]uint32
+}
+
+// Append returns the path extended by one 1-based segment. Segments past
+// MaxDepth are dropped.
+func (p Path) Append(i int) Path {
+	if int(p.n) < MaxDepth {
+		p.seg[p.n] = uint32(i)
+		p.n++
+	}
+	return p
+}
+
+// Len returns the number of segments.
+func (p Path) Len() int { return int(p.n) }
+
+// At returns segment i (0-based).
+func (p Path) At(i int) int { return int(p.seg[i]) }
+
+// String formats the path as dot-separated numbers, e.g. "4.2.1".
+func (p Path) String() string {
+	var buf [MaxDepth * 11]byte
+	b := buf[:0]
+	for i := 0; i < int(p.n); i++ {
+		if i > 0 {
+			b = append(b, '.')
+		}
+		b = strconv.AppendUint(b, uint64(p.seg[i]), 10)
+	}
+	return string(b)
+}

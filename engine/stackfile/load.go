@@ -1,0 +1,386 @@
+package stackfile
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"regexp"
+	"strconv"
+	"strings"
+
+	"gopkg.in/yaml.v3"
+
+	"stackfit/engine"
+)
+
+// Version is the stack-file format version this package reads and writes.
+const Version = 1
+
+// Limits on what a stack file may hold. They keep absurd values from
+// reaching the engine and bound the work a hostile file can cause.
+const (
+	MaxFileBytes = 8 << 20 // largest stack file accepted
+	MaxNameLen   = 32      // longest layer name
+	MaxNoteLen   = 4096    // longest note
+	maxErrors    = 20      // problems reported before giving up
+	maxSpatial   = 1 << 20 // input height/width, pool-to sizes
+	maxChannels  = 1 << 24 // input channels, filters, units, reshape dims
+	maxWindow    = 1 << 16 // kernel, stride, dilation, padding
+	maxFactor    = 1 << 10 // upsampling factor
+	maxBatch     = 1 << 24 // training batch
+)
+
+// namePattern is what a layer name may look like: a short identifier.
+var namePattern = regexp.MustCompile(`^[A-Za-z_][A-Za-z0-9_-]*$`)
+
+// Load parses a stack file from memory. The returned error is an ErrorList
+// (every problem found, each an *Error with line and column).
+func Load(data []byte) (*engine.Stack, error) {
+	if len(data) > MaxFileBytes {
+		return nil, ErrorList{{Msg: fmt.Sprintf("the file is %d bytes; stack files are limited to %d bytes (8 MiB)", len(data), MaxFileBytes), Err: ErrTooLarge}}
+	}
+	if bytes.IndexByte(data, 0) >= 0 {
+		return nil, ErrorList{{Msg: "the file holds binary data (a NUL byte); a stack file is YAML text", Err: ErrSyntax}}
+	}
+	var doc yaml.Node
+	if err := yaml.Unmarshal(data, &doc); err != nil {
+		return nil, ErrorList{syntaxError(err)}
+	}
+	d := &decoder{names: map[string]int{}}
+	s := d.document(&doc)
+	if len(d.errs) > 0 {
+		return nil, d.errs
+	}
+	return s, nil
+}
+
+// LoadFile reads and parses the stack file at path; errors carry the path.
+func LoadFile(path string) (*engine.Stack, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("open stack file: %w", err)
+	}
+	defer f.Close()
+	data, err := readLimited(f, MaxFileBytes)
+	if err != nil {
+		return nil, fmt.Errorf("read %s: %w", path, err)
+	}
+	s, err := Load(data)
+	var list ErrorList
+	if errors.As(err, &list) {
+		for _, e := range list {
+			e.File = path
+		}
+	}
+	return s, err
+}
+
+var yamlLine = regexp.MustCompile(`line (\d+)`)
+
+// syntaxError converts a YAML parser error into an *Error with its line.
+func syntaxError(err error) *Error {
+	msg := strings.TrimPrefix(err.Error(), "yaml: ")
+	e := &Error{Msg: msg + " (check indentation, colons and brackets)", Err: ErrSyntax}
+	if m := yamlLine.FindStringSubmatch(msg); m != nil {
+		e.Line, _ = strconv.Atoi(m[1])
+		e.Col = 1
+	}
+	return e
+}
+
+type decoder struct {
+	errs  ErrorList
+	names map[string]int // layer name → line of first use
+}
+
+func (d *decoder) fail(n *yaml.Node, field string, sentinel error, format string, args ...any) {
+	if len(d.errs) >= maxErrors {
+		return
+	}
+	e := &Error{Field: field, Msg: fmt.Sprintf(format, args...), Err: sentinel}
+	if n != nil {
+		e.Line, e.Col = n.Line, n.Column
+	}
+	d.errs = append(d.errs, e)
+}
+
+// mapping iterates a mapping node's key/value pairs, reporting a non-mapping.
+func (d *decoder) mapping(n *yaml.Node, field, what string) [][2]*yaml.Node {
+	n = d.deref(n, field)
+	if n == nil {
+		return nil
+	}
+	if n.Kind != yaml.MappingNode {
+		d.fail(n, field, ErrType, "expected %s (key: value lines), found %s", what, describe(n))
+		return nil
+	}
+	out := make([][2]*yaml.Node, 0, len(n.Content)/2)
+	seen := map[string]bool{}
+	for i := 0; i+1 < len(n.Content); i += 2 {
+		k := n.Content[i]
+		if seen[k.Value] {
+			d.fail(k, field, ErrType, "key %q appears twice; keep one", k.Value)
+			continue
+		}
+		seen[k.Value] = true
+		out = append(out, [2]*yaml.Node{k, n.Content[i+1]})
+	}
+	return out
+}
+
+// deref refuses aliases: stack files never need them and they are the
+// vehicle of "billion laughs" expansion attacks.
+func (d *decoder) deref(n *yaml.Node, field string) *yaml.Node {
+	if n == nil {
+		return nil
+	}
+	if n.Kind == yaml.AliasNode || n.Anchor != "" {
+		d.fail(n, field, ErrAlias, "anchors (&) and aliases (*) are not allowed in stack files; write the value out")
+		return nil
+	}
+	return n
+}
+
+func describe(n *yaml.Node) string {
+	switch n.Kind {
+	case yaml.MappingNode:
+		return "a mapping"
+	case yaml.SequenceNode:
+		return "a list"
+	case yaml.ScalarNode:
+		switch n.Tag {
+		case "!!null":
+			return "nothing"
+		case "!!str":
+			return fmt.Sprintf("the text %q", n.Value)
+		}
+		return fmt.Sprintf("%q", n.Value)
+	}
+	return "something else"
+}
+
+func (d *decoder) document(doc *yaml.Node) *engine.Stack {
+	if doc.Kind != yaml.DocumentNode || len(doc.Content) == 0 {
+		d.fail(nil, "", ErrMissing, "the file is empty; a stack file needs at least input: and layers:")
+		return nil
+	}
+	s := &engine.Stack{}
+	var haveInput, haveLayers bool
+	top := []string{"stackfit", "name", "note", "input", "training", "layers"}
+	for _, kv := range d.mapping(doc.Content[0], "file", "a stack (stackfit:, name:, input:, layers:)") {
+		k, v := kv[0], kv[1]
+		switch k.Value {
+		case "stackfit":
+			if ver, ok := d.int(v, "stackfit", 1, math.MaxInt32); ok && ver != Version {
+				d.fail(v, "stackfit", ErrVersion, "format version %d is not supported; this stackfit reads version %d", ver, Version)
+			}
+		case "name":
+			s.Name, _ = d.text(v, "name", 200)
+		case "note":
+			s.Note, _ = d.text(v, "note", MaxNoteLen)
+		case "input":
+			s.Input, haveInput = d.shape(v, "input")
+		case "training":
+			s.Training = d.training(v)
+		case "layers":
+			haveLayers = true
+			s.Layers = d.layers(v)
+		default:
+			d.unknown(k, "file", top)
+		}
+	}
+	if !haveInput && len(d.errs) == 0 {
+		d.fail(doc.Content[0], "input", ErrMissing, "missing; add the per-sample input as [channels, height, width], e.g. input: [3, 224, 224]")
+	}
+	if !haveLayers && len(d.errs) == 0 {
+		d.fail(doc.Content[0], "layers", ErrMissing, "missing; add a list of layers, e.g. layers: [{conv: 32, kernel: 3}]")
+	}
+	return s
+}
+
+func (d *decoder) unknown(k *yaml.Node, field string, allowed []string) {
+	if hint := suggest(k.Value, allowed); hint != "" {
+		d.fail(k, field, ErrUnknown, "unknown key %q; did you mean %q? (allowed: %s)", k.Value, hint, strings.Join(allowed, ", "))
+		return
+	}
+	d.fail(k, field, ErrUnknown, "unknown key %q (allowed: %s)", k.Value, strings.Join(allowed, ", "))
+}
+
+// scalar returns n when it is a scalar, reporting anything else.
+func (d *decoder) scalar(n *yaml.Node, field, want string) *yaml.Node {
+	n = d.deref(n, field)
+	if n == nil {
+		return nil
+	}
+	if n.Kind != yaml.ScalarNode {
+		d.fail(n, field, ErrType, "expected %s, found %s", want, describe(n))
+		return nil
+	}
+	return n
+}
+
+// int reads a whole number in [lo, hi].
+func (d *decoder) int(n *yaml.Node, field string, lo, hi int64) (int64, bool) {
+	n = d.scalar(n, field, "a whole number")
+	if n == nil {
+		return 0, false
+	}
+	if n.Tag != "!!int" {
+		if n.Tag == "!!float" {
+			if f, err := strconv.ParseFloat(n.Value, 64); err == nil && f == math.Trunc(f) && math.Abs(f) >= 1<<63 {
+				d.fail(n, field, ErrRange, "%s is too large; it must be at most %d", n.Value, hi)
+				return 0, false
+			}
+		}
+		d.fail(n, field, ErrType, "expected a whole number, found %s", describe(n))
+		return 0, false
+	}
+	var v int64
+	if err := n.Decode(&v); err != nil {
+		d.fail(n, field, ErrRange, "%s does not fit in a 64-bit integer; it must be at most %d", n.Value, hi)
+		return 0, false
+	}
+	if v < lo || v > hi {
+		d.fail(n, field, ErrRange, "%d is out of range; it must be between %d and %d", v, lo, hi)
+		return 0, false
+	}
+	return v, true
+}
+
+// float reads a real number in [lo, hi).
+func (d *decoder) float(n *yaml.Node, field string, lo, hi float64) (float64, bool) {
+	n = d.scalar(n, field, "a number")
+	if n == nil {
+		return 0, false
+	}
+	var v float64
+	if (n.Tag != "!!float" && n.Tag != "!!int") || n.Decode(&v) != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		d.fail(n, field, ErrType, "expected a number, found %s", describe(n))
+		return 0, false
+	}
+	if v < lo || v >= hi {
+		d.fail(n, field, ErrRange, "%g is out of range; it must be at least %g and below %g", v, lo, hi)
+		return 0, false
+	}
+	return v, true
+}
+
+func (d *decoder) bool(n *yaml.Node, field string) (bool, bool) {
+	n = d.scalar(n, field, "true or false")
+	if n == nil {
+		return false, false
+	}
+	var v bool
+	if n.Tag != "!!bool" || n.Decode(&v) != nil {
+		d.fail(n, field, ErrType, "expected true or false, found %s", describe(n))
+		return false, false
+	}
+	return v, true
+}
+
+// text reads a string of at most max bytes.
+func (d *decoder) text(n *yaml.Node, field string, max int) (string, bool) {
+	n = d.scalar(n, field, "text")
+	if n == nil {
+		return "", false
+	}
+	if len(n.Value) > max {
+		d.fail(n, field, ErrRange, "is %d bytes long; the limit is %d", len(n.Value), max)
+		return "", false
+	}
+	return n.Value, true
+}
+
+// choice reads one of a fixed set of words.
+func (d *decoder) choice(n *yaml.Node, field string, options []string) (int, bool) {
+	n = d.scalar(n, field, "one of "+strings.Join(options, ", "))
+	if n == nil {
+		return 0, false
+	}
+	for i, o := range options {
+		if strings.EqualFold(n.Value, o) {
+			return i, true
+		}
+	}
+	if hint := suggest(n.Value, options); hint != "" {
+		d.fail(n, field, ErrRange, "%q is not one of %s; did you mean %q?", n.Value, strings.Join(options, ", "), hint)
+	} else {
+		d.fail(n, field, ErrRange, "%q is not one of %s", n.Value, strings.Join(options, ", "))
+	}
+	return 0, false
+}
+
+// pair reads n or [h, w], each in [lo, hi].
+func (d *decoder) pair(n *yaml.Node, field string, lo, hi int64) (engine.Pair, bool) {
+	n = d.deref(n, field)
+	if n == nil {
+		return engine.Pair{}, false
+	}
+	if n.Kind == yaml.SequenceNode {
+		if len(n.Content) != 2 {
+			d.fail(n, field, ErrType, "expected one number or [height, width], found a list of %d", len(n.Content))
+			return engine.Pair{}, false
+		}
+		h, ok1 := d.int(n.Content[0], field+" height", lo, hi)
+		w, ok2 := d.int(n.Content[1], field+" width", lo, hi)
+		return engine.Pair{H: h, W: w}, ok1 && ok2
+	}
+	v, ok := d.int(n, field, lo, hi)
+	return engine.Square(v), ok
+}
+
+// shape reads [channels, height, width].
+func (d *decoder) shape(n *yaml.Node, field string) (engine.Shape, bool) {
+	n = d.deref(n, field)
+	if n == nil {
+		return engine.Shape{}, false
+	}
+	if n.Kind != yaml.SequenceNode || len(n.Content) != 3 {
+		d.fail(n, field, ErrType, "expected [channels, height, width], e.g. [3, 224, 224]; found %s", describe(n))
+		return engine.Shape{}, false
+	}
+	c, ok1 := d.int(n.Content[0], field+" channels", 1, maxChannels)
+	h, ok2 := d.int(n.Content[1], field+" height", 1, maxSpatial)
+	w, ok3 := d.int(n.Content[2], field+" width", 1, maxSpatial)
+	return engine.Shape{C: c, H: h, W: w}, ok1 && ok2 && ok3
+}
+
+func (d *decoder) training(n *yaml.Node) engine.Training {
+	var t engine.Training
+	keys := []string{"batch", "precision", "optimizer", "budget"}
+	for _, kv := range d.mapping(n, "training", "training settings") {
+		k, v := kv[0], kv[1]
+		field := "training → " + k.Value
+		switch k.Value {
+		case "batch":
+			t.Batch, _ = d.int(v, field, 1, maxBatch)
+		case "precision":
+			i, _ := d.choice(v, field, names(engine.Precisions()))
+			t.Precision = engine.Precision(i)
+		case "optimizer":
+			i, _ := d.choice(v, field, names(engine.Optimizers()))
+			t.Optimizer = engine.Optimizer(i)
+		case "budget":
+			if s := d.scalar(v, field, "a memory size such as 24GiB"); s != nil {
+				b, err := engine.ParseBytes(s.Value)
+				if err != nil {
+					d.fail(s, field, ErrRange, "%v", err)
+				}
+				t.Budget = b
+			}
+		default:
+			d.unknown(k, "training", keys)
+		}
+	}
+	return t
+}
+
+func names[T fmt.Stringer](xs []T) []string {
+	out := make([]string, len(xs))
+	for i, x := range xs {
+		out[i] = x.String()
+	}
+	return out
+}

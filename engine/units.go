@@ -1,0 +1,138 @@
+package engine
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+)
+
+// ErrSize is returned (wrapped) by ParseBytes for text that is not a size.
+var ErrSize = errors.New("not a memory size")
+
+var sizeUnits = []struct {
+	suffix string
+	mult   float64
+}{
+	{"kib", 1 << 10}, {"mib", 1 << 20}, {"gib", 1 << 30}, {"tib", 1 << 40},
+	{"kb", 1e3}, {"mb", 1e6}, {"gb", 1e9}, {"tb", 1e12},
+	{"k", 1 << 10}, {"m", 1 << 20}, {"g", 1 << 30}, {"t", 1 << 40},
+	{"b", 1},
+}
+
+// ParseBytes reads a memory size such as "24GiB", "24GB", "24000MiB",
+// "1.5 GiB" or "80000000000". Binary units (KiB, MiB, GiB, TiB, and the bare
+// letters K, M, G, T) are powers of 1024; decimal units (KB, MB, GB, TB) are
+// powers of 1000. Case does not matter.
+func ParseBytes(s string) (int64, error) {
+	t := strings.ToLower(strings.TrimSpace(s))
+	if t == "" {
+		return 0, fmt.Errorf("%w: empty; write e.g. 24GiB", ErrSize)
+	}
+	mult := 1.0
+	for _, u := range sizeUnits {
+		if strings.HasSuffix(t, u.suffix) {
+			mult = u.mult
+			t = strings.TrimSpace(strings.TrimSuffix(t, u.suffix))
+			break
+		}
+	}
+	v, err := strconv.ParseFloat(t, 64)
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0, fmt.Errorf("%w: %q; write a number and a unit, e.g. 24GiB, 24GB or 24000MiB", ErrSize, s)
+	}
+	if v < 0 {
+		return 0, fmt.Errorf("%w: %q is negative", ErrSize, s)
+	}
+	b := v * mult
+	if b >= math.MaxInt64 {
+		return 0, fmt.Errorf("%w: %q is too large", ErrSize, s)
+	}
+	return int64(math.Round(b)), nil
+}
+
+// FormatBytes writes n in binary units with three significant digits, e.g.
+// "1.50 GiB", "812 MiB", "96 B".
+func FormatBytes(n int64) string {
+	if n < 0 {
+		return "-" + FormatBytes(-n)
+	}
+	if n < 1024 {
+		return strconv.FormatInt(n, 10) + " B"
+	}
+	units := []string{"KiB", "MiB", "GiB", "TiB", "PiB", "EiB"}
+	v := float64(n) / 1024
+	i := 0
+	for v >= 1024 && i < len(units)-1 {
+		v /= 1024
+		i++
+	}
+	return formatSig(v) + " " + units[i]
+}
+
+// FormatBytesExact writes n in the largest binary unit that divides it
+// exactly, for saving sizes without loss ("24GiB", "1536MiB", "1000B").
+func FormatBytesExact(n int64) string {
+	units := []string{"B", "KiB", "MiB", "GiB", "TiB"}
+	i := 0
+	for i < len(units)-1 && n != 0 && n%1024 == 0 {
+		n /= 1024
+		i++
+	}
+	return strconv.FormatInt(n, 10) + units[i]
+}
+
+// formatSig formats v (≥ 1) with three significant digits.
+func formatSig(v float64) string {
+	switch {
+	case v >= 100:
+		return strconv.FormatFloat(v, 'f', 0, 64)
+	case v >= 10:
+		return strconv.FormatFloat(v, 'f', 1, 64)
+	}
+	return strconv.FormatFloat(v, 'f', 2, 64)
+}
+
+// FormatCount writes a count with an SI suffix and three significant digits,
+// e.g. "138M", "4.09G", "9,216" below ten thousand.
+func FormatCount(n int64) string {
+	if n < 0 {
+		return "-" + FormatCount(-n)
+	}
+	if n < 10000 {
+		return GroupDigits(n)
+	}
+	v := float64(n)
+	for _, u := range []string{"k", "M", "G", "T", "P", "E"} {
+		v /= 1000
+		if v < 999.5 {
+			return formatSig(v) + u
+		}
+	}
+	return GroupDigits(n)
+}
+
+// GroupDigits writes n with thousands separators: 138,357,544.
+func GroupDigits(n int64) string {
+	s := strconv.FormatInt(n, 10)
+	neg := strings.HasPrefix(s, "-")
+	if neg {
+		s = s[1:]
+	}
+	var b strings.Builder
+	if neg {
+		b.WriteByte('-')
+	}
+	pre := len(s) % 3
+	if pre > 0 {
+		b.WriteString(s[:pre])
+	}
+	for i := pre; i < len(s); i += 3 {
+		if b.Len() > 0 && !(neg && b.Len() == 1) {
+			b.WriteByte(',')
+		}
+		b.WriteString(s[i : i+3])
+	}
+	return b.String()
+}

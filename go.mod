@@ -1,0 +1,5 @@
+module stackfit
+
+go 1.26.8
+
+require gopkg.in/yaml.v3 v3.0.1

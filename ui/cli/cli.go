@@ -1,0 +1,171 @@
+// Package cli is stackfit's command line: it parses arguments, loads stack
+// files and hands them to the engine and the report writers.
+package cli
+
+import (
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"strings"
+
+	"stackfit/engine"
+	"stackfit/engine/examples"
+	"stackfit/engine/report"
+	"stackfit/engine/stackfile"
+)
+
+// Exit statuses.
+const (
+	ExitOK       = 0 // clean
+	ExitProblems = 1 // the stack has errors
+	ExitUsage    = 2 // bad usage or unreadable input
+)
+
+// IO bundles the streams a command uses.
+type IO struct {
+	In       io.Reader
+	Out, Err io.Writer
+}
+
+// Run executes stackfit with args (without the program name) and returns
+// the exit status.
+func Run(args []string, std IO) int {
+	if len(args) == 0 {
+		return showExample(std)
+	}
+	switch args[0] {
+	case "report":
+		return runReport(args[1:], std)
+	case "help", "-h", "--help", "-help":
+		fmt.Fprint(std.Out, usage)
+		return ExitOK
+	}
+	fmt.Fprintf(std.Err, "stackfit: unknown command %q\n\n%s", args[0], usage)
+	return ExitUsage
+}
+
+const usage = `stackfit — size a convolutional network before you write it
+
+usage:
+  stackfit                          report the built-in example (fruit grader)
+  stackfit report FILE [flags]      report a stack file ('-' reads standard input)
+
+report flags:
+  --format text|json   output format (default text)
+  -o FILE              write the report to FILE instead of standard output
+
+exit status: 0 clean, 1 the stack has errors, 2 bad usage or unreadable file
+
+example:
+  stackfit report net.yaml --format json -o net.json
+`
+
+func showExample(std IO) int {
+	s, err := stackfile.Load(examples.FruitGrader())
+	if err != nil {
+		fmt.Fprintf(std.Err, "stackfit: built-in example: %v\n", err)
+		return ExitUsage
+	}
+	r := engine.Evaluate(s)
+	if err := report.WriteText(std.Out, s, r); err != nil {
+		fmt.Fprintf(std.Err, "stackfit: %v\n", err)
+		return ExitUsage
+	}
+	return ExitOK
+}
+
+func runReport(args []string, std IO) int {
+	fs := flag.NewFlagSet("report", flag.ContinueOnError)
+	fs.SetOutput(std.Err)
+	format := fs.String("format", "text", "output format: text or json")
+	out := fs.String("o", "", "write the report to this file")
+	fs.Usage = func() { fmt.Fprint(std.Err, usage) }
+	pos, err := parseInterleaved(fs, args)
+	if err != nil {
+		return ExitUsage
+	}
+	if len(pos) != 1 {
+		fmt.Fprintf(std.Err, "stackfit report: give exactly one stack file (got %d); e.g. stackfit report net.yaml\n", len(pos))
+		return ExitUsage
+	}
+	var write func(io.Writer, *engine.Stack, *engine.Result) error
+	switch *format {
+	case "text":
+		write = report.WriteText
+	case "json":
+		write = report.WriteJSON
+	default:
+		fmt.Fprintf(std.Err, "stackfit report: --format %q is not known; use text or json\n", *format)
+		return ExitUsage
+	}
+	s, err := load(pos[0], std.In)
+	if err != nil {
+		fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
+		return ExitUsage
+	}
+	r := engine.Evaluate(s)
+	if *out != "" {
+		var buf strings.Builder
+		if err := write(&buf, s, r); err != nil {
+			fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
+			return ExitUsage
+		}
+		if err := stackfile.WriteFileAtomic(*out, []byte(buf.String()), 0o644); err != nil {
+			fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
+			return ExitUsage
+		}
+	} else if err := write(std.Out, s, r); err != nil {
+		fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
+		return ExitUsage
+	}
+	if r.Errors > 0 {
+		return ExitProblems
+	}
+	return ExitOK
+}
+
+// load reads a stack from a file, or from in when path is "-".
+func load(path string, in io.Reader) (*engine.Stack, error) {
+	if path != "-" {
+		return stackfile.LoadFile(path)
+	}
+	data, err := io.ReadAll(io.LimitReader(in, stackfile.MaxFileBytes+1))
+	if err != nil {
+		return nil, fmt.Errorf("read standard input: %w", err)
+	}
+	s, err := stackfile.Load(data)
+	var list stackfile.ErrorList
+	if errors.As(err, &list) {
+		for _, e := range list {
+			e.File = "<stdin>"
+		}
+	}
+	return s, err
+}
+
+// parseInterleaved parses flags that may come before or after positional
+// arguments ("report net.yaml --format json").
+func parseInterleaved(fs *flag.FlagSet, args []string) ([]string, error) {
+	var pos []string
+	for {
+		if err := fs.Parse(args); err != nil {
+			return nil, err
+		}
+		args = fs.Args()
+		if len(args) == 0 {
+			return pos, nil
+		}
+		if args[0] == "--" {
+			return append(pos, args[1:]...), nil
+		}
+		pos = append(pos, args[0])
+		args = args[1:]
+	}
+}
+
+// Main runs stackfit on the process's arguments and streams.
+func Main() int {
+	return Run(os.Args[1:], IO{In: os.Stdin, Out: os.Stdout, Err: os.Stderr})
+}
