@@ -55,13 +55,17 @@ type Diagnostic struct {
 	Code     Code
 	Row      int    // index into Result.Rows
 	Field    string // the stack-file field at fault, e.g. "kernel"
-	Axis     byte   // 'h' or 'w' for per-axis problems, else 0
+	Axis     byte   // 'h', 'w' or 'b' (both) for per-axis problems, else 0
 	// The numbers involved; their meaning depends on Code.
 	A, B, C, D, E int64
 }
 
 func axisName(a byte, rows bool) string {
 	switch {
+	case a == 'b' && rows:
+		return "rows and columns"
+	case a == 'b':
+		return "height and width"
 	case a == 'h' && rows:
 		return "rows"
 	case a == 'w' && rows:
@@ -112,7 +116,7 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("%s is %d; it must be at least %d", d.Field, d.A, d.B)
 	case WarnStrideDrop:
 		return fmt.Sprintf("stride %d leaves the last %d input %s unused ((%d + 2·%d − %d) mod %d = %d); adjust padding or input size",
-			d.A, d.B, plural(d.B, strings.TrimSuffix(axisName(d.Axis, true), "s"), axisName(d.Axis, true)), d.C, d.D, d.E, d.A, d.B)
+			d.A, d.B, plural(d.B, strings.ReplaceAll(axisName(d.Axis, true), "s", ""), axisName(d.Axis, true)), d.C, d.D, d.E, d.A, d.B)
 	case WarnSameAsym:
 		return fmt.Sprintf("padding \"same\" needs %d padding %s, split unevenly (%d before, %d after); frameworks without asymmetric padding differ", d.A, axisName(d.Axis, true), d.A/2, d.A-d.A/2)
 	case WarnFinalRF:

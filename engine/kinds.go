@@ -132,6 +132,8 @@ func (c *calc) conv(f *flow, transposed bool) {
 			out.W, ok = c.deconvAxis('w', in.W, k.W, s.W, d.W, l.Pad, l.Pad.Size.W, l.OutPad.W)
 		}
 	} else {
+		n0 := len(c.r.Diags)
+		defer c.mergeAxes(n0)
 		out.H, c.row.PadBefore.H, c.row.PadAfter.H, ok = c.window('h', in.H, k.H, s.H, d.H, l.Pad, l.Pad.Size.H, false, false)
 		if ok {
 			out.W, c.row.PadBefore.W, c.row.PadAfter.W, ok = c.window('w', in.W, k.W, s.W, d.W, l.Pad, l.Pad.Size.W, false, false)
@@ -279,6 +281,7 @@ func (c *calc) pool(f *flow) {
 	var out Shape
 	var ok bool
 	out.C = in.C
+	defer c.mergeAxes(len(c.r.Diags))
 	out.H, c.row.PadBefore.H, c.row.PadAfter.H, ok = c.window('h', in.H, k.H, s.H, 1, l.Pad, l.Pad.Size.H, l.Ceil, true)
 	if ok {
 		out.W, c.row.PadBefore.W, c.row.PadAfter.W, ok = c.window('w', in.W, k.W, s.W, 1, l.Pad, l.Pad.Size.W, l.Ceil, true)
@@ -407,4 +410,20 @@ func (c *calc) reshape() {
 		return
 	}
 	c.row.Out = t
+}
+
+// mergeAxes folds a pair of identical height and width warnings recorded
+// since diagnostic n0 into one warning about both axes.
+func (c *calc) mergeAxes(n0 int) {
+	ds := c.r.Diags
+	if len(ds)-n0 != 2 {
+		return
+	}
+	a, b := ds[n0], ds[n0+1]
+	b.Axis = a.Axis
+	if a.Axis == 'h' && ds[n0+1].Axis == 'w' && a == b {
+		c.r.Diags[n0].Axis = 'b'
+		c.r.Diags = ds[:n0+1]
+		c.r.Warnings--
+	}
 }

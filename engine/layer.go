@@ -5,19 +5,19 @@ type Kind uint8
 
 // Layer kinds. The names returned by String are the keys used in stack files.
 const (
-	KindInvalid   Kind = iota
-	KindConv           // 2-D convolution
-	KindDeconv         // 2-D transposed convolution
-	KindPool           // max or average pooling with a fixed window
-	KindGlobalPool     // pooling over the whole map to 1×1
-	KindPoolTo         // average pooling to a fixed output size (adaptive)
-	KindUpsample       // upsampling by an integer factor
-	KindNorm           // batch, group, instance or layer normalisation
-	KindAct            // element-wise activation
-	KindDropout        // dropout
-	KindFlatten        // C×H×W → C·H·W×1×1
-	KindDense          // fully connected layer
-	KindReshape        // reinterpret the elements as a new C×H×W
+	KindInvalid    Kind = iota
+	KindConv            // 2-D convolution
+	KindDeconv          // 2-D transposed convolution
+	KindPool            // max or average pooling with a fixed window
+	KindGlobalPool      // pooling over the whole map to 1×1
+	KindPoolTo          // average pooling to a fixed output size (adaptive)
+	KindUpsample        // upsampling by an integer factor
+	KindNorm            // batch, group, instance or layer normalisation
+	KindAct             // element-wise activation
+	KindDropout         // dropout
+	KindFlatten         // C×H×W → C·H·W×1×1
+	KindDense           // fully connected layer
+	KindReshape         // reinterpret the elements as a new C×H×W
 	kindCount
 )
 

@@ -1,0 +1,84 @@
+package engine_test
+
+import (
+	"path/filepath"
+	"testing"
+
+	"stackfit/engine"
+	"stackfit/engine/stackfile"
+)
+
+func loadTestdata(t testing.TB, name string) *engine.Stack {
+	t.Helper()
+	s, err := stackfile.LoadFile(filepath.Join("..", "testdata", name))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
+}
+
+// TestPublishedTotals checks whole networks against published totals.
+// Parameters and GFLOPS (giga multiply-accumulates) are torchvision's model
+// documentation (weights metadata num_params and GFLOPS); the exact MACs are
+// the values behind its printed GFLOPS (../shared/reference/check-values.md).
+func TestPublishedTotals(t *testing.T) {
+	tests := []struct {
+		file   string
+		source string
+		params int64
+		macs   int64
+	}{
+		{"published/alexnet.yaml", "torchvision alexnet: 61,100,840 params, 0.714 GFLOPS", 61100840, 714188480},
+		{"published/vgg11.yaml", "torchvision vgg11: 132,863,336 params, 7.609 GFLOPS", 132863336, 7609090048},
+		{"published/vgg11-bn.yaml", "torchvision vgg11_bn: 132,868,840 params", 132868840, 7609090048},
+		{"published/vgg13.yaml", "torchvision vgg13: 133,047,848 params, 11.308 GFLOPS", 133047848, 11308466176},
+		{"published/vgg13-bn.yaml", "torchvision vgg13_bn: 133,053,736 params", 133053736, 11308466176},
+		{"published/vgg16.yaml", "torchvision vgg16: 138,357,544 params, 15.47 GFLOPS; Simonyan & Zisserman 2015 Table 2: 138 M", 138357544, 15470264320},
+		{"published/vgg16-bn.yaml", "torchvision vgg16_bn: 138,365,992 params", 138365992, 15470264320},
+		{"published/vgg19.yaml", "torchvision vgg19: 143,667,240 params, 19.632 GFLOPS; Simonyan & Zisserman 2015 Table 2: 144 M", 143667240, 19632062464},
+		{"published/vgg19-bn.yaml", "torchvision vgg19_bn: 143,678,248 params", 143678248, 19632062464},
+	}
+	for _, tt := range tests {
+		t.Run(tt.file, func(t *testing.T) {
+			r := engine.Evaluate(loadTestdata(t, tt.file))
+			if r.Errors != 0 {
+				t.Fatalf("errors: %v", r.Diags)
+			}
+			if r.Totals.Params != tt.params {
+				t.Errorf("params = %d, want %d (%s)", r.Totals.Params, tt.params, tt.source)
+			}
+			if r.Totals.MACs != tt.macs {
+				t.Errorf("MACs = %d, want %d (%s)", r.Totals.MACs, tt.macs, tt.source)
+			}
+		})
+	}
+}
+
+// TestLeNet5 checks the layers of LeNet-5 whose trainable parameters
+// LeCun et al. 1998 state: C1 = 156, C5 = 48,120, F6 = 10,164, with C1's
+// 6 maps of 28×28 and C5's 120 maps of 1×1.
+func TestLeNet5(t *testing.T) {
+	r := engine.Evaluate(loadTestdata(t, "published/lenet5.yaml"))
+	want := map[string]struct {
+		params int64
+		out    engine.Shape
+	}{
+		"C1": {156, engine.Shape{C: 6, H: 28, W: 28}},
+		"C5": {48120, engine.Shape{C: 120, H: 1, W: 1}},
+		"F6": {10164, engine.Shape{C: 84, H: 1, W: 1}},
+	}
+	found := 0
+	for _, row := range r.Rows {
+		w, ok := want[row.Layer.Name]
+		if !ok {
+			continue
+		}
+		found++
+		if row.Params != w.params || row.Out != w.out {
+			t.Errorf("%s: params %d out %v, want %d and %v (LeCun et al. 1998)", row.Layer.Name, row.Params, row.Out, w.params, w.out)
+		}
+	}
+	if found != len(want) {
+		t.Fatalf("found %d of %d named layers", found, len(want))
+	}
+}

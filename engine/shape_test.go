@@ -1,0 +1,189 @@
+package engine
+
+import "testing"
+
+// single evaluates one layer on a c×h×w input.
+func single(in Shape, l Layer) (*Result, Row) {
+	r := Evaluate(&Stack{Input: in, Layers: []Layer{l}})
+	return r, r.Rows[0]
+}
+
+// TestConvArithmetic checks output sizes against the relationships and
+// worked examples of Dumoulin & Visin 2016, "A guide to convolution
+// arithmetic for deep learning" (i input, k kernel, s stride, p padding).
+func TestConvArithmetic(t *testing.T) {
+	tests := []struct {
+		name             string
+		i, k, s, p, d, o int64
+	}{
+		{"relationship 1: no padding, unit stride", 4, 3, 1, 0, 1, 2},
+		{"relationship 2: zero padding, unit stride", 5, 4, 1, 2, 1, 6},
+		{"relationship 3: half padding", 5, 3, 1, 1, 1, 5},
+		{"relationship 4: full padding", 5, 3, 1, 2, 1, 7},
+		{"relationship 5: no padding, stride 2", 5, 3, 2, 0, 1, 2},
+		{"relationship 6: padding and stride, odd input", 5, 3, 2, 1, 1, 3},
+		{"relationship 6: padding and stride, even input", 6, 3, 2, 1, 1, 3},
+		{"relationship 15: dilated", 7, 3, 1, 0, 2, 3},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			l := Layer{Kind: KindConv, Filters: 1, Kernel: Square(tt.k), Stride: Square(tt.s),
+				Pad: Padding{Size: Square(tt.p)}, Dilation: Square(tt.d)}
+			r, row := single(Shape{1, tt.i, tt.i}, l)
+			if r.Errors != 0 {
+				t.Fatalf("unexpected errors: %v", r.Diags)
+			}
+			if row.Out.H != tt.o || row.Out.W != tt.o {
+				t.Errorf("out = %d×%d, want %d×%d", row.Out.H, row.Out.W, tt.o, tt.o)
+			}
+		})
+	}
+}
+
+// TestPoolArithmetic checks pooling sizes: Dumoulin & Visin 2016,
+// relationship 7, and PyTorch's MaxPool2d / AvgPool2d documentation
+// (ceil_mode drops a window that would start inside the right padding).
+func TestPoolArithmetic(t *testing.T) {
+	tests := []struct {
+		source     string
+		mode       PoolMode
+		i, k, s, p int64
+		ceil       bool
+		o          int64
+	}{
+		{"Dumoulin & Visin relationship 7: 3×3 pool, stride 1, on 5×5", PoolMax, 5, 3, 1, 0, false, 3},
+		{"PyTorch MaxPool2d floor: k3 s2 on 112", PoolMax, 112, 3, 2, 0, false, 55},
+		{"PyTorch MaxPool2d ceil: k3 s2 on 112", PoolMax, 112, 3, 2, 0, true, 56},
+		{"PyTorch MaxPool2d ceil with padding: k2 s2 p1 on 5", PoolMax, 5, 2, 2, 1, true, 3},
+		{"PyTorch AvgPool2d: k2 s2 on 7 (floor)", PoolAvg, 7, 2, 2, 0, false, 3},
+		{"PyTorch AvgPool2d ceil: k2 s2 on 7", PoolAvg, 7, 2, 2, 0, true, 4},
+	}
+	for _, tt := range tests {
+		t.Run(tt.source, func(t *testing.T) {
+			l := Layer{Kind: KindPool, Pool: tt.mode, Kernel: Square(tt.k), Stride: Square(tt.s), Pad: Padding{Size: Square(tt.p)}, Ceil: tt.ceil}
+			r, row := single(Shape{8, tt.i, tt.i}, l)
+			if r.Errors != 0 {
+				t.Fatalf("unexpected errors: %v", r.Diags)
+			}
+			if row.Out != (Shape{8, tt.o, tt.o}) {
+				t.Errorf("out = %v, want 8×%d×%d", row.Out, tt.o, tt.o)
+			}
+		})
+	}
+}
+
+// TestTransposedArithmetic checks transposed convolutions: Dumoulin & Visin
+// 2016 relationships 12–14 and PyTorch's ConvTranspose2d formula
+// H_out = (H_in − 1)·s − 2p + d(k − 1) + output_padding + 1.
+func TestTransposedArithmetic(t *testing.T) {
+	tests := []struct {
+		source            string
+		i, k, s, p, op, o int64
+	}{
+		{"Dumoulin & Visin relationship 12: transpose of i=5 k=3 s=2 p=0", 2, 3, 2, 0, 0, 5},
+		{"Dumoulin & Visin relationship 13: transpose of i=5 k=3 s=2 p=1", 3, 3, 2, 1, 0, 5},
+		{"Dumoulin & Visin relationship 14: transpose of i=6 k=3 s=2 p=1, a=1", 3, 3, 2, 1, 1, 6},
+		{"PyTorch ConvTranspose2d: k4 s2 p1 doubles 4 → 8", 4, 4, 2, 1, 0, 8},
+		{"PyTorch ConvTranspose2d: k5 s2 p2 op1 doubles 4 → 8 (DCGAN step)", 4, 5, 2, 2, 1, 8},
+	}
+	for _, tt := range tests {
+		t.Run(tt.source, func(t *testing.T) {
+			l := Layer{Kind: KindDeconv, Filters: 2, Kernel: Square(tt.k), Stride: Square(tt.s), Pad: Padding{Size: Square(tt.p)}, OutPad: Square(tt.op)}
+			r, row := single(Shape{4, tt.i, tt.i}, l)
+			if r.Errors != 0 {
+				t.Fatalf("unexpected errors: %v", r.Diags)
+			}
+			if row.Out != (Shape{2, tt.o, tt.o}) {
+				t.Errorf("out = %v, want 2×%d×%d", row.Out, tt.o, tt.o)
+			}
+		})
+	}
+}
+
+// TestNonSquare checks that height and width are computed independently
+// (PyTorch Conv2d formula applied per axis).
+func TestNonSquare(t *testing.T) {
+	l := Layer{Kind: KindConv, Filters: 16, Kernel: Pair{3, 5}, Stride: Pair{1, 2}, Pad: Padding{Size: Pair{1, 2}}, Dilation: Pair{2, 1}}
+	r, row := single(Shape{3, 20, 31}, l)
+	if r.Errors != 0 {
+		t.Fatalf("unexpected errors: %v", r.Diags)
+	}
+	// H: ⌊(20 + 2 − 2·2 − 1)/1⌋ + 1 = 18; W: ⌊(31 + 4 − 4 − 1)/2⌋ + 1 = 16.
+	if want := (Shape{16, 18, 16}); row.Out != want {
+		t.Errorf("out = %v, want %v", row.Out, want)
+	}
+	// Parameters: 16·3·3·5 + 16 = 736; MACs: 16·18·16·3·15 = 207,360.
+	if row.Params != 736 || row.MACs != 207360 {
+		t.Errorf("params %d macs %d, want 736 and 207360", row.Params, row.MACs)
+	}
+	// Receptive field: dilated kernel spans 5 rows and 5 columns.
+	if row.RF != (FPair{5, 5}) || row.Jump != (FPair{1, 2}) {
+		t.Errorf("rf %v jump %v", row.RF, row.Jump)
+	}
+}
+
+// TestSamePadding checks "same" padding: the output is ⌈i/s⌉ and the total
+// padding (o − 1)·s + k_eff − i is split with the extra row at the bottom,
+// the convention of TensorFlow's "SAME" and of PyTorch's padding='same'
+// (common practice; PyTorch's docs allow it for stride 1 only).
+func TestSamePadding(t *testing.T) {
+	tests := []struct {
+		name          string
+		i, k, s       int64
+		o, before     int64
+		after         int64
+		asymmetryWarn bool
+	}{
+		{"odd kernel stride 1", 7, 3, 1, 7, 1, 1, false},
+		{"even kernel stride 1", 7, 4, 1, 7, 1, 2, true},
+		{"stride 2 even input", 8, 3, 2, 4, 0, 1, true},
+		{"stride 2 odd input", 7, 3, 2, 4, 1, 1, false},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			l := Layer{Kind: KindConv, Filters: 8, Kernel: Square(tt.k), Stride: Square(tt.s), Pad: Padding{Mode: PadSame}}
+			r, row := single(Shape{8, tt.i, tt.i}, l)
+			if row.Out.H != tt.o || row.PadBefore.H != tt.before || row.PadAfter.H != tt.after {
+				t.Errorf("out %d pad %d/%d, want %d pad %d/%d", row.Out.H, row.PadBefore.H, row.PadAfter.H, tt.o, tt.before, tt.after)
+			}
+			if got := hasCode(r, WarnSameAsym); got != tt.asymmetryWarn {
+				t.Errorf("asymmetry warning = %v, want %v", got, tt.asymmetryWarn)
+			}
+		})
+	}
+}
+
+func hasCode(r *Result, c Code) bool {
+	for _, d := range r.Diags {
+		if d.Code == c {
+			return true
+		}
+	}
+	return false
+}
+
+// TestUpsampleAndAdaptive covers the kinds without a published worked
+// example, checked against the definitions in PyTorch's Upsample and
+// AdaptiveAvgPool2d documentation.
+func TestUpsampleAndAdaptive(t *testing.T) {
+	_, row := single(Shape{4, 5, 7}, Layer{Kind: KindUpsample, Factor: Pair{2, 3}, Upsample: UpBilinear})
+	if row.Out != (Shape{4, 10, 21}) {
+		t.Errorf("upsample out %v", row.Out)
+	}
+	_, row = single(Shape{4, 13, 13}, Layer{Kind: KindPoolTo, Size: Pair{6, 6}})
+	if row.Out != (Shape{4, 6, 6}) {
+		t.Errorf("pool-to out %v", row.Out)
+	}
+	// Widest adaptive window for 13 → 6: windows run ⌊i·13/6⌋ to ⌈(i+1)·13/6⌉, at most 3 wide.
+	if row.RF != (FPair{3, 3}) {
+		t.Errorf("pool-to rf %v, want 3", row.RF)
+	}
+	// 5 → 3: windows [0,2), [1,4), [3,5): the middle one is 3 wide.
+	if w := adaptiveWindow(5, 3); w != 3 {
+		t.Errorf("adaptiveWindow(5, 3) = %d, want 3", w)
+	}
+	_, row = single(Shape{4, 5, 7}, Layer{Kind: KindGlobalPool})
+	if row.Out != (Shape{4, 1, 1}) || row.RF != (FPair{5, 7}) {
+		t.Errorf("global pool out %v rf %v", row.Out, row.RF)
+	}
+}
