@@ -45,8 +45,6 @@ type Row struct {
 	CumParams int64 // parameters of this and every earlier row
 	RF        FPair // receptive field in input pixels
 	Jump      FPair // distance in input pixels between adjacent outputs
-	PadBefore Pair  // resolved padding at the top / left
-	PadAfter  Pair  // resolved padding at the bottom / right
 }
 
 // Totals sums the rows of a result.
@@ -65,6 +63,8 @@ type Result struct {
 	Totals   Totals
 	Errors   int
 	Warnings int
+
+	tally tally
 }
 
 // Evaluate computes every row of s into a new Result.
@@ -82,6 +82,14 @@ type flow struct {
 	ok    bool
 }
 
+// tally gathers what the whole-stack checks need while rows are computed.
+type tally struct {
+	ov           bool // a total overflowed
+	weighted     int  // rows with parameters
+	biggest      int  // row with the most parameters
+	lastWeighted int  // last row of a kind with a chosen width
+}
+
 // Evaluate recomputes r for stack s, reusing r's storage.
 func (r *Result) Evaluate(s *Stack) {
 	r.Rows = r.Rows[:0]
@@ -95,9 +103,10 @@ func (r *Result) Evaluate(s *Stack) {
 		f.ok = false
 		r.inputError(s.Input)
 	}
+	r.tally = tally{biggest: -1, lastWeighted: -1}
 	var root Path
 	for i := range s.Layers {
-		r.layer(&s.Layers[i], root.Append(i+1), &f)
+		r.layer(&s.Layers[i], &root, i+1, &f)
 	}
 	if f.ok {
 		r.Output = f.shape
@@ -117,7 +126,10 @@ func (r *Result) inputError(in Shape) {
 	}
 }
 
-// diag records d and counts it.
+// diag records d and counts it. It stays out of line: diagnostics are the
+// cold path, and inlining the append into every check bloats the hot ones.
+//
+//go:noinline
 func (r *Result) diag(d Diagnostic) {
 	if d.Severity == SevError {
 		r.Errors++
@@ -127,11 +139,26 @@ func (r *Result) diag(d Diagnostic) {
 	r.Diags = append(r.Diags, d)
 }
 
-// layer appends the row of one layer and advances the flow.
-func (r *Result) layer(l *Layer, p Path, f *flow) {
+// layer appends the row of layer l, item number i below parent, and
+// advances the flow.
+func (r *Result) layer(l *Layer, parent *Path, i int, f *flow) {
 	idx := len(r.Rows)
-	r.Rows = append(r.Rows, Row{Path: p, Layer: l, In: f.shape})
+	if idx < cap(r.Rows) {
+		r.Rows = r.Rows[:idx+1]
+	} else {
+		r.Rows = append(r.Rows, Row{})
+	}
 	row := &r.Rows[idx]
+	// The path is built in place: composing it on the stack and copying it
+	// costs a store-forwarding stall per row.
+	row.Path = *parent
+	if n := parent.n; n < MaxDepth {
+		row.Path.seg[n] = uint16(min(i, MaxSegment))
+		row.Path.n = n + 1
+	}
+	row.Layer, row.In, row.Status = l, f.shape, StatusOK
+	row.Out, row.Params, row.Buffers, row.MACs, row.CumParams = Shape{}, 0, 0, 0, 0
+	row.RF, row.Jump = FPair{}, FPair{}
 	if !f.ok {
 		row.Status = StatusUnresolved
 		row.In = Shape{}
@@ -148,49 +175,67 @@ func (r *Result) layer(l *Layer, p Path, f *flow) {
 	}
 	f.shape = row.Out
 	row.RF, row.Jump = f.rf, f.jump
+	r.count(idx, row, l.Kind)
 }
 
-// finish computes totals and the whole-stack warnings.
-func (r *Result) finish() {
-	var ov bool
-	weighted, lastWeighted := 0, -1
-	for i := range r.Rows {
-		row := &r.Rows[i]
-		if row.Status != StatusOK {
-			row.CumParams = r.Totals.Params
-			continue
-		}
-		r.Totals.Params = add(&ov, r.Totals.Params, row.Params)
-		r.Totals.Buffers = add(&ov, r.Totals.Buffers, row.Buffers)
-		r.Totals.MACs = add(&ov, r.Totals.MACs, row.MACs)
-		row.CumParams = r.Totals.Params
+// count adds an OK row to the totals and runs the per-row stack checks. The
+// width check of a weighted row waits until the next weighted row appears,
+// because the last one is exempt.
+func (r *Result) count(idx int, row *Row, k Kind) {
+	t := &r.tally
+	if row.Params|row.Buffers|row.MACs != 0 {
+		r.Totals.Params = add(&t.ov, r.Totals.Params, row.Params)
+		r.Totals.Buffers = add(&t.ov, r.Totals.Buffers, row.Buffers)
+		r.Totals.MACs = add(&t.ov, r.Totals.MACs, row.MACs)
 		if row.Params > 0 {
-			weighted++
-		}
-		if row.Layer.Kind.HasWeights() {
-			lastWeighted = i
+			t.weighted++
+			if t.biggest < 0 || row.Params > r.Rows[t.biggest].Params {
+				t.biggest = idx
+			}
 		}
 	}
-	n := len(r.Diags)
-	if ov {
+	row.CumParams = r.Totals.Params
+	if k.HasWeights() {
+		if t.lastWeighted >= 0 {
+			r.checkWidth(t.lastWeighted)
+		}
+		t.lastWeighted = idx
+	}
+}
+
+// checkWidth warns when a weighted row's width is not a multiple of 8.
+func (r *Result) checkWidth(i int) {
+	row := &r.Rows[i]
+	if row.Out.C%8 == 0 {
+		return
+	}
+	field := "filters"
+	if row.Layer.Kind == KindDense {
+		field = "units"
+	}
+	r.diag(Diagnostic{Severity: SevWarning, Code: WarnChannels8, Row: i, Field: field, A: row.Out.C, B: RoundToMultiple(row.Out.C, 8)})
+}
+
+// finish runs the whole-stack checks and orders the diagnostics by row.
+func (r *Result) finish() {
+	t := &r.tally
+	if r.Errors > 0 {
+		var cum int64
+		for i := range r.Rows {
+			if r.Rows[i].Status == StatusOK {
+				cum = r.Rows[i].CumParams
+			} else {
+				r.Rows[i].CumParams = cum
+			}
+		}
+	}
+	if t.ov {
 		r.diag(Diagnostic{Severity: SevError, Code: ErrOverflow, Row: len(r.Rows) - 1, Field: "stack totals"})
 	}
-	for i := range r.Rows {
-		row := &r.Rows[i]
-		if row.Status != StatusOK {
-			continue
-		}
-		if weighted >= 2 && 2*row.Params > r.Totals.Params {
-			pct := int64(math.Round(100 * float64(row.Params) / float64(r.Totals.Params)))
-			r.diag(Diagnostic{Severity: SevWarning, Code: WarnParamShare, Row: i, Field: "parameters", A: row.Params, B: r.Totals.Params, C: pct})
-		}
-		if k := row.Layer.Kind; k.HasWeights() && i != lastWeighted && row.Out.C%8 != 0 {
-			field := "filters"
-			if k == KindDense {
-				field = "units"
-			}
-			r.diag(Diagnostic{Severity: SevWarning, Code: WarnChannels8, Row: i, Field: field, A: row.Out.C, B: RoundToMultiple(row.Out.C, 8)})
-		}
+	if b := t.biggest; b >= 0 && t.weighted >= 2 && 2*r.Rows[b].Params > r.Totals.Params {
+		p := r.Rows[b].Params
+		pct := int64(math.Round(100 * float64(p) / float64(r.Totals.Params)))
+		r.diag(Diagnostic{Severity: SevWarning, Code: WarnParamShare, Row: b, Field: "parameters", A: p, B: r.Totals.Params, C: pct})
 	}
 	if last := len(r.Rows) - 1; r.Errors == 0 && last >= 0 {
 		rf := r.Rows[last].RF
@@ -200,8 +245,9 @@ func (r *Result) finish() {
 				A: int64(rf.H), B: int64(rf.W), C: in.H, D: in.W})
 		}
 	}
-	if len(r.Diags) > n {
-		slices.SortStableFunc(r.Diags, func(a, b Diagnostic) int { return a.Row - b.Row })
+	byRow := func(a, b Diagnostic) int { return a.Row - b.Row }
+	if !slices.IsSortedFunc(r.Diags, byRow) {
+		slices.SortStableFunc(r.Diags, byRow)
 	}
 }
 

@@ -10,6 +10,7 @@ type calc struct {
 	ov     bool // an overflow-checked product overflowed
 }
 
+//go:noinline
 func (c *calc) fail(d Diagnostic) {
 	d.Severity = SevError
 	d.Row = c.idx
@@ -17,6 +18,7 @@ func (c *calc) fail(d Diagnostic) {
 	c.failed = true
 }
 
+//go:noinline
 func (c *calc) warn(d Diagnostic) {
 	d.Severity = SevWarning
 	d.Row = c.idx
@@ -116,13 +118,19 @@ func (c *calc) groups(cin int64) (int64, bool) {
 func (c *calc) conv(f *flow, transposed bool) {
 	l, in := c.l, c.row.In
 	k, s, d := l.Kernel, l.stride(), l.dilation()
-	if !c.atLeast("filters", l.Filters, 1) || !c.atLeast("kernel", min(k.H, k.W), 1) ||
-		!c.atLeast("stride", min(s.H, s.W), 1) || !c.atLeast("dilation", min(d.H, d.W), 1) {
+	if min(l.Filters, k.H, k.W, s.H, s.W, d.H, d.W) < 1 {
+		// Slow path: name the first field at fault.
+		_ = c.atLeast("filters", l.Filters, 1) && c.atLeast("kernel", min(k.H, k.W), 1) &&
+			c.atLeast("stride", min(s.H, s.W), 1) && c.atLeast("dilation", min(d.H, d.W), 1)
 		return
 	}
-	g, ok := c.groups(in.C)
-	if !ok {
-		return
+	g, cin := int64(1), in.C
+	var ok bool
+	if l.Groups > 1 || l.Depthwise || l.Groups < 0 {
+		if g, ok = c.groups(in.C); !ok {
+			return
+		}
+		cin = in.C / g
 	}
 	var out Shape
 	out.C = l.Filters
@@ -132,11 +140,16 @@ func (c *calc) conv(f *flow, transposed bool) {
 			out.W, ok = c.deconvAxis('w', in.W, k.W, s.W, d.W, l.Pad, l.Pad.Size.W, l.OutPad.W)
 		}
 	} else {
-		n0 := len(c.r.Diags)
-		defer c.mergeAxes(n0)
-		out.H, c.row.PadBefore.H, c.row.PadAfter.H, ok = c.window('h', in.H, k.H, s.H, d.H, l.Pad, l.Pad.Size.H, false, false)
-		if ok {
-			out.W, c.row.PadBefore.W, c.row.PadAfter.W, ok = c.window('w', in.W, k.W, s.W, d.W, l.Pad, l.Pad.Size.W, false, false)
+		out.H, out.W, ok = fastWindow(in, k, s, d, l.Pad)
+		if !ok {
+			n0 := len(c.r.Diags)
+			out.H, _, _, ok = c.window('h', in.H, k.H, s.H, d.H, l.Pad, l.Pad.Size.H, false, false)
+			if ok {
+				out.W, _, _, ok = c.window('w', in.W, k.W, s.W, d.W, l.Pad, l.Pad.Size.W, false, false)
+			}
+			if len(c.r.Diags) > n0 {
+				c.mergeAxes(n0)
+			}
 		}
 	}
 	if !ok {
@@ -145,7 +158,7 @@ func (c *calc) conv(f *flow, transposed bool) {
 	// Weight tensor: filters × (in/groups) × kh × kw for both directions
 	// (PyTorch stores the transposed one as in × (filters/groups) × kh × kw,
 	// the same count).
-	w := mul(&c.ov, mul(&c.ov, mul(&c.ov, l.Filters, in.C/g), k.H), k.W)
+	w := mul(&c.ov, mul(&c.ov, mul(&c.ov, l.Filters, cin), k.H), k.W)
 	params := w
 	if !l.NoBias {
 		params = add(&c.ov, params, l.Filters)
@@ -183,6 +196,30 @@ func ceilDivF(a, b float64) float64 {
 		q++
 	}
 	return q
+}
+
+// fastWindow computes a convolution's output size in the common case:
+// explicit padding, sizes far from overflow, no rows dropped by the stride.
+// It reports clean = false whenever the full check in window might have
+// something to say, and then the caller runs window instead.
+func fastWindow(in Shape, k, s, d Pair, pad Padding) (oh, ow int64, clean bool) {
+	const small = 1 << 24
+	p := pad.Size
+	if pad.Mode != PadExplicit || max(in.H, in.W, k.H, k.W, s.H, s.W, d.H, d.W, p.H, p.W) >= small || min(p.H, p.W) < 0 {
+		return 0, 0, false
+	}
+	spanH := in.H + 2*p.H - d.H*(k.H-1) - 1
+	spanW := in.W + 2*p.W - d.W*(k.W-1) - 1
+	if spanH < 0 || spanW < 0 {
+		return 0, 0, false
+	}
+	if s.H == 1 && s.W == 1 {
+		return spanH + 1, spanW + 1, true
+	}
+	if spanH%s.H > p.H || spanW%s.W > p.W {
+		return 0, 0, false
+	}
+	return spanH/s.H + 1, spanW/s.W + 1, true
 }
 
 // window computes one axis of a sliding-window layer (convolution or
@@ -229,6 +266,8 @@ func (c *calc) window(ax byte, in, k, s, d int64, pad Padding, p int64, ceil, po
 		if (out-1)*s >= in+p {
 			out--
 		}
+	} else if s == 1 {
+		out = span + 1
 	} else {
 		out = span/s + 1
 		if lost := span%s - p; lost > 0 {
@@ -281,10 +320,13 @@ func (c *calc) pool(f *flow) {
 	var out Shape
 	var ok bool
 	out.C = in.C
-	defer c.mergeAxes(len(c.r.Diags))
-	out.H, c.row.PadBefore.H, c.row.PadAfter.H, ok = c.window('h', in.H, k.H, s.H, 1, l.Pad, l.Pad.Size.H, l.Ceil, true)
+	n0 := len(c.r.Diags)
+	out.H, _, _, ok = c.window('h', in.H, k.H, s.H, 1, l.Pad, l.Pad.Size.H, l.Ceil, true)
 	if ok {
-		out.W, c.row.PadBefore.W, c.row.PadAfter.W, ok = c.window('w', in.W, k.W, s.W, 1, l.Pad, l.Pad.Size.W, l.Ceil, true)
+		out.W, _, _, ok = c.window('w', in.W, k.W, s.W, 1, l.Pad, l.Pad.Size.W, l.Ceil, true)
+	}
+	if len(c.r.Diags) > n0 {
+		c.mergeAxes(n0)
 	}
 	if !ok {
 		return

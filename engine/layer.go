@@ -290,3 +290,27 @@ func (l Layer) Normalized() Layer {
 	}
 	return l
 }
+
+// ResolvedPadding returns the padding a convolution or pooling layer applies
+// to an input of size in: before (top, left) and after (bottom, right).
+// "same" pads (o − 1)·s + d(k − 1) + 1 − i in total, the odd one after.
+func (l *Layer) ResolvedPadding(in Shape) (before, after Pair) {
+	switch l.Pad.Mode {
+	case PadValid:
+		return Pair{}, Pair{}
+	case PadExplicit:
+		return l.Pad.Size, l.Pad.Size
+	}
+	s, d := l.stride(), l.dilation()
+	axis := func(i, k, s, d int64) (int64, int64) {
+		if s < 1 || k < 1 || d < 1 {
+			return 0, 0
+		}
+		out := (i + s - 1) / s
+		total := max((out-1)*s+d*(k-1)+1-i, 0)
+		return total / 2, total - total/2
+	}
+	before.H, after.H = axis(in.H, l.Kernel.H, s.H, d.H)
+	before.W, after.W = axis(in.W, l.Kernel.W, s.W, d.W)
+	return before, after
+}

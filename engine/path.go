@@ -3,24 +3,33 @@ package engine
 import "strconv"
 
 // MaxDepth is the deepest nesting a path can record.
-const MaxDepth = 8
+const MaxDepth = 7
+
+// MaxSegment is the largest item number one path segment can hold.
+const MaxSegment = 1<<16 - 1
 
 // Path locates a row in the flattened stack: 1-based item numbers, one per
 // nesting level ("4.2.1" is item 4, repeat 2, layer 1). It is a value type
 // so that evaluating a stack allocates no path strings.
 type Path struct {
 	n   uint8
-	seg [MaxDepth]uint32
+	seg [MaxDepth]uint16
 }
 
 // Append returns the path extended by one 1-based segment. Segments past
-// MaxDepth are dropped.
+// MaxDepth are dropped and numbers past MaxSegment are clamped (stack files
+// are limited well below both).
 func (p Path) Append(i int) Path {
+	p.push(i)
+	return p
+}
+
+// push appends a segment in place.
+func (p *Path) push(i int) {
 	if int(p.n) < MaxDepth {
-		p.seg[p.n] = uint32(i)
+		p.seg[p.n] = uint16(min(max(i, 0), MaxSegment))
 		p.n++
 	}
-	return p
 }
 
 // Len returns the number of segments.

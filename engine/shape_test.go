@@ -143,8 +143,9 @@ func TestSamePadding(t *testing.T) {
 		t.Run(tt.name, func(t *testing.T) {
 			l := Layer{Kind: KindConv, Filters: 8, Kernel: Square(tt.k), Stride: Square(tt.s), Pad: Padding{Mode: PadSame}}
 			r, row := single(Shape{8, tt.i, tt.i}, l)
-			if row.Out.H != tt.o || row.PadBefore.H != tt.before || row.PadAfter.H != tt.after {
-				t.Errorf("out %d pad %d/%d, want %d pad %d/%d", row.Out.H, row.PadBefore.H, row.PadAfter.H, tt.o, tt.before, tt.after)
+			before, after := l.ResolvedPadding(row.In)
+			if row.Out.H != tt.o || before.H != tt.before || after.H != tt.after {
+				t.Errorf("out %d pad %d/%d, want %d pad %d/%d", row.Out.H, before.H, after.H, tt.o, tt.before, tt.after)
 			}
 			if got := hasCode(r, WarnSameAsym); got != tt.asymmetryWarn {
 				t.Errorf("asymmetry warning = %v, want %v", got, tt.asymmetryWarn)

@@ -81,9 +81,9 @@ func (l ErrorList) Unwrap() []error {
 }
 
 // suggest returns the candidate closest to s by edit distance when it is
-// close enough to be a likely typo.
+// close enough to be a likely typo (one edit per four letters, at least one).
 func suggest(s string, candidates []string) string {
-	best, bestD := "", len(s)/2+2
+	best, bestD := "", 2+len(s)/4
 	for _, c := range candidates {
 		if d := editDistance(strings.ToLower(s), c); d < bestD {
 			best, bestD = c, d
@@ -92,24 +92,29 @@ func suggest(s string, candidates []string) string {
 	return best
 }
 
-// editDistance is the Levenshtein distance between a and b.
+// editDistance is the optimal-string-alignment distance between a and b:
+// insertions, deletions, substitutions and swaps of neighbours cost one.
 func editDistance(a, b string) int {
 	ra, rb := []rune(a), []rune(b)
-	prev := make([]int, len(rb)+1)
-	cur := make([]int, len(rb)+1)
-	for j := range prev {
-		prev[j] = j
+	d := make([][]int, len(ra)+1)
+	for i := range d {
+		d[i] = make([]int, len(rb)+1)
+		d[i][0] = i
+	}
+	for j := range d[0] {
+		d[0][j] = j
 	}
 	for i := 1; i <= len(ra); i++ {
-		cur[0] = i
 		for j := 1; j <= len(rb); j++ {
 			cost := 1
 			if ra[i-1] == rb[j-1] {
 				cost = 0
 			}
-			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+cost)
+			d[i][j] = min(d[i-1][j]+1, d[i][j-1]+1, d[i-1][j-1]+cost)
+			if i > 1 && j > 1 && ra[i-1] == rb[j-2] && ra[i-2] == rb[j-1] {
+				d[i][j] = min(d[i][j], d[i-2][j-2]+1)
+			}
 		}
-		prev, cur = cur, prev
 	}
-	return prev[len(rb)]
+	return d[len(ra)][len(rb)]
 }

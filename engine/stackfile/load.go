@@ -77,16 +77,19 @@ func LoadFile(path string) (*engine.Stack, error) {
 	return s, err
 }
 
-var yamlLine = regexp.MustCompile(`line (\d+)`)
+var yamlLine = regexp.MustCompile(`^line (\d+): `)
 
-// syntaxError converts a YAML parser error into an *Error with its line.
+// syntaxError converts a YAML parser error into an *Error with the line the
+// parser names (where the broken construct starts; the column is unknown).
 func syntaxError(err error) *Error {
 	msg := strings.TrimPrefix(err.Error(), "yaml: ")
-	e := &Error{Msg: msg + " (check indentation, colons and brackets)", Err: ErrSyntax}
+	e := &Error{Err: ErrSyntax}
 	if m := yamlLine.FindStringSubmatch(msg); m != nil {
 		e.Line, _ = strconv.Atoi(m[1])
 		e.Col = 1
+		msg = msg[len(m[0]):]
 	}
+	e.Msg = "not valid YAML: " + msg + " (check indentation, colons, quotes and brackets from this line on)"
 	return e
 }
 
