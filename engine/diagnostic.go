@@ -42,6 +42,7 @@ const (
 	ErrSamePad                        // same padding where it is not defined
 	ErrNormGroups                     // channels not divisible by norm groups
 	ErrValue                          // a field is missing or out of range
+	ErrNormSingle                     // instance norm over a single position
 	WarnStrideDrop                    // floor division leaves input rows/columns unused
 	WarnSameAsym                      // same padding needs one extra row/column on one side
 	WarnFinalRF                       // final receptive field smaller than the input
@@ -112,6 +113,8 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("padding \"same\" is not defined for %s; give the padding as a number", d.Field)
 	case ErrNormGroups:
 		return fmt.Sprintf("channels %d are not divisible by norm groups %d; pick groups that divide %d", d.A, d.B, d.A)
+	case ErrNormSingle:
+		return "instance norm over a 1×1 map has a single value per channel to normalise; use it before global pooling, or use batch norm"
 	case ErrValue:
 		return fmt.Sprintf("%s is %d; it must be at least %d", d.Field, d.A, d.B)
 	case WarnStrideDrop:

@@ -46,6 +46,8 @@ func TestDiagnostics(t *testing.T) {
 			ErrPoolPad, 0, "padding 2 is more than half the window 2"},
 		{"group norm groups", Shape{12, 8, 8}, []Layer{{Kind: KindNorm, Norm: NormGroup, NormGroups: 5}},
 			ErrNormGroups, 0, "channels 12 are not divisible by norm groups 5"},
+		{"instance norm on 1×1", Shape{12, 1, 1}, []Layer{{Kind: KindNorm, Norm: NormInstance}},
+			ErrNormSingle, 0, "instance norm over a 1×1 map"},
 		{"same padding on transposed", Shape{4, 4, 4}, []Layer{{Kind: KindDeconv, Filters: 4, Kernel: Square(3), Pad: Padding{Mode: PadSame}}},
 			ErrSamePad, 0, "not defined for a transposed convolution"},
 		{"zero filters", Shape{4, 4, 4}, []Layer{conv(0, 3)},

@@ -256,17 +256,31 @@ func (c *calc) window(ax byte, in, k, s, d int64, pad Padding, p int64, ceil, po
 	if !c.checkOverflow("padding") {
 		return 0, 0, 0, false
 	}
+	span := padded - keff
+	if ceil {
+		// PyTorch's pooling rule: o = ⌊(span + s − 1)/s⌋ + 1 rounding toward
+		// −∞, less one when the last window would start in the padding. A
+		// window may overhang a small input, as long as one output remains.
+		num := span + s - 1
+		out = num / s
+		if num < 0 && num%s != 0 {
+			out--
+		}
+		out++
+		if (out-1)*s >= in+p {
+			out--
+		}
+		if out < 1 {
+			c.fail(Diagnostic{Code: ErrOutputSize, Field: "kernel", Axis: ax, A: out, B: in})
+			return 0, 0, 0, false
+		}
+		return out, p, p, true
+	}
 	if padded < keff {
 		c.fail(Diagnostic{Code: ErrKernelTooLarge, Field: "kernel", Axis: ax, A: keff, B: padded})
 		return 0, 0, 0, false
 	}
-	span := padded - keff
-	if ceil {
-		out = (span+s-1)/s + 1
-		if (out-1)*s >= in+p {
-			out--
-		}
-	} else if s == 1 {
+	if s == 1 {
 		out = span + 1
 	} else {
 		out = span/s + 1
@@ -403,6 +417,11 @@ func (c *calc) norm() {
 		}
 		if in.C%l.NormGroups != 0 {
 			c.fail(Diagnostic{Code: ErrNormGroups, Field: "groups", A: in.C, B: l.NormGroups})
+			return
+		}
+	case NormInstance:
+		if !in.Spatial() {
+			c.fail(Diagnostic{Code: ErrNormSingle, Field: "norm"})
 			return
 		}
 	case NormBatch:

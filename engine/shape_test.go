@@ -57,6 +57,8 @@ func TestPoolArithmetic(t *testing.T) {
 		{"PyTorch MaxPool2d ceil with padding: k2 s2 p1 on 5", PoolMax, 5, 2, 2, 1, true, 3},
 		{"PyTorch AvgPool2d: k2 s2 on 7 (floor)", PoolAvg, 7, 2, 2, 0, false, 3},
 		{"PyTorch AvgPool2d ceil: k2 s2 on 7", PoolAvg, 7, 2, 2, 0, true, 4},
+		{"PyTorch MaxPool2d ceil: window overhangs a 1×1 map (⌊(1 − 2 + 1)/2⌋ + 1 = 1)", PoolMax, 1, 2, 2, 0, true, 1},
+		{"PyTorch AvgPool2d ceil: k3 on 2 (⌊(2 − 3 + 2)/3⌋ + 1 = 1)", PoolAvg, 2, 3, 3, 0, true, 1},
 	}
 	for _, tt := range tests {
 		t.Run(tt.source, func(t *testing.T) {

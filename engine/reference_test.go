@@ -1,0 +1,71 @@
+package engine_test
+
+import (
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"testing"
+
+	"stackfit/engine"
+	"stackfit/engine/stackfile"
+)
+
+// referenceDoc is testdata/reference/shapes.json, written by
+// testdata/reference/torch_reference.py with PyTorch (Debian python3-torch).
+type referenceDoc struct {
+	About string `json:"about"`
+	Cases []struct {
+		Stack  json.RawMessage `json:"stack"`
+		Layers []struct {
+			Out     [3]int64 `json:"out"`
+			Params  int64    `json:"params"`
+			Buffers int64    `json:"buffers"`
+		} `json:"layers"`
+		ErrorAt    *int   `json:"error_at"`
+		TorchError string `json:"torch_error"`
+	} `json:"cases"`
+}
+
+// TestAgainstPyTorch compares the engine, layer by layer, with the shapes,
+// parameter counts and buffer counts PyTorch produced for the same stacks,
+// and checks that the engine reports an error exactly where PyTorch
+// refused a layer.
+func TestAgainstPyTorch(t *testing.T) {
+	data, err := os.ReadFile(filepath.Join("..", "testdata", "reference", "shapes.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var doc referenceDoc
+	if err := json.Unmarshal(data, &doc); err != nil {
+		t.Fatal(err)
+	}
+	if len(doc.Cases) < 35 {
+		t.Fatalf("only %d reference stacks", len(doc.Cases))
+	}
+	for _, c := range doc.Cases {
+		s, err := stackfile.Load(c.Stack)
+		if err != nil {
+			t.Errorf("load reference stack: %v\n%s", err, c.Stack)
+			continue
+		}
+		t.Run(s.Name, func(t *testing.T) {
+			r := engine.Evaluate(s)
+			for i, want := range c.Layers {
+				row := r.Rows[i]
+				got := [3]int64{row.Out.C, row.Out.H, row.Out.W}
+				if row.Status != engine.StatusOK || got != want.Out || row.Params != want.Params || row.Buffers != want.Buffers {
+					t.Errorf("layer %d %s: engine %v %v params %d buffers %d; PyTorch %v params %d buffers %d; diags %v",
+						i+1, engine.Summary(row.Layer), row.Status, got, row.Params, row.Buffers, want.Out, want.Params, want.Buffers, r.DiagsFor(i))
+				}
+			}
+			if c.ErrorAt != nil {
+				i := *c.ErrorAt
+				if r.Rows[i].Status != engine.StatusError {
+					t.Errorf("layer %d %s: PyTorch refused it (%s) but the engine says %v", i+1, engine.Summary(r.Rows[i].Layer), c.TorchError, r.Rows[i].Status)
+				}
+			} else if r.Errors != 0 {
+				t.Errorf("PyTorch ran every layer but the engine reports %v", r.Diags)
+			}
+		})
+	}
+}

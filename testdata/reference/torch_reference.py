@@ -1,0 +1,346 @@
+#!/usr/bin/env python3
+"""Reference shapes and counts for stackfit's engine, computed by PyTorch.
+
+Builds every reference stack as torch.nn layers, runs a dummy input through
+them one layer at a time, and records per layer the output shape, the number
+of trainable parameters and the number of buffer elements. Writes
+shapes.json beside this script; engine/reference_test.go compares the engine
+to it exactly.
+
+Run with Debian's python3-torch:  /usr/bin/python3 testdata/reference/torch_reference.py
+
+Stacks are written in stackfit's stack-file schema (as JSON, which the YAML
+loader reads), so the Go test loads exactly what PyTorch built.
+"""
+import json
+import os
+import random
+import sys
+
+import torch
+import torch.nn as nn
+import torch.nn.functional as F
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+BATCH = 2
+SEED = 20261202
+GENERATED = 60
+
+
+def pair(v):
+    return (v, v) if isinstance(v, int) else tuple(v)
+
+
+class Dense(nn.Module):
+    """stackfit's dense layer: needs a 1×1 map (after flatten or global pooling)."""
+
+    def __init__(self, cin, units, bias):
+        super().__init__()
+        self.fc = nn.Linear(cin, units, bias=bias)
+
+    def forward(self, x):
+        if x.shape[2] != 1 or x.shape[3] != 1:
+            raise ValueError("dense layer reached by a spatial map")
+        return self.fc(x.flatten(1))[:, :, None, None]
+
+
+class Flatten(nn.Module):
+    def forward(self, x):
+        return x.reshape(x.shape[0], -1, 1, 1)
+
+
+class Reshape(nn.Module):
+    def __init__(self, target):
+        super().__init__()
+        self.target = target
+
+    def forward(self, x):
+        return x.reshape(x.shape[0], *self.target)
+
+
+class ChannelLayerNorm(nn.Module):
+    """stackfit's layer norm: over the channels at each position."""
+
+    def __init__(self, c, affine):
+        super().__init__()
+        self.norm = nn.LayerNorm(c, elementwise_affine=affine)
+
+    def forward(self, x):
+        return self.norm(x.permute(0, 2, 3, 1)).permute(0, 3, 1, 2)
+
+
+def build(layer, c):
+    """Returns the torch module for one stack-file layer on c input channels."""
+    if "conv" in layer or "deconv" in layer:
+        transposed = "deconv" in layer
+        filters = layer["deconv" if transposed else "conv"]
+        k = pair(layer["kernel"])
+        s = pair(layer.get("stride", 1))
+        d = pair(layer.get("dilation", 1))
+        p = layer.get("pad", 0)
+        p = p if isinstance(p, str) else pair(p)
+        g = layer.get("groups", 1)
+        g = c if g == "depthwise" else g
+        bias = layer.get("bias", True)
+        if transposed:
+            if isinstance(p, str):
+                raise ValueError("string padding on a transposed convolution")
+            return nn.ConvTranspose2d(c, filters, k, s, p, pair(layer.get("out-pad", 0)), g, bias, d)
+        return nn.Conv2d(c, filters, k, s, p, d, g, bias)
+    if "pool" in layer:
+        k = pair(layer["kernel"])
+        s = pair(layer.get("stride", layer["kernel"]))
+        p = pair(layer.get("pad", 0))
+        ceil = layer.get("ceil", False)
+        if layer["pool"] == "max":
+            return nn.MaxPool2d(k, s, p, ceil_mode=ceil)
+        return nn.AvgPool2d(k, s, p, ceil_mode=ceil)
+    if "global-pool" in layer:
+        return nn.AdaptiveMaxPool2d(1) if layer["global-pool"] == "max" else nn.AdaptiveAvgPool2d(1)
+    if "pool-to" in layer:
+        return nn.AdaptiveAvgPool2d(pair(layer["pool-to"]))
+    if "upsample" in layer:
+        mode = layer.get("mode", "nearest")
+        f = pair(layer["upsample"])
+        return nn.Upsample(scale_factor=(float(f[0]), float(f[1])), mode=mode,
+                           align_corners=False if mode == "bilinear" else None)
+    if "norm" in layer:
+        kind = layer["norm"]
+        if kind == "batch":
+            return nn.BatchNorm2d(c, affine=layer.get("affine", True))
+        if kind == "group":
+            return nn.GroupNorm(layer["groups"], c, affine=layer.get("affine", True))
+        if kind == "instance":
+            return nn.InstanceNorm2d(c, affine=layer.get("affine", False))
+        return ChannelLayerNorm(c, layer.get("affine", True))
+    if "act" in layer:
+        return {
+            "relu": nn.ReLU(),
+            "leaky-relu": nn.LeakyReLU(layer.get("slope", 0.01)),
+            "gelu": nn.GELU(),
+            "silu": nn.SiLU(),
+            "sigmoid": nn.Sigmoid(),
+            "tanh": nn.Tanh(),
+        }[layer["act"]]
+    if "dropout" in layer:
+        return nn.Dropout(layer["dropout"])
+    if layer == "flatten":
+        return Flatten()
+    if "dense" in layer:
+        return Dense(c, layer["dense"], layer.get("bias", True))
+    if "reshape" in layer:
+        return Reshape(tuple(layer["reshape"]))
+    raise ValueError(f"unknown layer {layer}")
+
+
+def run(stack):
+    """Runs the stack layer by layer; returns per-layer rows and the index of
+    the first layer PyTorch refused (None when all ran)."""
+    x = torch.zeros(BATCH, *stack["input"])
+    rows = []
+    for i, layer in enumerate(stack["layers"]):
+        try:
+            m = build(layer, x.shape[1])
+            m.eval()
+            with torch.no_grad():
+                y = m(x)
+            if min(y.shape[1:]) < 1:
+                raise ValueError("empty output")
+        except Exception as e:  # PyTorch's refusal is the reference verdict
+            return rows, i, str(e).splitlines()[0][:200]
+        rows.append({
+            "out": list(y.shape[1:]),
+            "params": sum(p.numel() for p in m.parameters()),
+            "buffers": sum(b.numel() for b in m.buffers()),
+        })
+        x = y
+    return rows, None, None
+
+
+# ---- published stacks (the numbers of their papers are checked elsewhere) --
+
+def vgg(cfg, bn):
+    layers = []
+    for v in cfg:
+        if v == "M":
+            layers.append({"pool": "max", "kernel": 2})
+        else:
+            layers.append({"conv": v, "kernel": 3, "pad": 1})
+            if bn:
+                layers.append({"norm": "batch"})
+            layers.append({"act": "relu"})
+    layers += [{"pool-to": 7}, "flatten", {"dense": 4096}, {"act": "relu"}, {"dropout": 0.5},
+               {"dense": 4096}, {"act": "relu"}, {"dropout": 0.5}, {"dense": 1000}]
+    return layers
+
+
+def published():
+    a = [64, "M", 128, "M", 256, 256, "M", 512, 512, "M", 512, 512, "M"]
+    d = [64, 64, "M", 128, 128, "M", 256, 256, 256, "M", 512, 512, 512, "M", 512, 512, 512, "M"]
+    yield "VGG-11 (torchvision layout)", [3, 224, 224], vgg(a, False)
+    yield "VGG-16 with batch norm (torchvision layout)", [3, 224, 224], vgg(d, True)
+    yield "AlexNet (torchvision layout)", [3, 224, 224], [
+        {"conv": 64, "kernel": 11, "stride": 4, "pad": 2}, {"act": "relu"}, {"pool": "max", "kernel": 3, "stride": 2},
+        {"conv": 192, "kernel": 5, "pad": 2}, {"act": "relu"}, {"pool": "max", "kernel": 3, "stride": 2},
+        {"conv": 384, "kernel": 3, "pad": 1}, {"act": "relu"}, {"conv": 256, "kernel": 3, "pad": 1}, {"act": "relu"},
+        {"conv": 256, "kernel": 3, "pad": 1}, {"act": "relu"}, {"pool": "max", "kernel": 3, "stride": 2},
+        {"pool-to": 6}, "flatten", {"dropout": 0.5}, {"dense": 4096}, {"act": "relu"}, {"dropout": 0.5},
+        {"dense": 4096}, {"act": "relu"}, {"dense": 1000}]
+    yield "LeNet-5 (plain pooling, full C3)", [1, 32, 32], [
+        {"conv": 6, "kernel": 5}, {"act": "tanh"}, {"pool": "avg", "kernel": 2}, {"conv": 16, "kernel": 5},
+        {"act": "tanh"}, {"pool": "avg", "kernel": 2}, {"conv": 120, "kernel": 5}, {"act": "tanh"},
+        {"dense": 84}, {"act": "tanh"}, {"dense": 10}]
+    yield "DCGAN generator (Radford et al. 2015, PyTorch k5 s2 p2 op1 steps)", [100, 1, 1], [
+        {"dense": 4 * 4 * 1024}, {"reshape": [1024, 4, 4]}, {"norm": "batch"}, {"act": "relu"},
+        {"deconv": 512, "kernel": 5, "stride": 2, "pad": 2, "out-pad": 1}, {"norm": "batch"}, {"act": "relu"},
+        {"deconv": 256, "kernel": 5, "stride": 2, "pad": 2, "out-pad": 1}, {"norm": "batch"}, {"act": "relu"},
+        {"deconv": 128, "kernel": 5, "stride": 2, "pad": 2, "out-pad": 1}, {"norm": "batch"}, {"act": "relu"},
+        {"deconv": 3, "kernel": 5, "stride": 2, "pad": 2, "out-pad": 1}, {"act": "tanh"}]
+
+
+# ---- generated stacks: every kind, odd sizes, some PyTorch must refuse ----
+
+def maybe_pair(rng, lo, hi):
+    a = rng.randint(lo, hi)
+    return a if rng.random() < 0.6 else [a, rng.randint(lo, hi)]
+
+
+def random_layer(rng, c, kind):
+    if kind in ("conv", "deconv"):
+        f = rng.choice([1, 3, 6, 8, 12, 16, 24, 30, 32])
+        l = {kind: f, "kernel": maybe_pair(rng, 1, 7)}
+        if rng.random() < 0.5:
+            l["stride"] = maybe_pair(rng, 1, 3)
+        r = rng.random()
+        if r < 0.15 and kind == "conv" and "stride" not in l:
+            l["pad"] = rng.choice(["same", "valid"])
+        elif r < 0.7:
+            l["pad"] = maybe_pair(rng, 0, 3)
+        if rng.random() < 0.25:
+            l["dilation"] = maybe_pair(rng, 1, 3)
+        if rng.random() < 0.25:
+            g = rng.choice([2, 3, 4])
+            if rng.random() < 0.5:
+                l["groups"] = "depthwise"
+                l[kind] = c * rng.choice([1, 2])
+            else:
+                l["groups"] = g
+        if rng.random() < 0.3:
+            l["bias"] = False
+        if kind == "deconv" and rng.random() < 0.4:
+            l["out-pad"] = maybe_pair(rng, 0, 1)
+        return l
+    if kind == "pool":
+        l = {"pool": rng.choice(["max", "avg"]), "kernel": maybe_pair(rng, 1, 4)}
+        if rng.random() < 0.5:
+            l["stride"] = maybe_pair(rng, 1, 3)
+        if rng.random() < 0.4:
+            l["pad"] = rng.randint(0, 2)
+        if rng.random() < 0.4:
+            l["ceil"] = True
+        return l
+    if kind == "global-pool":
+        return {"global-pool": rng.choice(["avg", "max"])}
+    if kind == "pool-to":
+        return {"pool-to": maybe_pair(rng, 1, 9)}
+    if kind == "upsample":
+        l = {"upsample": maybe_pair(rng, 1, 3)}
+        if rng.random() < 0.5:
+            l["mode"] = "bilinear"
+        return l
+    if kind == "norm":
+        n = rng.choice(["batch", "group", "instance", "layer"])
+        l = {"norm": n}
+        if n == "group":
+            l["groups"] = rng.choice([1, 2, 3, 4, 8])
+        if rng.random() < 0.3:
+            l["affine"] = rng.random() < 0.5
+        return l
+    if kind == "act":
+        a = rng.choice(["relu", "leaky-relu", "gelu", "silu", "sigmoid", "tanh"])
+        l = {"act": a}
+        if a == "leaky-relu" and rng.random() < 0.5:
+            l["slope"] = 0.2
+        return l
+    if kind == "dropout":
+        return {"dropout": rng.choice([0.1, 0.25, 0.5])}
+    if kind == "flatten":
+        return "flatten"
+    if kind == "dense":
+        l = {"dense": rng.choice([5, 10, 16, 33, 64])}
+        if rng.random() < 0.3:
+            l["bias"] = False
+        return l
+    if kind == "reshape":
+        return None  # filled in by the caller, which knows the element count
+    raise ValueError(kind)
+
+
+KINDS = ["conv", "deconv", "pool", "global-pool", "pool-to", "upsample", "norm", "act",
+         "dropout", "flatten", "dense", "reshape"]
+
+
+def generated(rng, n):
+    for i in range(n):
+        c, h, w = rng.choice([1, 3, 4, 6, 8, 16]), rng.randint(5, 67), rng.randint(5, 67)
+        layers = []
+        x = torch.zeros(1, c, h, w)
+        # The first layers of each case favour one kind in turn, so every kind appears.
+        focus = KINDS[i % len(KINDS)]
+        for j in range(rng.randint(4, 12)):
+            kind = focus if j in (1, 3) else rng.choice(KINDS)
+            if kind in ("dense", "reshape") and rng.random() < 0.85:
+                layers.append("flatten")
+                x = x.reshape(1, -1, 1, 1)
+            if kind == "reshape":
+                n_el = x.numel()
+                # A valid reshape most of the time; now and then a count PyTorch refuses.
+                divs = [d for d in range(1, 9) if n_el % (d * d) == 0]
+                d = rng.choice(divs)
+                tgt = [n_el // (d * d), d, d]
+                if rng.random() < 0.2:
+                    tgt[0] += 1
+                layer = {"reshape": tgt}
+            else:
+                layer = random_layer(rng, x.shape[1], kind)
+            layers.append(layer)
+            try:
+                m = build(layer, x.shape[1]).eval()
+                with torch.no_grad():
+                    x = m(torch.cat([x, x]))[:1]
+                if min(x.shape[1:]) < 1:
+                    break
+            except Exception:
+                break  # the case ends on the layer PyTorch refuses
+        yield f"generated {i + 1:02d} ({focus})", [c, h, w], layers
+
+
+def main():
+    torch.manual_seed(0)
+    rng = random.Random(SEED)
+    cases = []
+    for name, inp, layers in list(published()) + list(generated(rng, GENERATED)):
+        stack = {"stackfit": 1, "name": name, "input": inp, "layers": layers}
+        rows, error_at, message = run(stack)
+        cases.append({"stack": stack, "layers": rows, "error_at": error_at, "torch_error": message})
+    seen = {k: 0 for k in KINDS}
+    for case in cases:
+        for layer in case["stack"]["layers"]:
+            seen["flatten" if layer == "flatten" else next(k for k in KINDS if k in layer)] += 1
+    missing = [k for k, n in seen.items() if n == 0]
+    if missing:
+        sys.exit(f"kinds never generated: {missing}")
+    doc = {
+        "about": "Per-layer output shapes, parameters and buffer elements from PyTorch "
+                 + torch.__version__ + "; regenerate with /usr/bin/python3 testdata/reference/torch_reference.py",
+        "cases": cases,
+    }
+    with open(os.path.join(HERE, "shapes.json"), "w") as f:
+        json.dump(doc, f, indent=1)
+        f.write("\n")
+    refused = sum(1 for c in cases if c["error_at"] is not None)
+    print(f"{len(cases)} stacks, {sum(len(c['layers']) for c in cases)} layers, {refused} refused by PyTorch; kinds: {seen}")
+
+
+if __name__ == "__main__":
+    main()
