@@ -1,0 +1,110 @@
+package cli
+
+import (
+	"bytes"
+	"encoding/json"
+	"flag"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+var update = flag.Bool("update", false, "rewrite golden files")
+
+func run(t *testing.T, stdin string, args ...string) (string, string, int) {
+	t.Helper()
+	var out, errb bytes.Buffer
+	code := Run(args, IO{In: strings.NewReader(stdin), Out: &out, Err: &errb})
+	return out.String(), errb.String(), code
+}
+
+// golden compares got with testdata/name, rewriting it under -update.
+func golden(t *testing.T, name, got string) {
+	t.Helper()
+	p := filepath.Join("testdata", name)
+	if *update {
+		os.MkdirAll("testdata", 0o755)
+		if err := os.WriteFile(p, []byte(got), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, err := os.ReadFile(p)
+	if err != nil {
+		t.Fatalf("%v (run go test ./ui/cli -update to create it)", err)
+	}
+	if got != string(want) {
+		t.Errorf("output differs from %s:\n%s", p, got)
+	}
+}
+
+const example = "../../engine/examples/fruit-grader.yaml"
+
+func TestNoArgsShowsExample(t *testing.T) {
+	out, _, code := run(t, "")
+	if code != ExitOK {
+		t.Fatalf("exit %d", code)
+	}
+	golden(t, "example.txt", out)
+}
+
+func TestReportJSON(t *testing.T) {
+	out, errs, code := run(t, "", "report", example, "--format", "json")
+	if code != ExitOK {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	golden(t, "example.json", out)
+	var doc map[string]any
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	for _, k := range []string{"name", "input", "layers", "totals"} {
+		if _, ok := doc[k]; !ok {
+			t.Errorf("JSON lacks %q", k)
+		}
+	}
+}
+
+func TestExitCodes(t *testing.T) {
+	bad := "stackfit: 1\ninput: [3, 8, 8]\nlayers: [{conv: 8, kernel: 9}]\n"
+	tests := []struct {
+		name  string
+		stdin string
+		args  []string
+		code  int
+		err   string
+	}{
+		{"clean file", "", []string{"report", example}, ExitOK, ""},
+		{"stack with errors", bad, []string{"report", "-", "--format", "json"}, ExitProblems, ""},
+		{"missing file", "", []string{"report", "nope.yaml"}, ExitUsage, "open stack file"},
+		{"bad format", "", []string{"report", example, "--format", "xml"}, ExitUsage, `--format "xml" is not known`},
+		{"no file", "", []string{"report"}, ExitUsage, "give exactly one stack file"},
+		{"unknown flag", "", []string{"report", example, "--colour"}, ExitUsage, "flag provided but not defined"},
+		{"unknown command", "", []string{"reprot"}, ExitUsage, `unknown command "reprot"`},
+		{"unreadable stdin", "input: [", []string{"report", "-"}, ExitUsage, "<stdin>:1:1: not valid YAML"},
+		{"help", "", []string{"--help"}, ExitOK, ""},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			_, errs, code := run(t, tt.stdin, tt.args...)
+			if code != tt.code {
+				t.Errorf("exit %d, want %d (stderr %q)", code, tt.code, errs)
+			}
+			if !strings.Contains(errs, tt.err) {
+				t.Errorf("stderr %q lacks %q", errs, tt.err)
+			}
+		})
+	}
+}
+
+func TestReportToFile(t *testing.T) {
+	p := filepath.Join(t.TempDir(), "r.json")
+	_, errs, code := run(t, "", "report", "-o", p, example, "--format=json")
+	if code != ExitOK {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	data, err := os.ReadFile(p)
+	if err != nil || !json.Valid(data) {
+		t.Fatalf("report file: %v", err)
+	}
+}
