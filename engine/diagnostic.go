@@ -13,12 +13,16 @@ type Severity uint8
 const (
 	SevWarning Severity = iota
 	SevError
+	SevInfo // a fact worth showing, such as how much a merge crops
 )
 
-// String returns "warning" or "error".
+// String returns "warning", "error" or "note".
 func (s Severity) String() string {
-	if s == SevError {
+	switch s {
+	case SevError:
 		return "error"
+	case SevInfo:
+		return "note"
 	}
 	return "warning"
 }
@@ -43,15 +47,26 @@ const (
 	ErrNormGroups                     // channels not divisible by norm groups
 	ErrValue                          // a field is missing or out of range
 	ErrNormSingle                     // instance norm over a single position
+	ErrTooManyRows                    // repeats expand the stack past MaxRows
+	ErrMergeUnknown                   // merge names no layer
+	ErrMergeLater                     // merge names a layer that comes later
+	ErrMergeShape                     // merged maps differ in height or width
+	ErrAddChannels                    // added maps differ in channels
+	ErrNameTwice                      // two layers share a name
+	ErrProjection                     // a residual block's shortcut cannot be built
 	WarnStrideDrop                    // floor division leaves input rows/columns unused
 	WarnSameAsym                      // same padding needs one extra row/column on one side
 	WarnFinalRF                       // final receptive field smaller than the input
 	WarnParamShare                    // one layer holds over half of all parameters
 	WarnChannels8                     // channel count not a multiple of 8
+	WarnMergeJump                     // merged maps have different effective strides
+	InfoCrop                          // a merge center-crops a map
 )
 
 // Diagnostic is one problem found in a stack, tied to a row of the result.
+// Name carries a layer name the message needs (merges).
 type Diagnostic struct {
+	Name     string
 	Severity Severity
 	Code     Code
 	Row      int    // index into Result.Rows
@@ -115,6 +130,24 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("channels %d are not divisible by norm groups %d; pick groups that divide %d", d.A, d.B, d.A)
 	case ErrNormSingle:
 		return "instance norm over a 1×1 map has a single value per channel to normalise; use it before global pooling, or use batch norm"
+	case ErrTooManyRows:
+		return fmt.Sprintf("the repeats expand the stack to %d layers; the limit is %d — lower a repeat count", d.A, d.B)
+	case ErrMergeUnknown:
+		return fmt.Sprintf("no layer or block is named %q; name the layer to merge with name: %s", d.Name, d.Name)
+	case ErrMergeLater:
+		return fmt.Sprintf("%q comes later in the stack; a merge can only use an earlier output", d.Name)
+	case ErrMergeShape:
+		return fmt.Sprintf("%s is %d×%d but the map here is %d×%d; add crop: true to center-crop the larger one, or change the sizes", mergeWhat(d.Name), d.A, d.B, d.C, d.D)
+	case ErrAddChannels:
+		return fmt.Sprintf("%s has %d channels but the map here has %d; an addition needs equal channels (concat joins different ones)", mergeWhat(d.Name), d.A, d.B)
+	case ErrNameTwice:
+		return fmt.Sprintf("name %q is already used by layer %s; names must be unique", d.Name, d.Field)
+	case ErrProjection:
+		return fmt.Sprintf("the block's output %d×%d is larger than its input %d×%d, so no strided 1×1 shortcut fits; remove residual or keep the size", d.A, d.B, d.C, d.D)
+	case WarnMergeJump:
+		return fmt.Sprintf("%s has an effective stride of %g input pixels, the map here %g; the merged positions do not line up", mergeWhat(d.Name), float64(d.A)/1e6, float64(d.B)/1e6)
+	case InfoCrop:
+		return fmt.Sprintf("center-crops %s from %d×%d to %d×%d (%d rows and %d columns removed, split between the two sides)", cropWhat(d.Field, d.Name), d.A, d.B, d.C, d.D, d.A-d.C, d.B-d.D)
 	case ErrValue:
 		return fmt.Sprintf("%s is %d; it must be at least %d", d.Field, d.A, d.B)
 	case WarnStrideDrop:
@@ -130,4 +163,20 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("%s %d is not a multiple of 8 (common practice for tensor-core efficiency); try %d", d.Field, d.A, d.B)
 	}
 	return "unknown problem"
+}
+
+// mergeWhat names the other input of a merge in messages.
+func mergeWhat(name string) string {
+	if name == "" {
+		return "the shortcut"
+	}
+	return fmt.Sprintf("%q", name)
+}
+
+// cropWhat names the map a merge crops.
+func cropWhat(which, name string) string {
+	if which == "here" {
+		return "the map here"
+	}
+	return mergeWhat(name)
 }

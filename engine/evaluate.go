@@ -27,6 +27,27 @@ func (s Status) String() string {
 	return "ok"
 }
 
+// Role says where a row comes from.
+type Role uint8
+
+// Row roles.
+const (
+	RoleLayer    Role = iota // a layer written in the stack
+	RoleShortcut             // a projection shortcut a residual block adds
+	RoleResidual             // the addition that closes a residual repeat
+	RolePostAct              // the activation after that addition
+)
+
+var roleNames = [...]string{"layer", "shortcut", "residual-add", "after-add"}
+
+// String returns the role's report name.
+func (r Role) String() string {
+	if int(r) < len(roleNames) {
+		return roleNames[r]
+	}
+	return "layer"
+}
+
 // FPair is a per-axis real number (receptive fields and jumps become
 // fractional after upsampling).
 type FPair struct {
@@ -39,6 +60,8 @@ type Row struct {
 	Layer     *Layer // the layer in the evaluated stack
 	In, Out   Shape  // per-sample input and output shapes
 	Status    Status
+	Role      Role  // what the row is: a written layer or one a residual block adds
+	Unstrided bool  // a later repeat of a block: strides inside count as 1
 	Params    int64 // trainable parameters
 	Buffers   int64 // non-trainable state (running statistics)
 	MACs      int64 // multiply-accumulates per sample
@@ -63,9 +86,18 @@ type Result struct {
 	Totals   Totals
 	Errors   int
 	Warnings int
+	Notes    int // diagnostics of SevInfo
 
 	tally tally
+	stack *Stack
+	taps  map[string]tap // named outputs seen so far
+	synth synthPool      // layers residual blocks add, reused between evaluations
+
+	residualTap flow // the shortcut's output, for the residual addition row
 }
+
+// MaxRows bounds how many rows a stack may expand to (repeats multiply).
+const MaxRows = 1 << 20
 
 // Evaluate computes every row of s into a new Result.
 func Evaluate(s *Stack) *Result {
@@ -95,8 +127,15 @@ func (r *Result) Evaluate(s *Stack) {
 	r.Rows = r.Rows[:0]
 	r.Diags = r.Diags[:0]
 	r.Totals = Totals{}
-	r.Errors, r.Warnings = 0, 0
+	r.Errors, r.Warnings, r.Notes = 0, 0, 0
 	r.Input = s.Input
+	r.stack = s
+	r.synth.reset()
+	if r.taps == nil {
+		r.taps = make(map[string]tap)
+	} else {
+		clear(r.taps)
+	}
 	r.Output = Shape{}
 	f := flow{shape: s.Input, rf: FPair{1, 1}, jump: FPair{1, 1}, ok: true}
 	if !s.Input.Valid() {
@@ -104,10 +143,13 @@ func (r *Result) Evaluate(s *Stack) {
 		r.inputError(s.Input)
 	}
 	r.tally = tally{biggest: -1, lastWeighted: -1}
-	var root Path
-	for i := range s.Layers {
-		r.layer(&s.Layers[i], &root, i+1, &f)
+	if n := countRows(s.Layers, 0); n > MaxRows {
+		r.diag(Diagnostic{Severity: SevError, Code: ErrTooManyRows, Row: -1, Field: "repeat", A: n, B: MaxRows})
+		r.finish()
+		return
 	}
+	var root Path
+	r.items(s.Layers, &root, &f, false)
 	if f.ok {
 		r.Output = f.shape
 	}
@@ -131,17 +173,35 @@ func (r *Result) inputError(in Shape) {
 //
 //go:noinline
 func (r *Result) diag(d Diagnostic) {
-	if d.Severity == SevError {
+	switch d.Severity {
+	case SevError:
 		r.Errors++
-	} else {
+	case SevWarning:
 		r.Warnings++
+	default:
+		r.Notes++
 	}
 	r.Diags = append(r.Diags, d)
 }
 
-// layer appends the row of layer l, item number i below parent, and
-// advances the flow.
-func (r *Result) layer(l *Layer, parent *Path, i int, f *flow) {
+// items evaluates a list of layers (the stack, or one repeat of a block).
+func (r *Result) items(ls []Layer, parent *Path, f *flow, unstrided bool) {
+	for i := range ls {
+		l := &ls[i]
+		if l.Kind == KindBlock {
+			r.block(l, parent, i+1, f, unstrided)
+		} else {
+			r.layer(l, parent, seg(i+1), f, unstrided, RoleLayer)
+		}
+		if l.Name != "" {
+			r.setTap(l, f)
+		}
+	}
+}
+
+// layer appends the row of layer l, segment sg below parent, and advances
+// the flow.
+func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided bool, role Role) {
 	idx := len(r.Rows)
 	if idx < cap(r.Rows) {
 		r.Rows = r.Rows[:idx+1]
@@ -153,10 +213,10 @@ func (r *Result) layer(l *Layer, parent *Path, i int, f *flow) {
 	// costs a store-forwarding stall per row.
 	row.Path = *parent
 	if n := parent.n; n < MaxDepth {
-		row.Path.seg[n] = uint16(min(i, MaxSegment))
+		row.Path.seg[n] = sg
 		row.Path.n = n + 1
 	}
-	row.Layer, row.In, row.Status = l, f.shape, StatusOK
+	row.Layer, row.In, row.Status, row.Role, row.Unstrided = l, f.shape, StatusOK, role, unstrided
 	row.Out, row.Params, row.Buffers, row.MACs, row.CumParams = Shape{}, 0, 0, 0, 0
 	row.RF, row.Jump = FPair{}, FPair{}
 	if !f.ok {
@@ -164,8 +224,13 @@ func (r *Result) layer(l *Layer, parent *Path, i int, f *flow) {
 		row.In = Shape{}
 		return
 	}
-	c := calc{r: r, idx: idx, row: row, l: l}
+	c := calc{r: r, idx: idx, row: row, l: l, unstrided: unstrided}
 	c.run(f)
+	if c.unresolved {
+		row.Status = StatusUnresolved
+		f.ok = false
+		return
+	}
 	if c.failed {
 		row.Status = StatusError
 		row.Out = Shape{}
@@ -175,13 +240,13 @@ func (r *Result) layer(l *Layer, parent *Path, i int, f *flow) {
 	}
 	f.shape = row.Out
 	row.RF, row.Jump = f.rf, f.jump
-	r.count(idx, row, l.Kind)
+	r.count(idx, row, l.Kind, role)
 }
 
 // count adds an OK row to the totals and runs the per-row stack checks. The
 // width check of a weighted row waits until the next weighted row appears,
 // because the last one is exempt.
-func (r *Result) count(idx int, row *Row, k Kind) {
+func (r *Result) count(idx int, row *Row, k Kind, role Role) {
 	t := &r.tally
 	if row.Params|row.Buffers|row.MACs != 0 {
 		r.Totals.Params = add(&t.ov, r.Totals.Params, row.Params)
@@ -195,7 +260,7 @@ func (r *Result) count(idx int, row *Row, k Kind) {
 		}
 	}
 	row.CumParams = r.Totals.Params
-	if k.HasWeights() {
+	if k.HasWeights() && role == RoleLayer {
 		if t.lastWeighted >= 0 {
 			r.checkWidth(t.lastWeighted)
 		}

@@ -2,12 +2,22 @@ package engine
 
 // calc computes one layer's row; any error it records marks the row failed.
 type calc struct {
-	r      *Result
-	idx    int
-	row    *Row
-	l      *Layer
-	failed bool
-	ov     bool // an overflow-checked product overflowed
+	r          *Result
+	idx        int
+	row        *Row
+	l          *Layer
+	unstrided  bool // later repeat of a block: strides count as 1
+	failed     bool
+	unresolved bool // a merged input is unknown
+	ov         bool // an overflow-checked product overflowed
+}
+
+// stride returns the layer's effective stride in this row.
+func (c *calc) stride() Pair {
+	if c.unstrided {
+		return Square(1)
+	}
+	return c.l.stride()
 }
 
 //go:noinline
@@ -78,6 +88,8 @@ func (c *calc) run(f *flow) {
 		c.dense()
 	case KindReshape:
 		c.reshape()
+	case KindConcat, KindAdd:
+		c.merge(f)
 	default:
 		c.fail(Diagnostic{Code: ErrValue, Field: "kind", A: int64(c.l.Kind), B: 1})
 	}
@@ -117,7 +129,7 @@ func (c *calc) groups(cin int64) (int64, bool) {
 // conv handles convolution and transposed convolution.
 func (c *calc) conv(f *flow, transposed bool) {
 	l, in := c.l, c.row.In
-	k, s, d := l.Kernel, l.stride(), l.dilation()
+	k, s, d := l.Kernel, c.stride(), l.dilation()
 	if min(l.Filters, k.H, k.W, s.H, s.W, d.H, d.W) < 1 {
 		// Slow path: name the first field at fault.
 		_ = c.atLeast("filters", l.Filters, 1) && c.atLeast("kernel", min(k.H, k.W), 1) &&
@@ -284,7 +296,7 @@ func (c *calc) window(ax byte, in, k, s, d int64, pad Padding, p int64, ceil, po
 		out = span + 1
 	} else {
 		out = span/s + 1
-		if lost := span%s - p; lost > 0 {
+		if lost := span%s - p; lost > 0 && c.row.Role != RoleShortcut {
 			c.warn(Diagnostic{Code: WarnStrideDrop, Field: "stride", Axis: ax, A: s, B: lost, C: in, D: p, E: keff})
 		}
 	}
@@ -323,7 +335,7 @@ func (c *calc) deconvAxis(ax byte, in, k, s, d int64, pad Padding, p, op int64) 
 
 func (c *calc) pool(f *flow) {
 	l, in := c.l, c.row.In
-	k, s := l.Kernel, l.stride()
+	k, s := l.Kernel, c.stride()
 	if !c.atLeast("kernel", min(k.H, k.W), 1) || !c.atLeast("stride", min(s.H, s.W), 1) {
 		return
 	}

@@ -18,6 +18,9 @@ const (
 	KindFlatten         // C×H×W → C·H·W×1×1
 	KindDense           // fully connected layer
 	KindReshape         // reinterpret the elements as a new C×H×W
+	KindBlock           // a group of layers, repeated, optionally residual
+	KindConcat          // channel-wise concatenation with a named earlier output
+	KindAdd             // element-wise sum with a named earlier output
 	kindCount
 )
 
@@ -35,6 +38,9 @@ var kindNames = [kindCount]string{
 	KindFlatten:    "flatten",
 	KindDense:      "dense",
 	KindReshape:    "reshape",
+	KindBlock:      "block",
+	KindConcat:     "concat",
+	KindAdd:        "add",
 }
 
 // String returns the kind's stack-file key.
@@ -235,6 +241,25 @@ type Layer struct {
 	Rate float64
 	// reshape: target shape.
 	Target Shape
+
+	// block: the layers of one repeat, written as the first repeat.
+	Body []Layer
+	// block: number of repeats; zero means 1.
+	Repeat int64
+	// block: strides of the body apply to every repeat, not just the first.
+	AllStrides bool
+	// block: add the block's input to the output of each repeat.
+	Residual bool
+	// block: leave out the batch norm after a projection shortcut.
+	NoShortcutNorm bool
+	// block: activation applied after the residual addition, if HasPostAct.
+	PostAct    ActKind
+	HasPostAct bool
+
+	// concat, add: name of the earlier layer or block whose output is merged.
+	From string
+	// concat, add: center-crop the larger map to the smaller one's size.
+	Crop bool
 }
 
 // stride returns the effective stride.
@@ -265,6 +290,9 @@ func (l *Layer) EffectiveStride() Pair { return l.stride() }
 // EffectiveDilation returns the layer's dilation with defaults applied.
 func (l *Layer) EffectiveDilation() Pair { return l.dilation() }
 
+// IsMerge reports whether the kind combines the flow with a named output.
+func (k Kind) IsMerge() bool { return k == KindConcat || k == KindAdd }
+
 // HasWeights reports whether the kind carries a weight matrix whose width
 // the user chooses (conv, deconv, dense).
 func (k Kind) HasWeights() bool { return k == KindConv || k == KindDeconv || k == KindDense }
@@ -287,6 +315,9 @@ func (l Layer) Normalized() Layer {
 	}
 	if l.Pad.Mode != PadExplicit {
 		l.Pad.Size = Pair{}
+	}
+	if l.Kind == KindBlock && l.Repeat < 1 {
+		l.Repeat = 1
 	}
 	return l
 }

@@ -6,7 +6,18 @@ import "strconv"
 const MaxDepth = 7
 
 // MaxSegment is the largest item number one path segment can hold.
-const MaxSegment = 1<<16 - 1
+const MaxSegment = 0xFFEF
+
+// Segments that name the rows a residual block adds after each repeat.
+const (
+	SegShortcut     = 0xFFF1 // projection convolution, shown "s1"
+	SegShortcutNorm = 0xFFF2 // batch norm after it, shown "s2"
+	SegResidualAdd  = 0xFFFA // the addition, shown "add"
+	SegPostAct      = 0xFFFB // activation after the addition, shown "act"
+)
+
+// seg clamps a 1-based item number into a regular segment.
+func seg(i int) uint16 { return uint16(min(max(i, 0), MaxSegment)) }
 
 // Path locates a row in the flattened stack: 1-based item numbers, one per
 // nesting level ("4.2.1" is item 4, repeat 2, layer 1). It is a value type
@@ -27,13 +38,43 @@ func (p Path) Append(i int) Path {
 // push appends a segment in place.
 func (p *Path) push(i int) {
 	if int(p.n) < MaxDepth {
-		p.seg[p.n] = uint16(min(max(i, 0), MaxSegment))
+		p.seg[p.n] = seg(i)
 		p.n++
 	}
 }
 
 // Len returns the number of segments.
 func (p Path) Len() int { return int(p.n) }
+
+// pushSeg appends a raw segment (regular or special) in place.
+func (p *Path) pushSeg(v uint16) {
+	if int(p.n) < MaxDepth {
+		p.seg[p.n] = v
+		p.n++
+	}
+}
+
+// HasPrefix reports whether q is p itself or lies inside it.
+func (p Path) HasPrefix(q Path) bool {
+	if q.n > p.n {
+		return false
+	}
+	for i := 0; i < int(q.n); i++ {
+		if p.seg[i] != q.seg[i] {
+			return false
+		}
+	}
+	return true
+}
+
+// Parent returns the path without its last segment.
+func (p Path) Parent() Path {
+	if p.n > 0 {
+		p.n--
+		p.seg[p.n] = 0
+	}
+	return p
+}
 
 // At returns segment i (0-based).
 func (p Path) At(i int) int { return int(p.seg[i]) }
@@ -46,7 +87,18 @@ func (p Path) String() string {
 		if i > 0 {
 			b = append(b, '.')
 		}
-		b = strconv.AppendUint(b, uint64(p.seg[i]), 10)
+		switch v := p.seg[i]; v {
+		case SegShortcut:
+			b = append(b, "s1"...)
+		case SegShortcutNorm:
+			b = append(b, "s2"...)
+		case SegResidualAdd:
+			b = append(b, "add"...)
+		case SegPostAct:
+			b = append(b, "act"...)
+		default:
+			b = strconv.AppendUint(b, uint64(v), 10)
+		}
 	}
 	return string(b)
 }

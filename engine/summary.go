@@ -41,6 +41,24 @@ func Summary(l *Layer) string {
 		}
 	case KindDropout:
 		word(strconv.FormatFloat(l.Rate, 'g', -1, 64))
+	case KindBlock:
+		word("×" + strconv.FormatInt(max(l.Repeat, 1), 10))
+		if l.Residual {
+			word("residual")
+			if l.HasPostAct {
+				word("then " + l.PostAct.String())
+			}
+		}
+		if l.AllStrides {
+			word("strides-all")
+		}
+	case KindConcat, KindAdd:
+		if l.From != "" {
+			word(l.From)
+		}
+		if l.Crop {
+			word("crop")
+		}
 	case KindReshape:
 		word(strconv.FormatInt(l.Target.C, 10) + "x" + strconv.FormatInt(l.Target.H, 10) + "x" + strconv.FormatInt(l.Target.W, 10))
 	}
@@ -83,6 +101,23 @@ func Summary(l *Layer) string {
 		word("nobias")
 	}
 	return b.String()
+}
+
+// RowSummary is Summary of the layer as the row computed it: in later
+// repeats of a block, strides count as 1.
+func RowSummary(r *Row) string {
+	if r.Layer == nil {
+		return ""
+	}
+	if r.Role == RoleResidual {
+		return "add shortcut"
+	}
+	if !r.Unstrided {
+		return Summary(r.Layer)
+	}
+	l := *r.Layer
+	l.Stride = Square(1)
+	return Summary(&l)
 }
 
 // pairText writes "3" for a square pair and "3x5" otherwise.

@@ -25,6 +25,7 @@ type JSONLayer struct {
 	Path     string     `json:"path"`
 	Kind     string     `json:"kind"`
 	Name     string     `json:"name"`
+	Role     string     `json:"role"`   // layer, shortcut, residual-add or after-add
 	Status   string     `json:"status"` // ok, error or unresolved
 	Out      *[3]int64  `json:"out"`    // null unless status is ok
 	Params   int64      `json:"params"`
@@ -34,6 +35,7 @@ type JSONLayer struct {
 	Jump     [2]float64 `json:"jump"`
 	Errors   []string   `json:"errors"`
 	Warnings []string   `json:"warnings"`
+	Notes    []string   `json:"notes"` // facts such as how much a merge crops
 }
 
 // JSONTotals sums the resolved rows.
@@ -62,6 +64,7 @@ func BuildJSON(s *engine.Stack, r *engine.Result) *JSON {
 			Path:     row.Path.String(),
 			Kind:     row.Layer.Kind.String(),
 			Name:     row.Layer.Name,
+			Role:     row.Role.String(),
 			Status:   row.Status.String(),
 			Params:   row.Params,
 			Buffers:  row.Buffers,
@@ -70,15 +73,19 @@ func BuildJSON(s *engine.Stack, r *engine.Result) *JSON {
 			Jump:     [2]float64{row.Jump.H, row.Jump.W},
 			Errors:   []string{},
 			Warnings: []string{},
+			Notes:    []string{},
 		}
 		if row.Status == engine.StatusOK {
 			jl.Out = &[3]int64{row.Out.C, row.Out.H, row.Out.W}
 		}
 		for _, d := range r.DiagsFor(i) {
-			if d.Severity == engine.SevError {
+			switch d.Severity {
+			case engine.SevError:
 				jl.Errors = append(jl.Errors, d.Message())
-			} else {
+			case engine.SevWarning:
 				jl.Warnings = append(jl.Warnings, d.Message())
+			default:
+				jl.Notes = append(jl.Notes, d.Message())
 			}
 		}
 		doc.Layers[i] = jl

@@ -18,22 +18,40 @@ func WriteText(w io.Writer, s *engine.Stack, r *engine.Result) error {
 		title = "(unnamed stack)"
 	}
 	fmt.Fprintf(w, "%s  ·  input %s\n\n", title, r.Input)
-	t := table{align: []byte("rlrrrrr")}
+	t := table{align: []byte("llrrrrr")}
 	t.add("at", "layer", "out C×H×W", "params", "MACs", "rf", "jump")
+	var prev engine.Path
 	for i := range r.Rows {
 		row := &r.Rows[i]
-		label := strings.Repeat("  ", row.Path.Len()-1) + engine.Summary(row.Layer)
+		// A header line for each block repeat the row enters.
+		for d := 2; d < row.Path.Len(); d += 2 {
+			head := prefix(row.Path, d)
+			if prev.Len() >= d && prefix(prev, d) == head {
+				continue
+			}
+			if b := s.BlockAt(head); b != nil {
+				label := strings.Repeat("  ", d/2-1) + engine.Summary(b)
+				if b.Name != "" {
+					label += " [" + b.Name + "]"
+				}
+				label += fmt.Sprintf(" — repeat %d of %d", head.At(d-1), max(b.Repeat, 1))
+				t.add(head.String(), label, "", "", "", "", "")
+			}
+		}
+		prev = row.Path
+		label := strings.Repeat("  ", (row.Path.Len()-1)/2) + engine.RowSummary(row)
 		if row.Layer.Name != "" {
 			label += " [" + row.Layer.Name + "]"
 		}
+		mark := ""
 		for _, d := range r.DiagsFor(i) {
 			if d.Severity == engine.SevError {
-				label += " ✗"
-				break
+				mark = " ✗"
+			} else if d.Severity == engine.SevWarning && mark == "" {
+				mark = " !"
 			}
-			label += " !"
-			break
 		}
+		label += mark
 		if row.Status != engine.StatusOK {
 			t.add(row.Path.String(), label, row.Status.String(), "", "", "", "")
 			continue
@@ -48,7 +66,7 @@ func WriteText(w io.Writer, s *engine.Stack, r *engine.Result) error {
 		engine.FormatCount(r.Totals.Params), engine.GroupDigits(r.Totals.Params),
 		engine.GroupDigits(r.Totals.Buffers), engine.FormatCount(r.Totals.MACs))
 	if len(r.Diags) > 0 {
-		fmt.Fprintf(w, "\n%d %s, %d %s\n", r.Errors, pl(r.Errors, "error", "errors"), r.Warnings, pl(r.Warnings, "warning", "warnings"))
+		fmt.Fprintf(w, "\n%d %s, %d %s, %d %s\n", r.Errors, pl(r.Errors, "error", "errors"), r.Warnings, pl(r.Warnings, "warning", "warnings"), r.Notes, pl(r.Notes, "note", "notes"))
 		for _, d := range r.Diags {
 			fmt.Fprintf(w, "  %s %s\n", d.Severity, r.Describe(d))
 		}
@@ -109,4 +127,12 @@ func (t *table) write(w io.Writer) error {
 		}
 	}
 	return nil
+}
+
+// prefix returns the first n segments of p.
+func prefix(p engine.Path, n int) engine.Path {
+	for p.Len() > n {
+		p = p.Parent()
+	}
+	return p
 }

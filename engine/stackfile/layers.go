@@ -33,9 +33,19 @@ func kindKeys(k engine.Kind) []field {
 		return []field{fSlope}
 	case engine.KindDense:
 		return []field{fBias}
+	case engine.KindBlock:
+		return []field{fResidual, fShortcutNorm, fPostAct, fStrides, {key: "layers"}}
+	case engine.KindConcat, engine.KindAdd:
+		return []field{fCrop}
 	}
 	return nil
 }
+
+// MaxBlockDepth is how deeply blocks may nest.
+const MaxBlockDepth = 3
+
+// maxRepeat bounds one block's repeat count.
+const maxRepeat = 1024
 
 var (
 	fKernel = field{"kernel", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
@@ -91,6 +101,24 @@ var (
 			}
 		}
 	}}
+	fResidual = field{"residual", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
+		l.Residual, _ = d.bool(n, w)
+	}}
+	fShortcutNorm = field{"shortcut-norm", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
+		b, ok := d.bool(n, w)
+		l.NoShortcutNorm = ok && !b
+	}}
+	fPostAct = field{"after", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
+		i, ok := d.choice(n, w, names(engine.ActKinds()))
+		l.PostAct, l.HasPostAct = engine.ActKind(i), ok
+	}}
+	fStrides = field{"strides", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
+		i, _ := d.choice(n, w, []string{"first", "all"})
+		l.AllStrides = i == 1
+	}}
+	fCrop = field{"crop", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
+		l.Crop, _ = d.bool(n, w)
+	}}
 	fSlope = field{"slope", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
 		l.Slope, _ = d.float(n, w, 0, 1e6)
 	}}
@@ -100,7 +128,12 @@ var (
 func kindNames() []string { return names(engine.Kinds()) }
 
 func (d *decoder) layers(n *yaml.Node) []engine.Layer {
-	n = d.deref(n, "layers")
+	return d.layerList(n, "layers", "layer ", 0)
+}
+
+// layerList reads a list of layer items; prefix numbers them ("layer 3 → ").
+func (d *decoder) layerList(n *yaml.Node, field, prefix string, depth int) []engine.Layer {
+	n = d.deref(n, field)
 	if n == nil {
 		return nil
 	}
@@ -108,20 +141,24 @@ func (d *decoder) layers(n *yaml.Node) []engine.Layer {
 		return nil
 	}
 	if n.Kind != yaml.SequenceNode {
-		d.fail(n, "layers", ErrType, "expected a list of layers (lines starting with '- '), found %s", describe(n))
+		d.fail(n, field, ErrType, "expected a list of layers (lines starting with '- '), found %s", describe(n))
+		return nil
+	}
+	if len(n.Content) > engine.MaxSegment {
+		d.fail(n, field, ErrRange, "holds %d layers; the limit is %d per list", len(n.Content), engine.MaxSegment)
 		return nil
 	}
 	out := make([]engine.Layer, 0, len(n.Content))
 	for i, item := range n.Content {
-		out = append(out, d.layer(item, i+1))
+		out = append(out, d.layer(item, fmt.Sprintf("%s%d", prefix, i+1), depth))
 	}
 	return out
 }
 
 // layer reads one layer item: a mapping whose first key is the kind, or a
 // bare kind word for kinds that need no value (flatten, global-pool).
-func (d *decoder) layer(n *yaml.Node, index int) engine.Layer {
-	where := fmt.Sprintf("layer %d", index)
+func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
+	where := label
 	var l engine.Layer
 	n = d.deref(n, where)
 	if n == nil {
@@ -161,7 +198,7 @@ func (d *decoder) layer(n *yaml.Node, index int) engine.Layer {
 		d.badKind(n, where, first)
 		return l
 	}
-	where = fmt.Sprintf("layer %d (%s)", index, l.Kind)
+	where = fmt.Sprintf("%s (%s)", label, l.Kind)
 	d.kindValue(kindVal, where, &l)
 	fields := kindKeys(l.Kind)
 	allowed := []string{l.Kind.String()}
@@ -183,6 +220,15 @@ func (d *decoder) layer(n *yaml.Node, index int) engine.Layer {
 		case "note":
 			l.Note, _ = d.text(v, where+" → note", MaxNoteLen)
 			continue
+		case "layers":
+			if l.Kind == engine.KindBlock {
+				if depth+1 >= MaxBlockDepth+1 {
+					d.fail(k, where, ErrNesting, "blocks nest %d deep here; the limit is %d — flatten an inner block", depth+1, MaxBlockDepth)
+					continue
+				}
+				l.Body = d.layerList(v, where+" → layers", label+" → ", depth+1)
+				continue
+			}
 		}
 		known := false
 		for _, f := range fields {
@@ -243,6 +289,15 @@ func (d *decoder) kindValue(v *yaml.Node, where string, l *engine.Layer) {
 		}
 	case engine.KindReshape:
 		l.Target, _ = d.shape(v, w+" (target)")
+	case engine.KindBlock:
+		l.Repeat, _ = d.int(v, w+" (repeats)", 1, maxRepeat)
+	case engine.KindConcat, engine.KindAdd:
+		name, ok := d.text(v, w+" (layer name)", 1<<10)
+		if ok && (len(name) > MaxNameLen || !namePattern.MatchString(name)) {
+			d.fail(v, w, ErrName, "%q is not a layer name; give the name of an earlier layer or block", name)
+			return
+		}
+		l.From = name
 	}
 }
 
@@ -259,6 +314,16 @@ func (d *decoder) required(n *yaml.Node, where string, l *engine.Layer, seen map
 		}
 		if l.Norm != engine.NormGroup && seen["groups"] {
 			d.fail(n, where, ErrUnknown, "groups applies only to group norm; remove it or write norm: group")
+		}
+	case engine.KindBlock:
+		if !seen["layers"] {
+			d.fail(n, where, ErrMissing, "needs layers; add the block's layers under layers:")
+		}
+		if l.HasPostAct && !l.Residual {
+			d.fail(n, where, ErrUnknown, "after (the activation after the addition) needs residual: true")
+		}
+		if seen["shortcut-norm"] && !l.Residual {
+			d.fail(n, where, ErrUnknown, "shortcut-norm needs residual: true")
 		}
 	case engine.KindAct:
 		if l.Act != engine.ActLeakyReLU && seen["slope"] {

@@ -27,14 +27,7 @@ func Save(s *engine.Stack) ([]byte, error) {
 	if t := training(s.Training); t != nil {
 		put(root, "training", t)
 	}
-	layers := &yaml.Node{Kind: yaml.SequenceNode}
-	for i := range s.Layers {
-		layers.Content = append(layers.Content, layerNode(&s.Layers[i]))
-	}
-	if len(s.Layers) == 0 {
-		layers.Style = yaml.FlowStyle
-	}
-	put(root, "layers", layers)
+	put(root, "layers", layerSeq(s.Layers))
 
 	var buf bytes.Buffer
 	enc := yaml.NewEncoder(&buf)
@@ -46,6 +39,18 @@ func Save(s *engine.Stack) ([]byte, error) {
 		return nil, fmt.Errorf("encode stack: %w", err)
 	}
 	return buf.Bytes(), nil
+}
+
+// layerSeq writes a list of layers.
+func layerSeq(ls []engine.Layer) *yaml.Node {
+	seq := &yaml.Node{Kind: yaml.SequenceNode}
+	for i := range ls {
+		seq.Content = append(seq.Content, layerNode(&ls[i]))
+	}
+	if len(ls) == 0 {
+		seq.Style = yaml.FlowStyle
+	}
+	return seq
 }
 
 func put(m *yaml.Node, key string, v *yaml.Node) {
@@ -130,6 +135,10 @@ func layerNode(l *engine.Layer) *yaml.Node {
 		put(m, k, &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!null", Value: ""})
 	case engine.KindReshape:
 		put(m, k, flowSeq(intNode(l.Target.C), intNode(l.Target.H), intNode(l.Target.W)))
+	case engine.KindBlock:
+		put(m, k, intNode(max(l.Repeat, 1)))
+	case engine.KindConcat, engine.KindAdd:
+		put(m, k, strNode(l.From))
 	}
 	switch l.Kind {
 	case engine.KindConv, engine.KindDeconv, engine.KindPool:
@@ -182,11 +191,30 @@ func layerNode(l *engine.Layer) *yaml.Node {
 	if l.Kind.HasWeights() && l.NoBias {
 		put(m, "bias", boolNode(false))
 	}
+	if l.Kind.IsMerge() && l.Crop {
+		put(m, "crop", boolNode(true))
+	}
 	if l.Name != "" {
 		put(m, "name", strNode(l.Name))
 	}
 	if l.Note != "" {
 		put(m, "note", strNode(l.Note))
+	}
+	if l.Kind == engine.KindBlock {
+		if l.Residual {
+			put(m, "residual", boolNode(true))
+			if l.NoShortcutNorm {
+				put(m, "shortcut-norm", boolNode(false))
+			}
+			if l.HasPostAct {
+				put(m, "after", strNode(l.PostAct.String()))
+			}
+		}
+		if l.AllStrides {
+			put(m, "strides", strNode("all"))
+		}
+		put(m, "layers", layerSeq(l.Body))
+		return m
 	}
 	if l.Note == "" {
 		m.Style = yaml.FlowStyle

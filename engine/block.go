@@ -1,0 +1,204 @@
+package engine
+
+import "math"
+
+// tap is what a named layer or block leaves for later merges.
+type tap struct {
+	layer *Layer
+	row   int // the row that produced it (for blocks, the last row)
+	f     flow
+}
+
+// setTap records the current flow under l's name. A name seen again from
+// the same layer (a later repeat of a block) moves to the latest output.
+func (r *Result) setTap(l *Layer, f *flow) {
+	if old, ok := r.taps[l.Name]; ok && old.layer != l {
+		row := len(r.Rows) - 1
+		r.diag(Diagnostic{Severity: SevError, Code: ErrNameTwice, Row: row, Name: l.Name, Field: r.Rows[old.row].Path.String()})
+		f.ok = false
+		return
+	}
+	r.taps[l.Name] = tap{layer: l, row: len(r.Rows) - 1, f: *f}
+}
+
+// synthPool hands out the layers residual blocks add (projection shortcuts,
+// additions, activations). Layers live in fixed-size chunks so that the
+// pointers rows keep stay valid while more are added; chunks are reused by
+// the next evaluation.
+type synthPool struct {
+	chunks [][]Layer
+	n      int // layers handed out
+}
+
+const synthChunk = 64
+
+func (p *synthPool) reset() { p.n = 0 }
+
+func (p *synthPool) get(l Layer) *Layer {
+	c, i := p.n/synthChunk, p.n%synthChunk
+	if c == len(p.chunks) {
+		p.chunks = append(p.chunks, make([]Layer, synthChunk))
+	}
+	p.n++
+	p.chunks[c][i] = l
+	return &p.chunks[c][i]
+}
+
+// countRows returns how many rows ls expands to, saturating past MaxRows.
+func countRows(ls []Layer, depth int) int64 {
+	var n int64
+	for i := range ls {
+		l := &ls[i]
+		if l.Kind != KindBlock {
+			n++
+		} else {
+			per := countRows(l.Body, depth+1)
+			if l.Residual {
+				per += 4 // shortcut, its norm, the addition, the activation
+			}
+			reps := max(l.Repeat, 1)
+			if per > 0 && reps > (MaxRows+1)/per {
+				return MaxRows + 1
+			}
+			n += per * reps
+		}
+		if n > MaxRows {
+			return MaxRows + 1
+		}
+	}
+	return n
+}
+
+// block evaluates every repeat of a block. Its body is written as the first
+// repeat; unless AllStrides is set, later repeats run with every stride set
+// to 1, so only the first repeat changes the resolution (and, through its
+// filters, the width).
+func (r *Result) block(l *Layer, parent *Path, i int, f *flow, unstrided bool) {
+	bp := *parent
+	bp.push(i)
+	reps := max(l.Repeat, 1)
+	for rep := int64(1); rep <= reps; rep++ {
+		rp := bp
+		rp.push(int(rep))
+		in := *f
+		r.items(l.Body, &rp, f, unstrided || (rep > 1 && !l.AllStrides))
+		if l.Residual {
+			r.residual(l, &rp, in, f)
+		}
+	}
+}
+
+// residual closes one repeat of a residual block: output = body(x) +
+// shortcut(x). The shortcut is the identity when shapes match; otherwise a
+// 1×1 convolution with the repeat's total stride (the projection shortcut,
+// option B of He et al. 2016), followed by batch norm unless NoShortcutNorm.
+func (r *Result) residual(l *Layer, p *Path, in flow, f *flow) {
+	sc := in
+	if in.ok && f.ok && in.shape != f.shape {
+		sh := math.Round(f.jump.H / in.jump.H)
+		sw := math.Round(f.jump.W / in.jump.W)
+		if sh < 1 || sw < 1 || math.IsNaN(sh) || math.IsNaN(sw) {
+			r.layer(r.synth.get(Layer{Kind: KindAdd}), p, SegResidualAdd, f, false, RoleResidual)
+			row := len(r.Rows) - 1
+			r.failRow(row, Diagnostic{Code: ErrProjection, Field: "residual", A: f.shape.H, B: f.shape.W, C: in.shape.H, D: in.shape.W}, f)
+			return
+		}
+		conv := r.synth.get(Layer{Kind: KindConv, Filters: f.shape.C, Kernel: Square(1),
+			Stride: Pair{int64(sh), int64(sw)}, NoBias: !l.NoShortcutNorm})
+		r.layer(conv, p, SegShortcut, &sc, false, RoleShortcut)
+		if !l.NoShortcutNorm {
+			r.layer(r.synth.get(Layer{Kind: KindNorm, Norm: NormBatch}), p, SegShortcutNorm, &sc, false, RoleShortcut)
+		}
+	}
+	r.residualTap = sc
+	r.layer(r.synth.get(Layer{Kind: KindAdd}), p, SegResidualAdd, f, false, RoleResidual)
+	if l.HasPostAct {
+		r.layer(r.synth.get(Layer{Kind: KindAct, Act: l.PostAct}), p, SegPostAct, f, false, RolePostAct)
+	}
+}
+
+// failRow turns an already computed row into an error row.
+func (r *Result) failRow(row int, d Diagnostic, f *flow) {
+	d.Severity, d.Row = SevError, row
+	r.diag(d)
+	rw := &r.Rows[row]
+	if rw.Status == StatusOK {
+		r.Totals.Params -= rw.Params
+		r.Totals.Buffers -= rw.Buffers
+		r.Totals.MACs -= rw.MACs
+	}
+	rw.Status, rw.Out, rw.Params, rw.Buffers, rw.MACs = StatusError, Shape{}, 0, 0, 0
+	f.ok = false
+}
+
+// merge joins the flow with a named earlier output (concat, add) or, for
+// the addition that closes a residual repeat, with the shortcut.
+func (c *calc) merge(f *flow) {
+	l := c.l
+	var other flow
+	name := l.From
+	if c.row.Role == RoleResidual {
+		other, name = c.r.residualTap, ""
+	} else {
+		t, ok := c.r.taps[name]
+		if !ok {
+			code := ErrMergeUnknown
+			if c.r.stack != nil && hasName(c.r.stack.Layers, name) {
+				code = ErrMergeLater
+			}
+			c.fail(Diagnostic{Code: code, Field: l.Kind.String(), Name: name})
+			return
+		}
+		other = t.f
+	}
+	if !other.ok {
+		c.unresolved = true
+		return
+	}
+	cur := f.shape
+	out := cur
+	if other.shape.H != cur.H || other.shape.W != cur.W {
+		if !l.Crop {
+			c.fail(Diagnostic{Code: ErrMergeShape, Field: "crop", Name: name, A: other.shape.H, B: other.shape.W, C: cur.H, D: cur.W})
+			return
+		}
+		out.H, out.W = min(cur.H, other.shape.H), min(cur.W, other.shape.W)
+		if other.shape.H > out.H || other.shape.W > out.W {
+			c.note(Diagnostic{Code: InfoCrop, Field: "skip", Name: name, A: other.shape.H, B: other.shape.W, C: out.H, D: out.W})
+		}
+		if cur.H > out.H || cur.W > out.W {
+			c.note(Diagnostic{Code: InfoCrop, Field: "here", Name: name, A: cur.H, B: cur.W, C: out.H, D: out.W})
+		}
+	}
+	if l.Kind == KindConcat {
+		out.C = add(&c.ov, cur.C, other.shape.C)
+		if !c.checkOverflow("channels") {
+			return
+		}
+	} else if other.shape.C != cur.C {
+		c.fail(Diagnostic{Code: ErrAddChannels, Field: "channels", Name: name, A: other.shape.C, B: cur.C})
+		return
+	}
+	if other.jump != f.jump && other.jump.H > 0 && f.jump.H > 0 {
+		c.warn(Diagnostic{Code: WarnMergeJump, Field: "jump", Name: name, A: int64(other.jump.H * 1e6), B: int64(f.jump.H * 1e6)})
+	}
+	c.row.Out = out
+	f.rf.H, f.rf.W = max(f.rf.H, other.rf.H), max(f.rf.W, other.rf.W)
+}
+
+//go:noinline
+func (c *calc) note(d Diagnostic) {
+	d.Severity = SevInfo
+	d.Row = c.idx
+	c.r.diag(d)
+}
+
+// hasName reports whether any layer in ls (blocks included) is named name.
+func hasName(ls []Layer, name string) bool {
+	for i := range ls {
+		if ls[i].Name == name || hasName(ls[i].Body, name) {
+			return true
+		}
+	}
+	return false
+}
