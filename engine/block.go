@@ -21,6 +21,25 @@ func (r *Result) setTap(l *Layer, f *flow) {
 	r.taps[l.Name] = tap{layer: l, row: len(r.Rows) - 1, f: *f}
 }
 
+// fixedLayers are the layers residual blocks add that never vary: one
+// copy each per Result, shared by every row that uses them.
+type fixedLayers struct {
+	add  Layer
+	norm Layer
+	act  [len(actNames)]Layer
+}
+
+func (x *fixedLayers) init() {
+	if x.add.Kind == KindAdd {
+		return
+	}
+	x.add = Layer{Kind: KindAdd}
+	x.norm = Layer{Kind: KindNorm, Norm: NormBatch}
+	for i := range x.act {
+		x.act[i] = Layer{Kind: KindAct, Act: ActKind(i)}
+	}
+}
+
 // synthPool hands out the layers residual blocks add (projection shortcuts,
 // additions, activations). Layers live in fixed-size chunks so that the
 // pointers rows keep stay valid while more are added; chunks are reused by
@@ -42,6 +61,18 @@ func (p *synthPool) get(l Layer) *Layer {
 	p.n++
 	p.chunks[c][i] = l
 	return &p.chunks[c][i]
+}
+
+// projection hands out a 1×1 shortcut convolution.
+func (p *synthPool) projection(filters int64, stride Pair, noBias bool) *Layer {
+	c, i := p.n/synthChunk, p.n%synthChunk
+	if c == len(p.chunks) {
+		p.chunks = append(p.chunks, make([]Layer, synthChunk))
+	}
+	p.n++
+	l := &p.chunks[c][i]
+	l.Kind, l.Filters, l.Kernel, l.Stride, l.NoBias = KindConv, filters, Square(1), stride, noBias
+	return l
 }
 
 // countRows returns how many rows ls expands to, saturating past MaxRows.
@@ -73,17 +104,20 @@ func countRows(ls []Layer, depth int) int64 {
 // repeat; unless AllStrides is set, later repeats run with every stride set
 // to 1, so only the first repeat changes the resolution (and, through its
 // filters, the width).
-func (r *Result) block(l *Layer, parent *Path, i int, f *flow, unstrided bool) {
-	bp := *parent
+func (r *Result) block(l *Layer, parent Path, i int, f *flow, unstrided bool) {
+	bp := parent
 	bp.push(i)
 	reps := max(l.Repeat, 1)
 	for rep := int64(1); rep <= reps; rep++ {
 		rp := bp
 		rp.push(int(rep))
-		in := *f
-		r.items(l.Body, &rp, f, unstrided || (rep > 1 && !l.AllStrides))
+		var in flow
 		if l.Residual {
-			r.residual(l, &rp, in, f)
+			in = *f
+		}
+		r.items(l.Body, rp, f, unstrided || (rep > 1 && !l.AllStrides))
+		if l.Residual {
+			r.residual(l, &rp, &in, f)
 		}
 	}
 }
@@ -92,28 +126,29 @@ func (r *Result) block(l *Layer, parent *Path, i int, f *flow, unstrided bool) {
 // shortcut(x). The shortcut is the identity when shapes match; otherwise a
 // 1×1 convolution with the repeat's total stride (the projection shortcut,
 // option B of He et al. 2016), followed by batch norm unless NoShortcutNorm.
-func (r *Result) residual(l *Layer, p *Path, in flow, f *flow) {
-	sc := in
+func (r *Result) residual(l *Layer, p *Path, in *flow, f *flow) {
+	// The shortcut flow lives in the Result: nothing runs between the
+	// shortcut rows and the addition that could need a second one.
+	sc := &r.shortcut
+	*sc = *in
 	if in.ok && f.ok && in.shape != f.shape {
 		sh := math.Round(f.jump.H / in.jump.H)
 		sw := math.Round(f.jump.W / in.jump.W)
 		if sh < 1 || sw < 1 || math.IsNaN(sh) || math.IsNaN(sw) {
-			r.layer(r.synth.get(Layer{Kind: KindAdd}), p, SegResidualAdd, f, false, RoleResidual)
+			r.layer(&r.fixed.add, p, SegResidualAdd, f, false, RoleResidual)
 			row := len(r.Rows) - 1
 			r.failRow(row, Diagnostic{Code: ErrProjection, Field: "residual", A: f.shape.H, B: f.shape.W, C: in.shape.H, D: in.shape.W}, f)
 			return
 		}
-		conv := r.synth.get(Layer{Kind: KindConv, Filters: f.shape.C, Kernel: Square(1),
-			Stride: Pair{int64(sh), int64(sw)}, NoBias: !l.NoShortcutNorm})
-		r.layer(conv, p, SegShortcut, &sc, false, RoleShortcut)
+		conv := r.synth.projection(f.shape.C, Pair{int64(sh), int64(sw)}, !l.NoShortcutNorm)
+		r.layer(conv, p, SegShortcut, sc, false, RoleShortcut)
 		if !l.NoShortcutNorm {
-			r.layer(r.synth.get(Layer{Kind: KindNorm, Norm: NormBatch}), p, SegShortcutNorm, &sc, false, RoleShortcut)
+			r.layer(&r.fixed.norm, p, SegShortcutNorm, sc, false, RoleShortcut)
 		}
 	}
-	r.residualTap = sc
-	r.layer(r.synth.get(Layer{Kind: KindAdd}), p, SegResidualAdd, f, false, RoleResidual)
-	if l.HasPostAct {
-		r.layer(r.synth.get(Layer{Kind: KindAct, Act: l.PostAct}), p, SegPostAct, f, false, RolePostAct)
+	r.layer(&r.fixed.add, p, SegResidualAdd, f, false, RoleResidual)
+	if l.HasPostAct && int(l.PostAct) < len(r.fixed.act) {
+		r.layer(&r.fixed.act[l.PostAct], p, SegPostAct, f, false, RolePostAct)
 	}
 }
 
@@ -138,7 +173,7 @@ func (c *calc) merge(f *flow) {
 	var other flow
 	name := l.From
 	if c.row.Role == RoleResidual {
-		other, name = c.r.residualTap, ""
+		other, name = c.r.shortcut, ""
 	} else {
 		t, ok := c.r.taps[name]
 		if !ok {

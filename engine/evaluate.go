@@ -93,7 +93,9 @@ type Result struct {
 	taps  map[string]tap // named outputs seen so far
 	synth synthPool      // layers residual blocks add, reused between evaluations
 
-	residualTap flow // the shortcut's output, for the residual addition row
+	shortcut flow        // the shortcut's output, for the residual addition row
+	fixed    fixedLayers // layers residual blocks add that never change
+	calc     calc        // the per-row calculator, reused
 }
 
 // MaxRows bounds how many rows a stack may expand to (repeats multiply).
@@ -131,6 +133,7 @@ func (r *Result) Evaluate(s *Stack) {
 	r.Input = s.Input
 	r.stack = s
 	r.synth.reset()
+	r.fixed.init()
 	if r.taps == nil {
 		r.taps = make(map[string]tap)
 	} else {
@@ -148,8 +151,7 @@ func (r *Result) Evaluate(s *Stack) {
 		r.finish()
 		return
 	}
-	var root Path
-	r.items(s.Layers, &root, &f, false)
+	r.items(s.Layers, Path{}, &f, false)
 	if f.ok {
 		r.Output = f.shape
 	}
@@ -185,13 +187,13 @@ func (r *Result) diag(d Diagnostic) {
 }
 
 // items evaluates a list of layers (the stack, or one repeat of a block).
-func (r *Result) items(ls []Layer, parent *Path, f *flow, unstrided bool) {
+func (r *Result) items(ls []Layer, parent Path, f *flow, unstrided bool) {
 	for i := range ls {
 		l := &ls[i]
 		if l.Kind == KindBlock {
 			r.block(l, parent, i+1, f, unstrided)
 		} else {
-			r.layer(l, parent, seg(i+1), f, unstrided, RoleLayer)
+			r.layer(l, &parent, seg(i+1), f, unstrided, RoleLayer)
 		}
 		if l.Name != "" {
 			r.setTap(l, f)
@@ -224,7 +226,12 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 		row.In = Shape{}
 		return
 	}
-	c := calc{r: r, idx: idx, row: row, l: l, unstrided: unstrided}
+	// The calculator lives in the Result and is set field by field: a
+	// composite literal here is built in a temporary and copied, which
+	// stalls on store forwarding once per row.
+	c := &r.calc
+	c.r, c.idx, c.row, c.l, c.unstrided = r, idx, row, l, unstrided
+	c.failed, c.unresolved, c.ov = false, false, false
 	c.run(f)
 	if c.unresolved {
 		row.Status = StatusUnresolved

@@ -26,12 +26,61 @@ func longStack(n int) *Stack {
 	return s
 }
 
-func TestLongStackResolves(t *testing.T) {
-	s := longStack(1000)
-	r := Evaluate(s)
-	if len(s.Layers) < 1000 || r.Errors != 0 {
-		t.Fatalf("%d layers, %d errors: %v", len(s.Layers), r.Errors, r.Diags)
+// blockStack builds a stack of about n rows out of residual blocks (with
+// projection shortcuts where the width changes) and named taps merged back
+// by concatenation: the shapes the editor meets in real networks.
+func blockStack(n int) *Stack {
+	s := &Stack{Input: Shape{3, 224, 224}, Layers: []Layer{
+		{Kind: KindConv, Filters: 32, Kernel: Square(3), Stride: Square(2), Pad: Padding{Size: Square(1)}, NoBias: true},
+		{Kind: KindNorm}, {Kind: KindAct},
+	}}
+	rows, c := 0, int64(32)
+	names := []string{"t0", "t1", "t2", "t3", "t4", "t5", "t6", "t7", "t8", "t9"}
+	for stage := 0; rows < n-2; stage++ {
+		rows = len(Evaluate(s).Rows)
+		stride := int64(1)
+		if stage%5 == 1 && stage < 20 {
+			stride = 2
+		}
+		c = min(c+16, 256)
+		body := []Layer{
+			{Kind: KindConv, Filters: c, Kernel: Square(3), Stride: Square(stride), Pad: Padding{Size: Square(1)}, NoBias: true},
+			{Kind: KindNorm}, {Kind: KindAct},
+			{Kind: KindConv, Filters: c, Kernel: Square(3), Pad: Padding{Size: Square(1)}, NoBias: true},
+			{Kind: KindNorm},
+		}
+		name := names[stage%len(names)] + string(rune('a'+stage/len(names)))
+		s.Layers = append(s.Layers,
+			Layer{Kind: KindBlock, Name: name, Repeat: 4, Residual: true, HasPostAct: true, Body: body},
+			Layer{Kind: KindConv, Filters: c, Kernel: Square(1), NoBias: true},
+			Layer{Kind: KindConcat, From: name},
+			Layer{Kind: KindConv, Filters: c, Kernel: Square(1), NoBias: true})
 	}
+	s.Layers = append(s.Layers, Layer{Kind: KindGlobalPool}, Layer{Kind: KindDense, Filters: 1000})
+	return s
+}
+
+func TestLongStacksResolve(t *testing.T) {
+	for name, s := range map[string]*Stack{"plain": longStack(1000), "blocks": blockStack(1000)} {
+		r := Evaluate(s)
+		if len(r.Rows) < 1000 || r.Errors+r.Warnings != 0 {
+			t.Fatalf("%s: %d rows, %d errors: %v", name, len(r.Rows), r.Errors, r.Diags)
+		}
+	}
+}
+
+// BenchmarkEvaluate1000Blocks recomputes about 1,000 rows built from
+// residual blocks, projection shortcuts and named concatenations.
+func BenchmarkEvaluate1000Blocks(b *testing.B) {
+	s := blockStack(1000)
+	var r Result
+	r.Evaluate(s)
+	b.ReportAllocs()
+	b.ResetTimer()
+	for b.Loop() {
+		r.Evaluate(s)
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/float64(len(r.Rows)), "ns/row")
 }
 
 // BenchmarkEvaluate1000 recomputes a 1,000-layer stack into a reused

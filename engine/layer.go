@@ -196,10 +196,10 @@ func ActKinds() []ActKind {
 // Layer is one item of a stack. Which fields matter depends on Kind; the
 // zero value of every optional field means "the kind's default" (stride 1,
 // dilation 1, one group, bias on, pooling stride equal to its window, ...).
+// The fields a convolution reads come first, so that evaluating one touches
+// as few cache lines as possible.
 type Layer struct {
 	Kind Kind
-	Name string // optional short identifier
-	Note string // optional free text
 
 	// conv, deconv: output channels. dense: output units.
 	Filters int64
@@ -260,6 +260,9 @@ type Layer struct {
 	From string
 	// concat, add: center-crop the larger map to the smaller one's size.
 	Crop bool
+
+	Name string // optional short identifier
+	Note string // optional free text
 }
 
 // stride returns the effective stride.
