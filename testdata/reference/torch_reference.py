@@ -133,28 +133,125 @@ def build(layer, c):
     raise ValueError(f"unknown layer {layer}")
 
 
-def run(stack):
-    """Runs the stack layer by layer; returns per-layer rows and the index of
-    the first layer PyTorch refused (None when all ran)."""
-    x = torch.zeros(BATCH, *stack["input"])
-    rows = []
-    for i, layer in enumerate(stack["layers"]):
-        try:
-            m = build(layer, x.shape[1])
-            m.eval()
-            with torch.no_grad():
-                y = m(x)
-            if min(y.shape[1:]) < 1:
-                raise ValueError("empty output")
-        except Exception as e:  # PyTorch's refusal is the reference verdict
-            return rows, i, str(e).splitlines()[0][:200]
-        rows.append({
+STRIDED = ("conv", "deconv", "pool")
+
+
+def kind_of(layer):
+    return "flatten" if layer == "flatten" else next(iter(layer))
+
+
+def center_crop(x, h, w):
+    top, left = (x.shape[2] - h) // 2, (x.shape[3] - w) // 2
+    return x[:, :, top:top + h, left:left + w]
+
+
+class Runner:
+    """Runs a stack the way stackfit reads it: blocks repeat their body (later
+    repeats with stride 1 unless strides: all), residual blocks add a
+    shortcut (a strided 1×1 convolution plus batch norm when the shape
+    changes, He et al. 2016 option B), concat/add merge a named output."""
+
+    def __init__(self):
+        self.rows = []
+        self.taps = {}
+
+    def row(self, path, y, m):
+        self.rows.append({
+            "path": ".".join(path),
             "out": list(y.shape[1:]),
-            "params": sum(p.numel() for p in m.parameters()),
-            "buffers": sum(b.numel() for b in m.buffers()),
+            "params": sum(p.numel() for p in m.parameters()) if m is not None else 0,
+            "buffers": sum(b.numel() for b in m.buffers()) if m is not None else 0,
         })
-        x = y
-    return rows, None, None
+        if min(y.shape[1:]) < 1:
+            raise ValueError("empty output")
+
+    def items(self, layers, prefix, x, unstrided):
+        for i, layer in enumerate(layers):
+            path = prefix + [str(i + 1)]
+            if isinstance(layer, dict) and "block" in layer:
+                x = self.block(layer, path, x, unstrided)
+            else:
+                x = self.one(layer, path, x, unstrided)
+            if isinstance(layer, dict) and "name" in layer:
+                self.taps[layer["name"]] = x
+        return x
+
+    def one(self, layer, path, x, unstrided):
+        kind = kind_of(layer)
+        if kind in ("concat", "add"):
+            other = self.taps[layer[kind]]  # KeyError: unknown or later name
+            if layer.get("crop"):
+                h, w = min(x.shape[2], other.shape[2]), min(x.shape[3], other.shape[3])
+                x, other = center_crop(x, h, w), center_crop(other, h, w)
+            if kind == "concat":
+                y = torch.cat([x, other], 1)
+            else:
+                if x.shape != other.shape:
+                    raise ValueError("added maps differ")
+                y = x + other
+            self.row(path, y, None)
+            return y
+        if unstrided and kind in STRIDED:
+            layer = dict(layer, stride=1)
+        m = build(layer, x.shape[1]).eval()
+        with torch.no_grad():
+            y = m(x)
+        self.row(path, y, m)
+        return y
+
+    def block(self, layer, path, x, unstrided):
+        for rep in range(1, layer["block"] + 1):
+            rp = path + [str(rep)]
+            inp = x
+            un = unstrided or (rep > 1 and layer.get("strides", "first") != "all")
+            x = self.items(layer["layers"], rp, x, un)
+            if not layer.get("residual"):
+                continue
+            sc = inp
+            if sc.shape != x.shape:
+                # The repeat's total stride, from the strides written in its body.
+                sh = sw = 1
+                for b in layer["layers"]:
+                    k = kind_of(b)
+                    if k in ("conv", "pool") and not un:
+                        st = pair(b.get("stride", b["kernel"] if k == "pool" else 1))
+                        sh, sw = sh * st[0], sw * st[1]
+                norm = layer.get("shortcut-norm", True)
+                conv = nn.Conv2d(inp.shape[1], x.shape[1], 1, (sh, sw), bias=not norm).eval()
+                with torch.no_grad():
+                    sc = conv(inp)
+                self.row(rp + ["s1"], sc, conv)
+                if norm:
+                    bn = nn.BatchNorm2d(x.shape[1]).eval()
+                    with torch.no_grad():
+                        sc = bn(sc)
+                    self.row(rp + ["s2"], sc, bn)
+            if sc.shape != x.shape:
+                raise ValueError("shortcut shape differs")
+            x = x + sc
+            self.row(rp + ["add"], x, None)
+            if "after" in layer:
+                act = build({"act": layer["after"]}, x.shape[1])
+                x = act(x)
+                self.row(rp + ["act"], x, act)
+        return x
+
+
+def run(stack):
+    """Runs the stack; returns per-row results and the index of the first row
+    PyTorch refused (None when all ran)."""
+    r = Runner()
+    x = torch.zeros(BATCH, *stack["input"])
+    try:
+        with torch.no_grad():
+            r.items(stack["layers"], [], x, False)
+    except Exception as e:  # PyTorch's refusal is the reference verdict
+        bad = len(r.rows)
+        if r.rows and r.rows[-1]["out"] and min(r.rows[-1]["out"]) < 1:
+            bad -= 1
+            r.rows.pop()
+        return r.rows, bad, (str(e).splitlines() or [type(e).__name__])[0][:200]
+    return r.rows, None, None
 
 
 # ---- published stacks (the numbers of their papers are checked elsewhere) --
@@ -277,7 +374,7 @@ def random_layer(rng, c, kind):
 
 
 KINDS = ["conv", "deconv", "pool", "global-pool", "pool-to", "upsample", "norm", "act",
-         "dropout", "flatten", "dense", "reshape"]
+         "dropout", "flatten", "dense", "reshape", "block", "concat", "add"]
 
 
 def generated(rng, n):
@@ -286,9 +383,9 @@ def generated(rng, n):
         layers = []
         x = torch.zeros(1, c, h, w)
         # The first layers of each case favour one kind in turn, so every kind appears.
-        focus = KINDS[i % len(KINDS)]
+        focus = KINDS[i % 12]
         for j in range(rng.randint(4, 12)):
-            kind = focus if j in (1, 3) else rng.choice(KINDS)
+            kind = focus if j in (1, 3) else rng.choice(KINDS[:12])
             if kind in ("dense", "reshape") and rng.random() < 0.85:
                 layers.append("flatten")
                 x = x.reshape(1, -1, 1, 1)
@@ -315,18 +412,93 @@ def generated(rng, n):
         yield f"generated {i + 1:02d} ({focus})", [c, h, w], layers
 
 
+# ---- blocks and merges ----
+
+def conv(f, k, s=1, p=0, bias=False):
+    d = {"conv": f, "kernel": k}
+    if s != 1:
+        d["stride"] = s
+    if p:
+        d["pad"] = p
+    if not bias:
+        d["bias"] = False
+    return d
+
+
+BN, RELU = {"norm": "batch"}, {"act": "relu"}
+
+
+def basic(c, s):
+    return [conv(c, 3, s, 1), BN, RELU, conv(c, 3, 1, 1), BN]
+
+
+def bottleneck(c, s, paper):
+    return [conv(c, 1, s if paper else 1), BN, RELU, conv(c, 3, 1 if paper else s, 1), BN, RELU, conv(4 * c, 1), BN]
+
+
+def res(n, body, **kw):
+    d = {"block": n, "residual": True, "after": "relu", "layers": body}
+    d.update(kw)
+    return d
+
+
+def block_cases(rng):
+    yield "residual identity, 2 repeats", [16, 20, 20], [res(2, basic(16, 1))]
+    yield "residual projection: stride 2 and wider", [16, 21, 21], [res(3, basic(32, 2))]
+    yield "bottleneck, stride on the 3×3 (torchvision)", [64, 28, 28], [res(3, bottleneck(32, 2, False))]
+    yield "bottleneck, stride on the first 1×1 (paper)", [64, 28, 28], [res(3, bottleneck(32, 2, True))]
+    yield "projection without shortcut norm", [8, 17, 17], [res(2, [conv(24, 3, 2, 1, True), RELU, conv(24, 3, 1, 1, True)], **{"shortcut-norm": False})]
+    yield "strides on every repeat", [8, 32, 32], [res(3, basic(16, 2), strides="all")]
+    yield "nested blocks", [8, 24, 24], [{"block": 2, "name": "outer", "layers": [res(2, basic(16, 1)), {"pool": "max", "kernel": 2}]}]
+    yield "repeated pooling block, later repeats unstrided", [4, 19, 23], [{"block": 3, "layers": [{"pool": "max", "kernel": 2, "pad": 1}, conv(8, 3, 1, 1)]}]
+    yield "dense-style concatenation", [16, 12, 12], [
+        dict(conv(16, 3, 1, 1), name="c1"), conv(8, 3, 1, 1), {"concat": "c1", "name": "c2"},
+        conv(8, 3, 1, 1), {"concat": "c2"}, conv(32, 1)]
+    yield "encoder-decoder with cropped skips", [1, 92, 92], [
+        conv(8, 3, bias=True), RELU, dict(conv(8, 3, bias=True), name="e1"), {"pool": "max", "kernel": 2},
+        conv(16, 3, bias=True), RELU, dict(conv(16, 3, bias=True), name="e2"), {"pool": "max", "kernel": 2},
+        conv(32, 3, bias=True), RELU, conv(32, 3, bias=True), RELU,
+        {"deconv": 16, "kernel": 2, "stride": 2}, {"concat": "e2", "crop": True}, conv(16, 3, bias=True), RELU,
+        {"deconv": 8, "kernel": 2, "stride": 2}, {"concat": "e1", "crop": True}, conv(8, 3, bias=True), RELU,
+        conv(2, 1, bias=True)]
+    yield "feature-pyramid style addition with upsampling", [8, 32, 32], [
+        dict(conv(16, 3, 1, 1), name="p3"), conv(16, 3, 2, 1), {"upsample": 2}, {"add": "p3"}, conv(16, 3, 1, 1)]
+    yield "crop where the map here is the larger", [4, 30, 30], [
+        dict(conv(8, 5), name="small"), {"upsample": 1}, {"pool-to": 20}, {"concat": "small", "crop": True}]
+    yield "residual stage stack (two stages)", [32, 33, 33], [res(2, basic(32, 1), name="s1"), res(2, basic(64, 2), name="s2"), {"global-pool": "avg"}, {"dense": 10}]
+    yield "error: add with different channels", [8, 16, 16], [dict(conv(8, 1), name="a"), conv(16, 1), {"add": "a"}]
+    yield "error: concat without crop on different sizes", [8, 16, 16], [dict(conv(8, 1), name="a"), {"pool": "max", "kernel": 2}, {"concat": "a"}]
+    yield "error: merge with a name not yet seen", [8, 16, 16], [{"concat": "later"}, dict(conv(8, 1), name="later")]
+    for i in range(6):
+        c = rng.choice([8, 16])
+        layers = [conv(c, 3, 1, 1)]
+        for _ in range(rng.randint(1, 3)):
+            w = rng.choice([c, 2 * c, 24])
+            s = rng.choice([1, 2])
+            kind = rng.choice(["basic", "bottle"])
+            body = basic(w, s) if kind == "basic" else bottleneck(w // 2 if w > 8 else w, s, rng.random() < 0.5)
+            layers.append(res(rng.randint(1, 3), body))
+            c = body[-2]["conv"]
+        yield f"generated residual {i + 1:02d}", [rng.choice([3, 8]), rng.randint(9, 41), rng.randint(9, 41)], layers
+
+
 def main():
     torch.manual_seed(0)
     rng = random.Random(SEED)
     cases = []
-    for name, inp, layers in list(published()) + list(generated(rng, GENERATED)):
+    for name, inp, layers in list(published()) + list(generated(rng, GENERATED)) + list(block_cases(rng)):
         stack = {"stackfit": 1, "name": name, "input": inp, "layers": layers}
         rows, error_at, message = run(stack)
         cases.append({"stack": stack, "layers": rows, "error_at": error_at, "torch_error": message})
     seen = {k: 0 for k in KINDS}
+
+    def count(layers):
+        for layer in layers:
+            seen[kind_of(layer)] += 1
+            if isinstance(layer, dict) and "layers" in layer:
+                count(layer["layers"])
     for case in cases:
-        for layer in case["stack"]["layers"]:
-            seen["flatten" if layer == "flatten" else next(k for k in KINDS if k in layer)] += 1
+        count(case["stack"]["layers"])
     missing = [k for k, n in seen.items() if n == 0]
     if missing:
         sys.exit(f"kinds never generated: {missing}")
