@@ -218,6 +218,8 @@ func (c *calc) merge(f *flow) {
 		c.warn(Diagnostic{Code: WarnMergeJump, Field: "jump", Name: name, A: int64(other.jump.H * 1e6), B: int64(f.jump.H * 1e6)})
 	}
 	c.row.Out = out
+	c.row.OtherStore = other.store
+	f.grad = f.grad || other.grad
 	f.rf.H, f.rf.W = max(f.rf.H, other.rf.H), max(f.rf.W, other.rf.W)
 }
 

@@ -68,6 +68,14 @@ type Row struct {
 	CumParams int64 // parameters of this and every earlier row
 	RF        FPair // receptive field in input pixels
 	Jump      FPair // distance in input pixels between adjacent outputs
+
+	// Tensor identities for the memory model: the row whose output storage
+	// this row reads (InStore), writes (OutStore; views keep their input's)
+	// and, for merges, reads as its second input (OtherStore). −1 is the
+	// network input.
+	InStore, OutStore, OtherStore int32
+	// Grad: the input carries a gradient (some earlier row has parameters).
+	Grad bool
 }
 
 // Totals sums the rows of a result.
@@ -113,7 +121,9 @@ type flow struct {
 	shape Shape
 	rf    FPair
 	jump  FPair
+	store int32 // row whose output storage holds the tensor; −1 the input
 	ok    bool
+	grad  bool // the tensor carries a gradient
 }
 
 // tally gathers what the whole-stack checks need while rows are computed.
@@ -140,7 +150,7 @@ func (r *Result) Evaluate(s *Stack) {
 		clear(r.taps)
 	}
 	r.Output = Shape{}
-	f := flow{shape: s.Input, rf: FPair{1, 1}, jump: FPair{1, 1}, ok: true}
+	f := flow{shape: s.Input, rf: FPair{1, 1}, jump: FPair{1, 1}, store: -1, ok: true}
 	if !s.Input.Valid() {
 		f.ok = false
 		r.inputError(s.Input)
@@ -219,6 +229,7 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 		row.Path.n = n + 1
 	}
 	row.Layer, row.In, row.Status, row.Role, row.Unstrided = l, f.shape, StatusOK, role, unstrided
+	row.InStore, row.OtherStore, row.Grad = f.store, -1, f.grad
 	row.Out, row.Params, row.Buffers, row.MACs, row.CumParams = Shape{}, 0, 0, 0, 0
 	row.RF, row.Jump = FPair{}, FPair{}
 	if !f.ok {
@@ -247,6 +258,11 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 	}
 	f.shape = row.Out
 	row.RF, row.Jump = f.rf, f.jump
+	if k := l.Kind; k != KindFlatten && k != KindReshape {
+		f.store = int32(idx) // every other kind writes a new tensor
+	}
+	row.OutStore = f.store
+	f.grad = f.grad || row.Params > 0
 	r.count(idx, row, l.Kind, role)
 }
 

@@ -51,11 +51,81 @@ func (o Optimizer) String() string {
 // Optimizers lists the supported optimizers.
 func Optimizers() []Optimizer { return []Optimizer{SGD, Momentum, Adam, AdamW, Adagrad, RMSprop} }
 
+// Shard is how much model state is split across data-parallel GPUs: the
+// three stages of Rajbhandari et al. 2020 (ZeRO), each including the last.
+type Shard uint8
+
+// Sharding stages.
+const (
+	ShardNone       Shard = iota // every GPU holds everything
+	ShardOptimizer               // optimizer state (with any fp32 master weights) split
+	ShardGradients               // + gradients split
+	ShardParameters              // + the weights themselves split
+)
+
+var shardNames = [...]string{"none", "optimizer", "gradients", "parameters"}
+
+// String returns the stack-file value.
+func (s Shard) String() string {
+	if int(s) < len(shardNames) {
+		return shardNames[s]
+	}
+	return "invalid"
+}
+
+// Shards lists the sharding stages.
+func Shards() []Shard { return []Shard{ShardNone, ShardOptimizer, ShardGradients, ShardParameters} }
+
+// Defaults of the memory model (common practice; the CUDA figures are from
+// memory and vary by driver, library and GPU: measure yours and override).
+const (
+	DefaultWorkspace = 256 << 20 // convolution-algorithm workspace
+	DefaultOverhead  = 512 << 20 // CUDA context, library handles, allocator slack
+	DefaultHeadroom  = 0.10      // share of the budget kept free for fragmentation and spikes
+)
+
 // Training holds the settings of one training step. Zero values mean
-// defaults: batch 1, fp32, plain SGD, no budget.
+// defaults: batch 1 on one GPU, fp32, plain SGD, no sharding, no gradient
+// accumulation or checkpointing, no budget.
 type Training struct {
-	Batch     int64
-	Precision Precision
-	Optimizer Optimizer
-	Budget    int64 // bytes per GPU; 0 means no budget
+	Batch      int64 // samples per optimizer step, over all GPUs
+	Precision  Precision
+	Optimizer  Optimizer
+	Budget     int64 // bytes per GPU; 0 means no budget
+	GPUs       int64 // data-parallel GPUs; 0 means 1
+	Shard      Shard
+	Accumulate int64 // gradient-accumulation steps per optimizer step; 0 means 1
+	Checkpoint int64 // keep every k-th row's output and recompute the rest; 0 means off
+	Workspace  int64 // bytes; 0 means DefaultWorkspace
+	Overhead   int64 // bytes; 0 means DefaultOverhead
+	// Headroom is the share of the budget to keep free; HeadroomSet
+	// distinguishes an explicit 0 from the default.
+	Headroom    float64
+	HeadroomSet bool
+}
+
+// MicroBatch returns the samples one GPU holds per forward/backward pass:
+// ⌈batch / (GPUs · accumulation steps)⌉.
+func (t Training) MicroBatch() int64 {
+	b, g, a := max(t.Batch, 1), max(t.GPUs, 1), max(t.Accumulate, 1)
+	d := g * a
+	if d <= 0 || g > 1<<32 || a > 1<<32 {
+		return 1
+	}
+	return (b + d - 1) / d
+}
+
+// HeadroomShare returns the share of the budget kept free.
+func (t Training) HeadroomShare() float64 {
+	if t.HeadroomSet {
+		return t.Headroom
+	}
+	return DefaultHeadroom
+}
+
+func orDefault(v, d int64) int64 {
+	if v == 0 {
+		return d
+	}
+	return v
 }

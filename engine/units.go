@@ -136,3 +136,28 @@ func GroupDigits(n int64) string {
 	}
 	return b.String()
 }
+
+// ErrShare is returned (wrapped) by ParseShare for text that is not a share.
+var ErrShare = errors.New("not a share")
+
+// ParseShare reads a share of a whole: "10%" or "0.1". It must lie in [0, 0.9].
+func ParseShare(s string) (float64, error) {
+	t := strings.TrimSpace(s)
+	pct := strings.HasSuffix(t, "%")
+	v, err := strconv.ParseFloat(strings.TrimSpace(strings.TrimSuffix(t, "%")), 64)
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0, fmt.Errorf("%w: %q; write a percentage such as 10%% or a fraction such as 0.1", ErrShare, s)
+	}
+	if pct {
+		v /= 100
+	}
+	if v < 0 || v > 0.9 {
+		return 0, fmt.Errorf("%w: %q is outside 0%%–90%%", ErrShare, s)
+	}
+	return v, nil
+}
+
+// FormatShare writes a share as a percentage ("10%", "12.5%").
+func FormatShare(v float64) string {
+	return strconv.FormatFloat(math.Round(v*1e8)/1e6, 'f', -1, 64) + "%"
+}

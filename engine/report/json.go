@@ -18,7 +18,65 @@ type JSON struct {
 	Totals   JSONTotals  `json:"totals"`
 	Errors   []string    `json:"errors"`   // problems with the input itself
 	Warnings []string    `json:"warnings"` // reserved for stack-wide notes
+	Memory   *JSONMemory `json:"memory"`   // training memory per GPU (an estimate)
+	Fit      *JSONFit    `json:"fit"`      // null without a budget
 }
+
+// JSONMemory is the training-memory estimate for one GPU, in bytes.
+type JSONMemory struct {
+	Estimate    bool           `json:"estimate"` // always true: see the assumptions
+	Setup       JSONSetup      `json:"setup"`
+	Weights     int64          `json:"weights"`
+	Gradients   int64          `json:"gradients"`
+	Optimizer   int64          `json:"optimizer"`
+	Activations int64          `json:"activations"`
+	Workspace   int64          `json:"workspace"`
+	Overhead    int64          `json:"overhead"`
+	Total       int64          `json:"total"`
+	Budget      int64          `json:"budget"`  // 0: none
+	Reserve     int64          `json:"reserve"` // the headroom kept free
+	Fits        bool           `json:"fits"`
+	Inference   int64          `json:"inference"`
+	Assumptions JSONAssumption `json:"assumptions"`
+}
+
+// JSONSetup is the training setup the estimate is for.
+type JSONSetup struct {
+	Batch      int64  `json:"batch"`
+	MicroBatch int64  `json:"micro_batch"`
+	GPUs       int64  `json:"gpus"`
+	Precision  string `json:"precision"`
+	Optimizer  string `json:"optimizer"`
+	Shard      string `json:"shard"`
+	Accumulate int64  `json:"accumulate"`
+	Checkpoint int64  `json:"checkpoint"`
+}
+
+// JSONAssumption states what the estimate assumes.
+type JSONAssumption struct {
+	ActivationBytes int64   `json:"activation_bytes"`
+	MaskBytes       int64   `json:"mask_bytes"`
+	IndexBytes      int64   `json:"index_bytes"`
+	Headroom        float64 `json:"headroom"`
+	Note            string  `json:"note"`
+}
+
+// JSONFit holds the fit solver's answers, each with the category that
+// limits it.
+type JSONFit struct {
+	MaxBatch JSONAnswer `json:"max_batch"`
+	MaxWidth JSONAnswer `json:"max_width"`
+	MinGPUs  JSONAnswer `json:"min_gpus"`
+}
+
+// JSONAnswer is one answer: 0 means nothing fits.
+type JSONAnswer struct {
+	Value float64 `json:"value"`
+	Limit string  `json:"limit"`
+}
+
+// Caution is the sentence every memory figure comes with.
+const Caution = "Estimates: frameworks, convolution workspaces, allocator fragmentation and the CUDA runtime differ; keep headroom."
 
 // JSONLayer is one row of the flattened stack.
 type JSONLayer struct {
@@ -31,6 +89,7 @@ type JSONLayer struct {
 	Params   int64      `json:"params"`
 	Buffers  int64      `json:"buffers"`
 	MACs     int64      `json:"macs"`
+	ActBytes int64      `json:"act_bytes"` // activation bytes this layer keeps for backward, at the micro-batch
 	RF       [2]float64 `json:"rf"`
 	Jump     [2]float64 `json:"jump"`
 	Errors   []string   `json:"errors"`
@@ -45,8 +104,9 @@ type JSONTotals struct {
 	MACs    int64 `json:"macs"`
 }
 
-// BuildJSON converts a result into the JSON document.
-func BuildJSON(s *engine.Stack, r *engine.Result) *JSON {
+// BuildJSON converts an analysis into the JSON document.
+func BuildJSON(an *engine.Analysis) *JSON {
+	s, r, m := an.Stack, an.Result, &an.Memory
 	doc := &JSON{
 		Name:     s.Name,
 		Input:    [3]int64{s.Input.C, s.Input.H, s.Input.W},
@@ -78,6 +138,9 @@ func BuildJSON(s *engine.Stack, r *engine.Result) *JSON {
 		if row.Status == engine.StatusOK {
 			jl.Out = &[3]int64{row.Out.C, row.Out.H, row.Out.W}
 		}
+		if i < len(m.Rows) {
+			jl.ActBytes = m.Rows[i]
+		}
 		for _, d := range r.DiagsFor(i) {
 			switch d.Severity {
 			case engine.SevError:
@@ -90,12 +153,31 @@ func BuildJSON(s *engine.Stack, r *engine.Result) *JSON {
 		}
 		doc.Layers[i] = jl
 	}
+	t := an.Training
+	doc.Memory = &JSONMemory{
+		Estimate: true,
+		Setup: JSONSetup{Batch: max(t.Batch, 1), MicroBatch: m.MicroBatch, GPUs: max(t.GPUs, 1),
+			Precision: t.Precision.String(), Optimizer: t.Optimizer.String(), Shard: t.Shard.String(),
+			Accumulate: max(t.Accumulate, 1), Checkpoint: t.Checkpoint},
+		Weights: m.Weights, Gradients: m.Gradients, Optimizer: m.Optimizer, Activations: m.Activations,
+		Workspace: m.Workspace, Overhead: m.Overhead, Total: m.Total, Budget: m.Budget, Reserve: m.Reserve,
+		Fits: m.Fits, Inference: m.Inference,
+		Assumptions: JSONAssumption{ActivationBytes: engine.ActivationBytes(t.Precision), MaskBytes: an.Assumptions.MaskBytes,
+			IndexBytes: an.Assumptions.IndexBytes, Headroom: t.HeadroomShare(), Note: Caution},
+	}
+	if an.Fit.HasBudget {
+		doc.Fit = &JSONFit{
+			MaxBatch: JSONAnswer{float64(an.Fit.MaxBatch), an.Fit.BatchLimit},
+			MaxWidth: JSONAnswer{an.Fit.MaxWidth, an.Fit.WidthLimit},
+			MinGPUs:  JSONAnswer{float64(an.Fit.MinGPUs), an.Fit.GPUsLimit},
+		}
+	}
 	return doc
 }
 
 // WriteJSON writes the JSON report, indented, with a final newline.
-func WriteJSON(w io.Writer, s *engine.Stack, r *engine.Result) error {
+func WriteJSON(w io.Writer, an *engine.Analysis) error {
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
-	return enc.Encode(BuildJSON(s, r))
+	return enc.Encode(BuildJSON(an))
 }

@@ -11,8 +11,9 @@ import (
 )
 
 // WriteText writes a plain-text table of the stack for a terminal: one line
-// per layer, then the totals and every diagnostic with its layer.
-func WriteText(w io.Writer, s *engine.Stack, r *engine.Result) error {
+// per layer, then the totals, the memory estimate and every diagnostic.
+func WriteText(w io.Writer, an *engine.Analysis) error {
+	s, r := an.Stack, an.Result
 	title := s.Name
 	if title == "" {
 		title = "(unnamed stack)"
@@ -65,6 +66,7 @@ func WriteText(w io.Writer, s *engine.Stack, r *engine.Result) error {
 	fmt.Fprintf(w, "\ntotal  %s params (%s)  ·  %s buffers  ·  %s MACs per sample\n",
 		engine.FormatCount(r.Totals.Params), engine.GroupDigits(r.Totals.Params),
 		engine.GroupDigits(r.Totals.Buffers), engine.FormatCount(r.Totals.MACs))
+	writeMemory(w, an)
 	if len(r.Diags) > 0 {
 		fmt.Fprintf(w, "\n%d %s, %d %s, %d %s\n", r.Errors, pl(r.Errors, "error", "errors"), r.Warnings, pl(r.Warnings, "warning", "warnings"), r.Notes, pl(r.Notes, "note", "notes"))
 		for _, d := range r.Diags {
@@ -135,4 +137,67 @@ func prefix(p engine.Path, n int) engine.Path {
 		p = p.Parent()
 	}
 	return p
+}
+
+// writeMemory writes the training-memory estimate and the fit answers.
+func writeMemory(w io.Writer, an *engine.Analysis) {
+	m, t := &an.Memory, an.Training
+	fmt.Fprintf(w, "\ntraining memory per GPU — estimate · batch %d on %d GPU%s (micro-batch %d) · %s · %s",
+		max(t.Batch, 1), max(t.GPUs, 1), plS(max(t.GPUs, 1)), m.MicroBatch, t.Precision, t.Optimizer)
+	if t.Shard != engine.ShardNone {
+		fmt.Fprintf(w, " · %s sharded", t.Shard)
+	}
+	if t.Checkpoint > 0 {
+		fmt.Fprintf(w, " · checkpoint every %d", t.Checkpoint)
+	}
+	fmt.Fprintln(w)
+	tb := table{align: []byte("lrr")}
+	for _, c := range m.Categories() {
+		share := ""
+		if m.Total > 0 {
+			share = fmt.Sprintf("%.0f%%", 100*float64(c.Bytes)/float64(m.Total))
+		}
+		tb.add("  "+c.Name, engine.FormatBytes(c.Bytes), share)
+	}
+	tb.add("  total", engine.FormatBytes(m.Total), "")
+	tb.write(w)
+	if m.Budget > 0 {
+		verdict := "fits"
+		if !m.Fits {
+			verdict = "does NOT fit"
+		}
+		fmt.Fprintf(w, "  budget %s, %s (%s) kept free → %s; %s left\n", engine.FormatBytes(m.Budget),
+			engine.FormatBytes(m.Reserve), engine.FormatShare(t.HeadroomShare()), verdict, engine.FormatBytes(m.Budget-m.Reserve-m.Total))
+	}
+	fmt.Fprintf(w, "  inference alone: %s (weights and the largest set of live activations)\n", engine.FormatBytes(m.Inference))
+	if f := an.Fit; f.HasBudget {
+		fmt.Fprintf(w, "  fits at most: batch %s (%s limit) · width ×%.2f (%s limit) · ", answer(f.MaxBatch), f.BatchLimit, f.MaxWidth, orDash(f.WidthLimit))
+		if f.MinGPUs > 0 {
+			fmt.Fprintf(w, "fewest GPUs %d\n", f.MinGPUs)
+		} else {
+			fmt.Fprintf(w, "no GPU count up to 65536 fits (%s limit)\n", f.GPUsLimit)
+		}
+	}
+	fmt.Fprintf(w, "  %s Sizes in binary units (1 GiB = 1024³ bytes).\n", Caution)
+}
+
+func plS(n int64) string {
+	if n == 1 {
+		return ""
+	}
+	return "s"
+}
+
+func answer(n int64) string {
+	if n == 0 {
+		return "none"
+	}
+	return engine.GroupDigits(n)
+}
+
+func orDash(s string) string {
+	if s == "" {
+		return "—"
+	}
+	return s
 }

@@ -350,9 +350,13 @@ func (d *decoder) shape(n *yaml.Node, field string) (engine.Shape, bool) {
 	return engine.Shape{C: c, H: h, W: w}, ok1 && ok2 && ok3
 }
 
+// TrainingKeys lists the keys of the training section.
+func TrainingKeys() []string {
+	return []string{"batch", "precision", "optimizer", "budget", "gpus", "shard", "accumulate", "checkpoint", "workspace", "overhead", "headroom"}
+}
+
 func (d *decoder) training(n *yaml.Node) engine.Training {
 	var t engine.Training
-	keys := []string{"batch", "precision", "optimizer", "budget"}
 	for _, kv := range d.mapping(n, "training", "training settings") {
 		k, v := kv[0], kv[1]
 		field := "training → " + k.Value
@@ -366,18 +370,47 @@ func (d *decoder) training(n *yaml.Node) engine.Training {
 			i, _ := d.choice(v, field, names(engine.Optimizers()))
 			t.Optimizer = engine.Optimizer(i)
 		case "budget":
-			if s := d.scalar(v, field, "a memory size such as 24GiB"); s != nil {
-				b, err := engine.ParseBytes(s.Value)
+			t.Budget = d.size(v, field)
+		case "workspace":
+			t.Workspace = d.size(v, field)
+		case "overhead":
+			t.Overhead = d.size(v, field)
+		case "gpus":
+			t.GPUs, _ = d.int(v, field, 1, 1<<16)
+		case "shard":
+			i, _ := d.choice(v, field, names(engine.Shards()))
+			t.Shard = engine.Shard(i)
+		case "accumulate":
+			t.Accumulate, _ = d.int(v, field, 1, 1<<16)
+		case "checkpoint":
+			t.Checkpoint, _ = d.int(v, field, 0, 1<<20)
+		case "headroom":
+			if s := d.scalar(v, field, "a share such as 10% or 0.1"); s != nil {
+				h, err := engine.ParseShare(s.Value)
 				if err != nil {
 					d.fail(s, field, ErrRange, "%v", err)
 				}
-				t.Budget = b
+				t.Headroom, t.HeadroomSet = h, err == nil
 			}
 		default:
-			d.unknown(k, "training", keys)
+			d.unknown(k, "training", TrainingKeys())
 		}
 	}
 	return t
+}
+
+// size reads a memory size such as 24GiB.
+func (d *decoder) size(v *yaml.Node, field string) int64 {
+	s := d.scalar(v, field, "a memory size such as 24GiB")
+	if s == nil {
+		return 0
+	}
+	b, err := engine.ParseBytes(s.Value)
+	if err != nil {
+		d.fail(s, field, ErrRange, "%v", err)
+		return 0
+	}
+	return b
 }
 
 func names[T fmt.Stringer](xs []T) []string {

@@ -103,6 +103,27 @@ func training(t engine.Training) *yaml.Node {
 	if t.Budget != 0 {
 		put(m, "budget", strNode(engine.FormatBytesExact(t.Budget)))
 	}
+	if t.GPUs > 1 {
+		put(m, "gpus", intNode(t.GPUs))
+	}
+	if t.Shard != engine.ShardNone {
+		put(m, "shard", strNode(t.Shard.String()))
+	}
+	if t.Accumulate > 1 {
+		put(m, "accumulate", intNode(t.Accumulate))
+	}
+	if t.Checkpoint > 0 {
+		put(m, "checkpoint", intNode(t.Checkpoint))
+	}
+	if t.Workspace != 0 {
+		put(m, "workspace", strNode(engine.FormatBytesExact(t.Workspace)))
+	}
+	if t.Overhead != 0 {
+		put(m, "overhead", strNode(engine.FormatBytesExact(t.Overhead)))
+	}
+	if t.HeadroomSet {
+		put(m, "headroom", strNode(engine.FormatShare(t.Headroom)))
+	}
 	if len(m.Content) == 0 {
 		return nil
 	}

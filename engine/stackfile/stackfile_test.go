@@ -60,7 +60,8 @@ func TestEveryField(t *testing.T) {
 name: all fields
 note: "two\nlines"
 input: [3, 33, 47]
-training: {batch: 32, precision: bf16-mixed, optimizer: adamw, budget: 24GiB}
+training: {batch: 32, precision: bf16-mixed, optimizer: adamw, budget: 24GiB, gpus: 8, shard: gradients,
+  accumulate: 2, checkpoint: 4, workspace: 1GiB, overhead: 600MiB, headroom: 12.5%}
 layers:
   - {conv: 32, kernel: [3, 5], stride: [1, 2], pad: [1, 2], dilation: 2, groups: 1, bias: false, name: stem, note: first}
   - {conv: 32, kernel: 3, groups: depthwise, pad: same}
@@ -89,7 +90,9 @@ layers:
 	if !reflect.DeepEqual(s.Layers[0], want) {
 		t.Errorf("layer 1 = %+v\nwant %+v", s.Layers[0], want)
 	}
-	if tr := s.Training; tr.Batch != 32 || tr.Precision != engine.BF16Mixed || tr.Optimizer != engine.AdamW || tr.Budget != 24<<30 {
+	if tr := s.Training; tr.Batch != 32 || tr.Precision != engine.BF16Mixed || tr.Optimizer != engine.AdamW || tr.Budget != 24<<30 ||
+		tr.GPUs != 8 || tr.Shard != engine.ShardGradients || tr.Accumulate != 2 || tr.Checkpoint != 4 || tr.Workspace != 1<<30 ||
+		tr.Overhead != 600<<20 || !tr.HeadroomSet || tr.Headroom != 0.125 {
 		t.Errorf("training = %+v", tr)
 	}
 	if !s.Layers[1].Depthwise || s.Layers[1].Pad.Mode != engine.PadSame || s.Layers[2].Pad.Mode != engine.PadValid {
@@ -155,6 +158,10 @@ func TestLoadErrors(t *testing.T) {
 			ErrSyntax, `1:1: not valid YAML: did not find expected ',' or ']' (check indentation, colons, quotes and brackets from this line on)`},
 		{"budget", "stackfit: 1\ninput: [3, 8, 8]\ntraining: {budget: lots}\nlayers: []\n",
 			ErrRange, `3:20: training → budget: not a memory size: "lots"; write a number and a unit, e.g. 24GiB, 24GB or 24000MiB`},
+		{"headroom", "stackfit: 1\ninput: [3, 8, 8]\ntraining: {headroom: 95%}\nlayers: []\n",
+			ErrRange, `3:22: training → headroom: not a share: "95%" is outside 0%–90%`},
+		{"shard", "stackfit: 1\ninput: [3, 8, 8]\ntraining: {shard: params}\nlayers: []\n",
+			ErrRange, `3:19: training → shard: "params" is not one of none, optimizer, gradients, parameters`},
 		{"binary", "stackfit: 1\x00\x01", ErrSyntax, `the file holds binary data (a NUL byte); a stack file is YAML text`},
 		{"empty", "", ErrMissing, `the file is empty; a stack file needs at least input: and layers:`},
 		{"slope on relu", head + "  - {act: relu, slope: 0.1}\n",

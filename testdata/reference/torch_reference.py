@@ -3,7 +3,10 @@
 
 Builds every reference stack as torch.nn layers, runs a dummy input through
 them one layer at a time, and records per layer the output shape, the number
-of trainable parameters and the number of buffer elements. Writes
+of trainable parameters and the number of buffer elements; for every stack
+PyTorch runs whole, also the bytes autograd keeps for the backward pass per
+sample in fp32 (saved_tensors_hooks, each storage once, batch 4 minus batch
+2 halved, so weights cancel). Writes
 shapes.json beside this script; engine/reference_test.go compares the engine
 to it exactly.
 
@@ -151,9 +154,13 @@ class Runner:
     shortcut (a strided 1×1 convolution plus batch norm when the shape
     changes, He et al. 2016 option B), concat/add merge a named output."""
 
-    def __init__(self):
+    def __init__(self, train=False):
         self.rows = []
         self.taps = {}
+        self.train = train
+
+    def mode(self, m):
+        return m.train() if self.train else m.eval()
 
     def row(self, path, y, m):
         self.rows.append({
@@ -193,9 +200,8 @@ class Runner:
             return y
         if unstrided and kind in STRIDED:
             layer = dict(layer, stride=1)
-        m = build(layer, x.shape[1]).eval()
-        with torch.no_grad():
-            y = m(x)
+        m = self.mode(build(layer, x.shape[1]))
+        y = m(x)
         self.row(path, y, m)
         return y
 
@@ -217,14 +223,12 @@ class Runner:
                         st = pair(b.get("stride", b["kernel"] if k == "pool" else 1))
                         sh, sw = sh * st[0], sw * st[1]
                 norm = layer.get("shortcut-norm", True)
-                conv = nn.Conv2d(inp.shape[1], x.shape[1], 1, (sh, sw), bias=not norm).eval()
-                with torch.no_grad():
-                    sc = conv(inp)
+                conv = self.mode(nn.Conv2d(inp.shape[1], x.shape[1], 1, (sh, sw), bias=not norm))
+                sc = conv(inp)
                 self.row(rp + ["s1"], sc, conv)
                 if norm:
-                    bn = nn.BatchNorm2d(x.shape[1]).eval()
-                    with torch.no_grad():
-                        sc = bn(sc)
+                    bn = self.mode(nn.BatchNorm2d(x.shape[1]))
+                    sc = bn(sc)
                     self.row(rp + ["s2"], sc, bn)
             if sc.shape != x.shape:
                 raise ValueError("shortcut shape differs")
@@ -235,6 +239,28 @@ class Runner:
                 x = act(x)
                 self.row(rp + ["act"], x, act)
         return x
+
+
+def saved_bytes(stack, batch):
+    """Bytes of the tensors autograd keeps for the backward pass when the
+    stack runs in training mode on a batch, each storage counted once."""
+    kept = {}
+
+    def pack(t):
+        st = t.storage()
+        kept[st.data_ptr()] = st.nbytes()
+        return t
+
+    with torch.autograd.graph.saved_tensors_hooks(pack, lambda t: t):
+        Runner(train=True).items(stack["layers"], [], torch.zeros(batch, *stack["input"]), False)
+    return sum(kept.values())
+
+
+def saved_per_sample(stack):
+    """Activation bytes kept per sample: the difference between batches of
+    4 and 2 removes the weights and other batch-independent tensors."""
+    torch.manual_seed(0)
+    return (saved_bytes(stack, 4) - saved_bytes(stack, 2)) // 2
 
 
 def run(stack):
@@ -489,7 +515,10 @@ def main():
     for name, inp, layers in list(published()) + list(generated(rng, GENERATED)) + list(block_cases(rng)):
         stack = {"stackfit": 1, "name": name, "input": inp, "layers": layers}
         rows, error_at, message = run(stack)
-        cases.append({"stack": stack, "layers": rows, "error_at": error_at, "torch_error": message})
+        case = {"stack": stack, "layers": rows, "error_at": error_at, "torch_error": message}
+        if error_at is None:
+            case["saved_per_sample"] = saved_per_sample(stack)
+        cases.append(case)
     seen = {k: 0 for k in KINDS}
 
     def count(layers):

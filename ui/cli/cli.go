@@ -56,10 +56,24 @@ report flags:
   --format text|json   output format (default text)
   -o FILE              write the report to FILE instead of standard output
 
+training flags (override the stack file's training section):
+  --batch N            samples per optimizer step over all GPUs
+  --precision P        fp32, fp16-mixed, bf16-mixed or bf16
+  --optimizer O        sgd, momentum, adam, adamw, adagrad or rmsprop
+  --budget SIZE        GPU memory per device: 24GiB, 24GB, 24000MiB
+  --gpus N             data-parallel GPUs
+  --shard S            none, optimizer, gradients or parameters (ZeRO stages)
+  --accumulate N       gradient-accumulation steps per optimizer step
+  --checkpoint K       keep every K-th layer's output, recompute the rest
+  --workspace SIZE     convolution workspace (default 256MiB)
+  --overhead SIZE      CUDA context and library overhead (default 512MiB)
+  --headroom SHARE     share of the budget kept free (default 10%)
+
 exit status: 0 clean, 1 the stack has errors, 2 bad usage or unreadable file
 
 example:
   stackfit report net.yaml --format json -o net.json
+  stackfit report net.yaml --batch 512 --precision bf16-mixed --budget 80GiB
 `
 
 func showExample(std IO) int {
@@ -68,8 +82,8 @@ func showExample(std IO) int {
 		fmt.Fprintf(std.Err, "stackfit: built-in example: %v\n", err)
 		return ExitUsage
 	}
-	r := engine.Evaluate(s)
-	if err := report.WriteText(std.Out, s, r); err != nil {
+	an := engine.Analyze(s, s.Training, engine.DefaultAssumptions())
+	if err := report.WriteText(std.Out, an); err != nil {
 		fmt.Fprintf(std.Err, "stackfit: %v\n", err)
 		return ExitUsage
 	}
@@ -81,6 +95,7 @@ func runReport(args []string, std IO) int {
 	fs.SetOutput(std.Err)
 	format := fs.String("format", "text", "output format: text or json")
 	out := fs.String("o", "", "write the report to this file")
+	tf := addTrainingFlags(fs)
 	fs.Usage = func() { fmt.Fprint(std.Err, usage) }
 	pos, err := parseInterleaved(fs, args)
 	if err != nil {
@@ -90,7 +105,7 @@ func runReport(args []string, std IO) int {
 		fmt.Fprintf(std.Err, "stackfit report: give exactly one stack file (got %d); e.g. stackfit report net.yaml\n", len(pos))
 		return ExitUsage
 	}
-	var write func(io.Writer, *engine.Stack, *engine.Result) error
+	var write func(io.Writer, *engine.Analysis) error
 	switch *format {
 	case "text":
 		write = report.WriteText
@@ -105,10 +120,16 @@ func runReport(args []string, std IO) int {
 		fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
 		return ExitUsage
 	}
-	r := engine.Evaluate(s)
+	t, err := tf.apply(s.Training)
+	if err != nil {
+		fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
+		return ExitUsage
+	}
+	an := engine.Analyze(s, t, engine.DefaultAssumptions())
+	r := an.Result
 	if *out != "" {
 		var buf strings.Builder
-		if err := write(&buf, s, r); err != nil {
+		if err := write(&buf, an); err != nil {
 			fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
 			return ExitUsage
 		}
@@ -116,7 +137,7 @@ func runReport(args []string, std IO) int {
 			fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
 			return ExitUsage
 		}
-	} else if err := write(std.Out, s, r); err != nil {
+	} else if err := write(std.Out, an); err != nil {
 		fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
 		return ExitUsage
 	}

@@ -108,3 +108,44 @@ func TestReportToFile(t *testing.T) {
 		t.Fatalf("report file: %v", err)
 	}
 }
+
+// TestTrainingFlags checks that flags override the file's training section
+// and that bad values name the flag.
+func TestTrainingFlags(t *testing.T) {
+	out, errs, code := run(t, "", "report", example, "--format", "json", "--batch", "64", "--precision", "fp32",
+		"--optimizer", "sgd", "--gpus", "2", "--shard", "optimizer", "--budget", "8GiB", "--headroom", "20%")
+	if code != ExitOK {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	var doc struct {
+		Memory struct {
+			Setup struct {
+				Batch, MicroBatch, GPUs int64
+				Precision, Optimizer    string
+			} `json:"setup"`
+			Budget, Reserve int64
+		} `json:"memory"`
+		Fit *struct {
+			MaxBatch struct {
+				Value float64
+				Limit string
+			} `json:"max_batch"`
+		} `json:"fit"`
+	}
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	m := doc.Memory
+	if m.Setup.Batch != 64 || m.Setup.GPUs != 2 || m.Setup.Precision != "fp32" || m.Setup.Optimizer != "sgd" || m.Budget != 8<<30 || m.Reserve != (8<<30)/5+1 { // 20% rounded up
+		t.Errorf("memory %+v", m)
+	}
+	if doc.Fit == nil || doc.Fit.MaxBatch.Value < 64 || doc.Fit.MaxBatch.Limit != "activations" {
+		t.Errorf("fit %+v", doc.Fit)
+	}
+	for _, bad := range [][]string{{"--batch", "0"}, {"--precision", "fp8"}, {"--budget", "lots"}, {"--headroom", "2"}} {
+		_, errs, code := run(t, "", append([]string{"report", example}, bad...)...)
+		if code != ExitUsage || !strings.Contains(errs, bad[0]) {
+			t.Errorf("%v: exit %d, stderr %q", bad, code, errs)
+		}
+	}
+}

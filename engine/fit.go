@@ -1,0 +1,124 @@
+package engine
+
+import "math"
+
+// Fit holds the fit solver's answers for a stack, a training setup and a
+// budget. A zero answer means nothing fits; the Limit fields name the
+// category that stands in the way (the largest one just past the answer).
+type Fit struct {
+	MaxBatch      int64 // largest global batch that fits (micro-batch × GPUs × accumulation)
+	MaxMicroBatch int64 // largest per-GPU micro-batch that fits
+	BatchLimit    string
+
+	MaxWidth   float64 // largest width multiplier that fits at the current batch (widths rounded to multiples of 8)
+	WidthLimit string
+
+	MinGPUs    int64 // fewest GPUs, with the chosen sharding, that fit the current batch
+	GPUsLimit  string
+	HasBudget  bool // false: no budget was given, and there are no answers
+	WidthExact bool // the width search converged within 0.01
+}
+
+// maxSearchGPUs bounds the GPU-count search.
+const maxSearchGPUs = 1 << 16
+
+// SolveFit answers: the largest batch that fits, the largest width
+// multiplier at the current batch, and the fewest GPUs for the current
+// batch. m must be r.Memory(t, a, m) for the same r and t. Memory is affine
+// in the micro-batch, so the batch is solved directly; the GPU count is
+// found by bisection over a monotone function; the width multiplier by
+// bisection over re-evaluations of the scaled stack.
+func SolveFit(s *Stack, r *Result, m *Memory, t Training, a Assumptions) Fit {
+	var f Fit
+	if t.Budget <= 0 {
+		return f
+	}
+	f.HasBudget = true
+	usable := t.Budget - m.Reserve
+
+	// Batch: total(micro) = fixed + micro·per, exactly (integers).
+	probe := *m
+	probe.Rows = nil
+	per := m.ActPerSample + m.ScratchPerSample
+	fixed := m.Total - m.MicroBatch*per
+	if per > 0 && usable >= fixed+per {
+		f.MaxMicroBatch = (usable - fixed) / per
+	}
+	steps := max(t.GPUs, 1) * max(t.Accumulate, 1)
+	f.MaxBatch = f.MaxMicroBatch * steps
+	if f.MaxMicroBatch > 0 {
+		f.BatchLimit = CatActivations
+	} else {
+		one := t
+		one.Batch = steps
+		probe.Retarget(r, one)
+		f.BatchLimit = probe.Largest()
+	}
+
+	// GPUs: per-GPU memory never grows with more GPUs.
+	fitsWith := func(g int64) (bool, string) {
+		tt := t
+		tt.GPUs = g
+		probe.Retarget(r, tt)
+		return probe.Fits, probe.Largest()
+	}
+	if ok, _ := fitsWith(maxSearchGPUs); ok {
+		lo, hi := int64(1), int64(maxSearchGPUs) // invariant: hi fits
+		if ok1, _ := fitsWith(1); ok1 {
+			hi = 1
+		}
+		for hi-lo > 1 {
+			mid := lo + (hi-lo)/2
+			if ok, _ := fitsWith(mid); ok {
+				hi = mid
+			} else {
+				lo = mid
+			}
+		}
+		f.MinGPUs = hi
+		if hi > 1 {
+			_, f.GPUsLimit = fitsWith(hi - 1)
+		}
+	} else {
+		_, f.GPUsLimit = fitsWith(maxSearchGPUs)
+	}
+
+	f.MaxWidth, f.WidthLimit, f.WidthExact = maxWidth(s, t, a)
+	return f
+}
+
+// maxWidth bisects the width multiplier on a log scale between 1/32 and 32.
+func maxWidth(s *Stack, t Training, a Assumptions) (float64, string, bool) {
+	var r Result
+	var m Memory
+	try := func(alpha float64) (bool, string) {
+		scaled, err := ScaleWidth(s, alpha, 8)
+		if err != nil {
+			return false, CatWeights
+		}
+		r.Evaluate(scaled)
+		if r.Errors > 0 {
+			return false, CatWeights
+		}
+		r.Memory(t, a, &m)
+		return m.Fits, m.Largest()
+	}
+	lo, hi := math.Log(1.0/32), math.Log(32)
+	if ok, _ := try(math.Exp(lo)); !ok {
+		_, lim := try(math.Exp(lo))
+		return 0, lim, true
+	}
+	if ok, _ := try(math.Exp(hi)); ok {
+		return 32, "", false
+	}
+	for i := 0; i < 40 && math.Exp(hi)-math.Exp(lo) > 0.005; i++ {
+		mid := (lo + hi) / 2
+		if ok, _ := try(math.Exp(mid)); ok {
+			lo = mid
+		} else {
+			hi = mid
+		}
+	}
+	_, lim := try(math.Exp(hi))
+	return math.Floor(math.Exp(lo)*100) / 100, lim, true
+}

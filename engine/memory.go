@@ -1,0 +1,366 @@
+package engine
+
+import "math"
+
+// Assumptions are the device facts the memory model needs that a stack
+// file does not say. DefaultAssumptions describes a CUDA GPU.
+type Assumptions struct {
+	MaskBytes  int64 // bytes per dropout-mask element (1 on CUDA GPUs, 4 in PyTorch's CPU dropout)
+	IndexBytes int64 // bytes per max-pooling index (int64)
+}
+
+// DefaultAssumptions returns the GPU figures: 1-byte dropout masks and
+// 8-byte pooling indices, as PyTorch keeps them on CUDA devices.
+func DefaultAssumptions() Assumptions { return Assumptions{MaskBytes: 1, IndexBytes: 8} }
+
+// bytesPer gives the bytes per parameter of the compute copy, the gradient,
+// the fp32 master copy (mixed precision only) and one optimizer-state slot.
+func bytesPer(p Precision) (weight, grad, master, slot int64) {
+	switch p {
+	case FP16Mixed, BF16Mixed:
+		return 2, 2, 4, 4
+	case BF16:
+		return 2, 2, 0, 2
+	}
+	return 4, 4, 0, 4
+}
+
+// ActivationBytes is the size of one stored activation value.
+func ActivationBytes(p Precision) int64 {
+	if p == FP32 {
+		return 4
+	}
+	return 2
+}
+
+// OptimizerSlots is the optimizer state kept per parameter: SGD none,
+// momentum one buffer, Adam and AdamW two moments, Adagrad one sum of
+// squares, RMSprop one square average (PyTorch's defaults).
+func OptimizerSlots(o Optimizer) int64 {
+	switch o {
+	case Momentum, Adagrad, RMSprop:
+		return 1
+	case Adam, AdamW:
+		return 2
+	}
+	return 0
+}
+
+// ModelState returns the bytes of model state one GPU holds for params
+// trainable parameters: weights (the compute copy and, under mixed
+// precision, the fp32 master copy), gradients and optimizer state. With
+// sharding over t.GPUs devices, the stages of Rajbhandari et al. 2020 split,
+// in turn, the optimizer state (with the master copy), the gradients and the
+// compute weights; a split share rounds up.
+func ModelState(params int64, t Training) (weights, grads, opt int64) {
+	w, g, m, slot := bytesPer(t.Precision)
+	n := max(t.GPUs, 1)
+	split := func(v int64, on bool) int64 {
+		if !on {
+			return v
+		}
+		return (v + n - 1) / n
+	}
+	var ov bool
+	compute := split(mul(&ov, params, w), t.Shard >= ShardParameters)
+	master := split(mul(&ov, params, m), t.Shard >= ShardOptimizer)
+	grads = split(mul(&ov, params, g), t.Shard >= ShardGradients)
+	opt = split(mul(&ov, params, mul(&ov, slot, OptimizerSlots(t.Optimizer))), t.Shard >= ShardOptimizer)
+	if ov {
+		return math.MaxInt64 / 4, math.MaxInt64 / 4, math.MaxInt64 / 4
+	}
+	return compute + master, grads, opt
+}
+
+// Memory is the estimated memory of one training step on one GPU, in bytes.
+// It is an estimate: frameworks, kernels, allocator fragmentation and the
+// CUDA runtime differ; keep the headroom.
+type Memory struct {
+	MicroBatch  int64 // samples per GPU per pass
+	Weights     int64 // parameters (and fp32 master copy) plus buffers
+	Gradients   int64
+	Optimizer   int64
+	Activations int64 // tensors kept for the backward pass
+	Workspace   int64 // convolution workspace and the backward pass's gradient scratch
+	Overhead    int64 // CUDA context and library handles
+	Total       int64
+	Budget      int64 // 0 when none
+	Reserve     int64 // the part of the budget kept free (headroom)
+	Fits        bool  // Total ≤ Budget − Reserve (true when there is no budget)
+
+	ActPerSample     int64   // activation bytes per sample
+	ScratchPerSample int64   // backward scratch per sample
+	LivePerSample    int64   // most activation elements alive at once in inference, per sample
+	Inference        int64   // weights at compute precision plus the largest set of live activations
+	Rows             []int64 // activation bytes each row keeps, at the micro-batch
+
+	seen []int32 // scratch: storage → last epoch counted
+}
+
+// Category names, in display order.
+const (
+	CatWeights     = "weights"
+	CatGradients   = "gradients"
+	CatOptimizer   = "optimizer"
+	CatActivations = "activations"
+	CatWorkspace   = "workspace"
+	CatOverhead    = "overhead"
+)
+
+// Categories returns the per-category bytes in display order.
+func (m *Memory) Categories() [6]struct {
+	Name  string
+	Bytes int64
+} {
+	return [6]struct {
+		Name  string
+		Bytes int64
+	}{{CatWeights, m.Weights}, {CatGradients, m.Gradients}, {CatOptimizer, m.Optimizer},
+		{CatActivations, m.Activations}, {CatWorkspace, m.Workspace}, {CatOverhead, m.Overhead}}
+}
+
+// Largest returns the name of the biggest category.
+func (m *Memory) Largest() string {
+	best, name := int64(-1), ""
+	for _, c := range m.Categories() {
+		if c.Bytes > best {
+			best, name = c.Bytes, c.Name
+		}
+	}
+	return name
+}
+
+// Memory estimates the training memory of the evaluated stack under t into
+// m (reusing m's storage). Rows with unknown numbers count nothing.
+func (r *Result) Memory(t Training, a Assumptions, m *Memory) {
+	rows := m.Rows[:0]
+	m.MicroBatch = t.MicroBatch()
+	perSample, scratch, peakLive := r.activationProfile(t, a, m, &rows)
+	m.Rows = rows
+	m.ActPerSample, m.ScratchPerSample, m.LivePerSample = perSample, scratch, peakLive
+	m.Retarget(r, t)
+}
+
+// Retarget recomputes the categories for other batch, GPU and sharding
+// settings of the same stack, reusing the per-sample profile (activation
+// memory is affine in the batch). Rows keeps its earlier figures.
+func (m *Memory) Retarget(r *Result, t Training) {
+	m.MicroBatch = t.MicroBatch()
+	m.fill(r, t)
+}
+
+// fill computes the categories from the per-sample profile.
+func (m *Memory) fill(r *Result, t Training) {
+	var ov bool
+	e := ActivationBytes(t.Precision)
+	m.Weights, m.Gradients, m.Optimizer = ModelState(r.Totals.Params, t)
+	bufBytes := int64(4)
+	if t.Precision == BF16 {
+		bufBytes = 2
+	}
+	m.Weights = add(&ov, m.Weights, mul(&ov, r.Totals.Buffers, bufBytes))
+	m.Activations = mul(&ov, m.ActPerSample, m.MicroBatch)
+	m.Workspace = add(&ov, orDefault(t.Workspace, DefaultWorkspace), mul(&ov, m.ScratchPerSample, m.MicroBatch))
+	m.Overhead = orDefault(t.Overhead, DefaultOverhead)
+	total := int64(0)
+	for _, c := range m.Categories() {
+		total = add(&ov, total, c.Bytes)
+	}
+	w, _, _, _ := bytesPer(t.Precision)
+	m.Inference = add(&ov, add(&ov, mul(&ov, r.Totals.Params, w), mul(&ov, r.Totals.Buffers, bufBytes)), mul(&ov, mul(&ov, m.LivePerSample, e), m.MicroBatch))
+	if ov {
+		total = math.MaxInt64
+	}
+	m.Total = total
+	m.Budget = t.Budget
+	m.Reserve = int64(math.Ceil(float64(t.Budget) * t.HeadroomShare()))
+	m.Fits = t.Budget == 0 || (!ov && m.Total <= t.Budget-m.Reserve)
+}
+
+// activationProfile walks the rows once and returns the activation bytes
+// kept per sample, the backward scratch per sample and the largest number
+// of activation elements alive at once in a forward pass without gradients
+// (per sample). It appends each row's kept bytes at the micro-batch to rows.
+//
+// What a row keeps follows what PyTorch's autograd saves (calibrated with
+// torch.autograd.graph.saved_tensors_hooks, testdata/reference):
+// convolutions, dense layers and norms keep their input; relu, sigmoid and
+// tanh their output; leaky-relu, gelu and silu their input; pooling its
+// input, max pooling also int64 indices per output value; group, instance
+// and layer norm their per-sample statistics too; dropout its mask;
+// upsampling, flatten, reshape and merges nothing. A tensor kept by two rows
+// counts once. Rows before the first layer with parameters keep nothing
+// unless they have parameters themselves: no gradient flows there.
+// With checkpointing every k rows, only each k-th row's output is kept,
+// plus the largest segment's tensors while it is recomputed (Chen et al.
+// 2016).
+func (r *Result) activationProfile(t Training, a Assumptions, m *Memory, rows *[]int64) (perSample, scratch, peakLive int64) {
+	e := ActivationBytes(t.Precision)
+	n := len(r.Rows)
+	if cap(m.seen) < n+1 {
+		m.seen = make([]int32, n+1)
+	}
+	seen := m.seen[:n+1]
+	for i := range seen {
+		seen[i] = -1
+	}
+	micro := m.MicroBatch
+	var ov bool
+	k := int64(t.Checkpoint)
+	var segment, segMax, kept int64
+	epoch := int32(0)
+	// keep counts a tensor (by storage) once per epoch; returns its bytes.
+	keep := func(store int32, elems int64) int64 {
+		if seen[store+1] == epoch {
+			return 0
+		}
+		seen[store+1] = epoch
+		return mul(&ov, elems, e)
+	}
+	var largest int64
+	for i := range r.Rows {
+		row := &r.Rows[i]
+		var b int64
+		if row.Status == StatusOK {
+			b = r.savedBytes(row, a, e, keep, &ov)
+			out, _ := row.Out.Elements()
+			largest = max(largest, out)
+		}
+		*rows = append(*rows, mul(&ov, b, micro))
+		if k <= 0 {
+			perSample = add(&ov, perSample, b)
+			continue
+		}
+		segment = add(&ov, segment, b)
+		if int64(i+1)%k == 0 || i == n-1 {
+			// Segment boundary: its output stays; its insides are recomputed.
+			segMax = max(segMax, segment)
+			if row.Status == StatusOK && i != n-1 {
+				out, _ := row.Out.Elements()
+				kept = add(&ov, kept, mul(&ov, out, e))
+			}
+			segment = 0
+			epoch++
+		}
+	}
+	if k > 0 {
+		perSample = add(&ov, kept, segMax)
+	}
+	// Backward scratch: the gradient arriving at and leaving the widest row.
+	scratch = mul(&ov, mul(&ov, 2, largest), e)
+	peakLive = r.peakLive(seen)
+	if ov {
+		return math.MaxInt64 / 8, 0, 0
+	}
+	return perSample, scratch, peakLive
+}
+
+// savedBytes returns the bytes per sample row keeps for the backward pass,
+// using keep to count each tensor once.
+func (r *Result) savedBytes(row *Row, a Assumptions, e int64, keep func(int32, int64) int64, ov *bool) int64 {
+	l := row.Layer
+	hasParams := row.Params > 0
+	if !row.Grad && !hasParams {
+		return 0 // no gradient reaches here and nothing to learn
+	}
+	in, _ := row.In.Elements()
+	out, _ := row.Out.Elements()
+	var b int64
+	switch l.Kind {
+	case KindConv, KindDeconv, KindDense:
+		b = keep(row.InStore, in)
+	case KindNorm:
+		b = keep(row.InStore, in)
+		switch l.Norm {
+		case NormGroup:
+			b += mul(ov, 2*l.NormGroups, 4) // mean and reciprocal std per group, fp32
+		case NormInstance:
+			stats := int64(2)
+			if l.Affine == On {
+				stats = 3 // the scale is expanded per sample as well
+			}
+			b += mul(ov, mul(ov, stats, row.In.C), 4)
+		case NormLayer:
+			b += mul(ov, mul(ov, 2, mul(ov, row.In.H, row.In.W)), 4)
+		}
+	case KindAct:
+		switch l.Act {
+		case ActReLU, ActSigmoid, ActTanh:
+			b = keep(row.OutStore, out)
+		default:
+			b = keep(row.InStore, in)
+		}
+	case KindPool, KindGlobalPool:
+		b = keep(row.InStore, in)
+		if l.Pool == PoolMax {
+			b += mul(ov, out, a.IndexBytes)
+		}
+	case KindPoolTo:
+		b = keep(row.InStore, in)
+	case KindDropout:
+		if l.Rate > 0 {
+			b = mul(ov, out, a.MaskBytes)
+		}
+	}
+	return b
+}
+
+// peakLive returns the most activation elements (per sample) alive at once
+// in a forward pass that keeps nothing for backward: at each row its input,
+// its output and every earlier tensor still to be read later (skips waiting
+// for their merge, block inputs waiting for their shortcut). seen is
+// scratch of length len(r.Rows)+1.
+func (r *Result) peakLive(lastUse []int32) int64 {
+	n := len(r.Rows)
+	for i := range lastUse {
+		lastUse[i] = -1
+	}
+	use := func(store int32, at int) {
+		if store >= -1 && int(store) < n {
+			lastUse[store+1] = int32(max(int(lastUse[store+1]), at))
+		}
+	}
+	for i := range r.Rows {
+		row := &r.Rows[i]
+		if row.Status != StatusOK {
+			continue
+		}
+		use(row.InStore, i)
+		if row.OtherStore >= -1 && (row.Layer.Kind.IsMerge()) {
+			use(row.OtherStore, i)
+		}
+		use(row.OutStore, i)
+	}
+	// Sweep: a storage is alive from the row that writes it (the input from
+	// the start) to its last use.
+	var live, peak int64
+	size := func(store int32) int64 {
+		if store < 0 {
+			v, _ := r.Input.Elements()
+			return v
+		}
+		v, _ := r.Rows[store].Out.Elements()
+		return v
+	}
+	if lastUse[0] >= 0 {
+		live = size(-1)
+	}
+	peak = live
+	for i := range r.Rows {
+		row := &r.Rows[i]
+		if row.Status == StatusOK && row.OutStore == int32(i) && lastUse[i+1] >= 0 {
+			live += size(int32(i))
+		}
+		peak = max(peak, live)
+		// Free what is last used here.
+		if row.Status == StatusOK {
+			for _, st := range [3]int32{row.InStore, row.OtherStore, row.OutStore} {
+				if st >= -1 && int(st) < n && lastUse[st+1] == int32(i) {
+					live -= size(st)
+					lastUse[st+1] = -2 // freed
+				}
+			}
+		}
+	}
+	return peak
+}
