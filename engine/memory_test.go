@@ -85,8 +85,8 @@ func TestCheckpointSqrtN(t *testing.T) {
 		r.Memory(engine.Training{Batch: 1, Checkpoint: k}, engine.DefaultAssumptions(), &m)
 		return plain, m.ActPerSample
 	}
-	p1, c1 := kept(32)  // 64 rows, k = 8
-	p4, c4 := kept(128) // 256 rows, k = 16
+	p1, c1 := kept(32)                                               // 64 rows, k = 8
+	p4, c4 := kept(128)                                              // 256 rows, k = 16
 	if ratio := float64(p4) / float64(p1); math.Abs(ratio-4) > 0.1 { // (4n+1)/(n+1): the input counts once
 		t.Errorf("without checkpointing 4× the depth keeps %.2f× the bytes, want 4", ratio)
 	}
