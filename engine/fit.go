@@ -29,6 +29,17 @@ const maxSearchGPUs = 1 << 16
 // found by bisection over a monotone function; the width multiplier by
 // bisection over re-evaluations of the scaled stack.
 func SolveFit(s *Stack, r *Result, m *Memory, t Training, a Assumptions) Fit {
+	f := SolveCapacity(r, m, t)
+	if f.HasBudget {
+		f.MaxWidth, f.WidthLimit, f.WidthExact = MaxWidth(s, t, a)
+	}
+	return f
+}
+
+// SolveCapacity gives the two answers that need no re-evaluation of the
+// stack (largest batch, fewest GPUs); it takes microseconds, so an editor
+// can run it on every keystroke and leave MaxWidth to the background.
+func SolveCapacity(r *Result, m *Memory, t Training) Fit {
 	var f Fit
 	if t.Budget <= 0 {
 		return f
@@ -83,12 +94,14 @@ func SolveFit(s *Stack, r *Result, m *Memory, t Training, a Assumptions) Fit {
 		_, f.GPUsLimit = fitsWith(maxSearchGPUs)
 	}
 
-	f.MaxWidth, f.WidthLimit, f.WidthExact = maxWidth(s, t, a)
 	return f
 }
 
-// maxWidth bisects the width multiplier on a log scale between 1/32 and 32.
-func maxWidth(s *Stack, t Training, a Assumptions) (float64, string, bool) {
+// MaxWidth bisects the width multiplier on a log scale between 1/32 and 32
+// and returns the largest (to 0.01, rounded down) that fits, the category
+// that stops the next step, and whether the search converged (false when
+// even ×32 fits).
+func MaxWidth(s *Stack, t Training, a Assumptions) (float64, string, bool) {
 	var r Result
 	var m Memory
 	try := func(alpha float64) (bool, string) {

@@ -27,13 +27,17 @@ const (
 type IO struct {
 	In       io.Reader
 	Out, Err io.Writer
+	Terminal bool // In and Out are a terminal: the editor can run
 }
 
 // Run executes stackfit with args (without the program name) and returns
 // the exit status.
 func Run(args []string, std IO) int {
 	if len(args) == 0 {
-		return showExample(std)
+		if !std.Terminal {
+			return showExample(std)
+		}
+		return runEditor("", std)
 	}
 	switch args[0] {
 	case "report":
@@ -42,14 +46,28 @@ func Run(args []string, std IO) int {
 		fmt.Fprint(std.Out, usage)
 		return ExitOK
 	}
-	fmt.Fprintf(std.Err, "stackfit: unknown command %q\n\n%s", args[0], usage)
+	if len(args) == 1 && !strings.HasPrefix(args[0], "-") && (strings.ContainsAny(args[0], "./") || fileExists(args[0])) {
+		if !std.Terminal {
+			fmt.Fprintf(std.Err, "stackfit: the editor needs a terminal; for a printout use: stackfit report %s\n", args[0])
+			return ExitUsage
+		}
+		return runEditor(args[0], std)
+	}
+	fmt.Fprintf(std.Err, "stackfit: unknown command %q (commands: report, help; a stack file name needs its extension, e.g. net.yaml)\n\n%s", args[0], usage)
 	return ExitUsage
+}
+
+func fileExists(p string) bool {
+	_, err := os.Stat(p)
+	return err == nil
 }
 
 const usage = `stackfit — size a convolutional network before you write it
 
 usage:
-  stackfit                          report the built-in example (fruit grader)
+  stackfit                          edit the built-in example (fruit grader);
+                                    without a terminal, print its report
+  stackfit FILE                     edit FILE (a new file starts empty)
   stackfit report FILE [flags]      report a stack file ('-' reads standard input)
 
 report flags:
@@ -188,5 +206,5 @@ func parseInterleaved(fs *flag.FlagSet, args []string) ([]string, error) {
 
 // Main runs stackfit on the process's arguments and streams.
 func Main() int {
-	return Run(os.Args[1:], IO{In: os.Stdin, Out: os.Stdout, Err: os.Stderr})
+	return Run(os.Args[1:], IO{In: os.Stdin, Out: os.Stdout, Err: os.Stderr, Terminal: interactive()})
 }

@@ -1,0 +1,120 @@
+package engine_test
+
+import (
+	"errors"
+	"path/filepath"
+	"reflect"
+	"strings"
+	"testing"
+
+	"stackfit/engine"
+	"stackfit/engine/stackfile"
+)
+
+// TestQuickRoundTrip checks that every layer of every shipped stack file,
+// written as a quick-entry line by Summary, reads back as the same layer.
+func TestQuickRoundTrip(t *testing.T) {
+	files, _ := filepath.Glob("../testdata/*/*.yaml")
+	n := 0
+	var walk func([]engine.Layer)
+	walk = func(ls []engine.Layer) {
+		for _, l := range ls {
+			want := l
+			want.Name, want.Note, want.Body = "", "", nil
+			line := engine.Summary(&l)
+			got, err := engine.ParseQuick(line)
+			if err != nil {
+				t.Errorf("%q: %v", line, err)
+			} else if !reflect.DeepEqual(got, want.Normalized()) {
+				t.Errorf("%q read back as %+v, want %+v", line, got, want)
+			}
+			n++
+			walk(l.Body)
+		}
+	}
+	for _, f := range files {
+		s, err := stackfile.LoadFile(f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		walk(s.Layers)
+	}
+	if n < 200 {
+		t.Errorf("only %d layers checked", n)
+	}
+}
+
+func TestQuickParse(t *testing.T) {
+	tests := []struct {
+		line string
+		want engine.Layer
+	}{
+		{"conv 64 k3 s2 p1 @Stem", engine.Layer{Kind: engine.KindConv, Filters: 64, Kernel: engine.Square(3), Stride: engine.Square(2), Pad: engine.Padding{Size: engine.Square(1)}, Name: "Stem"}},
+		{"conv 32 k3x5 same dw nobias", engine.Layer{Kind: engine.KindConv, Filters: 32, Kernel: engine.Pair{H: 3, W: 5}, Pad: engine.Padding{Mode: engine.PadSame}, Depthwise: true, NoBias: true}},
+		{"act leaky-relu 0.2", engine.Layer{Kind: engine.KindAct, Act: engine.ActLeakyReLU, Slope: 0.2}},
+		{"global-pool", engine.Layer{Kind: engine.KindGlobalPool, Pool: engine.PoolAvg}},
+		{"block 3 residual then relu", engine.Layer{Kind: engine.KindBlock, Repeat: 3, Residual: true, PostAct: engine.ActReLU, HasPostAct: true}},
+		{"concat Skip1 crop", engine.Layer{Kind: engine.KindConcat, From: "Skip1", Crop: true}},
+		{"  DENSE   10  ", engine.Layer{Kind: engine.KindDense, Filters: 10}},
+	}
+	for _, tt := range tests {
+		got, err := engine.ParseQuick(tt.line)
+		if err != nil || !reflect.DeepEqual(got, tt.want) {
+			t.Errorf("%q: %+v, %v; want %+v", tt.line, got, err, tt.want)
+		}
+	}
+}
+
+// TestQuickErrors checks each unreadable line gets a message that says
+// what to write instead.
+func TestQuickErrors(t *testing.T) {
+	tests := []struct{ line, want string }{
+		{"", "empty; start with a kind"},
+		{"cnv 64 k3", `unknown kind "cnv"`},
+		{"den 10", `unknown kind "den"; did you mean "dense"?`},
+		{"conv k3", "conv needs a filter count"},
+		{"conv 64", "conv needs a kernel; add k3"},
+		{"conv 64 k0", `kernel: "0" is not valid`},
+		{"conv 64 k3 ceil", `"ceil" does not apply to conv`},
+		{"dropout 1.5", "give a number at least 0 and below 1"},
+		{"norm group", "group norm needs groups; add g32"},
+		{"reshape 4x4", "give channels×height×width"},
+		{"conv 99999999999999999999 k3", "give a whole number from 1 to 16777216"},
+		{"conv 64 k3 @9bad", `"9bad" is not a layer name`},
+	}
+	for _, tt := range tests {
+		_, err := engine.ParseQuick(tt.line)
+		if err == nil || !errors.Is(err, engine.ErrQuick) || !strings.Contains(err.Error(), tt.want) {
+			t.Errorf("%q: %v, want %q", tt.line, err, tt.want)
+		}
+	}
+	if got := engine.CompleteKind("glo"); len(got) != 1 || got[0] != "global-pool" {
+		t.Errorf("CompleteKind(glo) = %v", got)
+	}
+	if got := engine.CompleteKind("p"); len(got) != 2 {
+		t.Errorf("CompleteKind(p) = %v", got)
+	}
+}
+
+// TestFieldsRoundTrip checks that every field reads back what it writes.
+func TestFieldsRoundTrip(t *testing.T) {
+	for _, k := range engine.Kinds() {
+		l := engine.NewLayer(k, 16)
+		for _, f := range engine.FieldsFor(k) {
+			v := f.Get(&l)
+			if v == "" && f.Key == "from" {
+				continue // a merge starts without a name; the form asks for one
+			}
+			c := l
+			if err := f.Set(&c, v); err != nil {
+				t.Errorf("%v.%s: Set(Get()=%q): %v", k, f.Key, v, err)
+			}
+			if f.Get(&c) != v {
+				t.Errorf("%v.%s: %q became %q", k, f.Key, v, f.Get(&c))
+			}
+		}
+		if err := engine.FieldsFor(k)[0].Set(&l, "§"); err != nil && !errors.Is(err, engine.ErrField) {
+			t.Errorf("%v: error %v is not a field error", k, err)
+		}
+	}
+}

@@ -1,0 +1,145 @@
+package keymap
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"sort"
+	"strings"
+
+	"github.com/charmbracelet/bubbles/key"
+	"gopkg.in/yaml.v3"
+)
+
+// ErrKeys is wrapped by every error about a keys file.
+var ErrKeys = errors.New("bad keys file")
+
+// EnvPath names the environment variable that points at a keys file.
+const EnvPath = "STACKFIT_KEYS"
+
+// DefaultPath returns where the keys file is looked for: $STACKFIT_KEYS,
+// else $XDG_CONFIG_HOME/stackfit/keys.yaml, else
+// ~/.config/stackfit/keys.yaml.
+func DefaultPath() string {
+	if p := os.Getenv(EnvPath); p != "" {
+		return p
+	}
+	if d := os.Getenv("XDG_CONFIG_HOME"); d != "" {
+		return filepath.Join(d, "stackfit", "keys.yaml")
+	}
+	if h, err := os.UserHomeDir(); err == nil {
+		return filepath.Join(h, ".config", "stackfit", "keys.yaml")
+	}
+	return ""
+}
+
+// LoadFile reads overrides from path into a copy of base. A missing file is
+// no error (base comes back unchanged).
+func LoadFile(path string, base KeyMap) (KeyMap, error) {
+	if path == "" {
+		return base, nil
+	}
+	data, err := os.ReadFile(path)
+	if errors.Is(err, os.ErrNotExist) {
+		return base, nil
+	}
+	if err != nil {
+		return base, fmt.Errorf("%w: %s: %v", ErrKeys, path, err)
+	}
+	km, err := Parse(data, base)
+	if err != nil {
+		return base, fmt.Errorf("%s: %w", path, err)
+	}
+	return km, nil
+}
+
+// Parse applies a keys file: a YAML mapping from action name to a key or a
+// list of keys, e.g.
+//
+//	add: i
+//	delete: [x, d]
+//	undo: []        # no key: the action is disabled
+//
+// Unknown action names and keys that two actions of one mode would share
+// are errors that name them.
+func Parse(data []byte, base KeyMap) (KeyMap, error) {
+	km := base
+	var raw map[string]yaml.Node
+	if err := yaml.Unmarshal(data, &raw); err != nil {
+		return base, fmt.Errorf("%w: not a YAML mapping of action: keys (%v)", ErrKeys, err)
+	}
+	acts := km.Actions()
+	byName := map[string]*key.Binding{}
+	var all []string
+	for _, a := range acts {
+		byName[a.Name] = a.Binding
+		all = append(all, a.Name)
+	}
+	names := make([]string, 0, len(raw))
+	for n := range raw {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	for _, name := range names {
+		b, ok := byName[name]
+		if !ok {
+			return base, fmt.Errorf("%w: unknown action %q; actions: %s", ErrKeys, name, strings.Join(all, ", "))
+		}
+		node := raw[name]
+		var keys []string
+		switch node.Kind {
+		case yaml.ScalarNode:
+			keys = []string{node.Value}
+		case yaml.SequenceNode:
+			if err := node.Decode(&keys); err != nil {
+				return base, fmt.Errorf("%w: %s: give a key or a list of keys", ErrKeys, name)
+			}
+		default:
+			return base, fmt.Errorf("%w: %s: give a key or a list of keys", ErrKeys, name)
+		}
+		for _, k := range keys {
+			if strings.TrimSpace(k) == "" {
+				return base, fmt.Errorf("%w: %s: empty key", ErrKeys, name)
+			}
+		}
+		if len(keys) == 0 {
+			b.SetEnabled(false)
+			continue
+		}
+		help := b.Help()
+		*b = key.NewBinding(key.WithKeys(keys...), key.WithHelp(strings.Join(keys, "/"), help.Desc))
+	}
+	if err := km.Check(); err != nil {
+		return base, err
+	}
+	return km, nil
+}
+
+// Check reports two enabled bindings of one mode that share a key.
+func (k *KeyMap) Check() error {
+	for m := Mode(0); m < modeCount; m++ {
+		owner := map[string]string{}
+		for _, a := range k.Actions() {
+			if !a.Binding.Enabled() || !hasMode(a.Modes, m) {
+				continue
+			}
+			for _, key := range a.Binding.Keys() {
+				if prev, ok := owner[key]; ok {
+					return fmt.Errorf("%w: key %q is bound to both %q and %q in %s mode; give one of them another key", ErrKeys, key, prev, a.Name, m)
+				}
+				owner[key] = a.Name
+			}
+		}
+	}
+	return nil
+}
+
+func hasMode(ms []Mode, m Mode) bool {
+	for _, x := range ms {
+		if x == m {
+			return true
+		}
+	}
+	return false
+}

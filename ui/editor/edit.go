@@ -1,0 +1,284 @@
+package editor
+
+import (
+	"errors"
+	"fmt"
+
+	tea "github.com/charmbracelet/bubbletea"
+
+	"stackfit/engine"
+)
+
+// change applies fn to the stack as one undoable step, then recomputes
+// every number. fn may move the cursor by returning the address to select.
+func (m *Model) change(what string, fn func(s *engine.Stack) (addr, error)) tea.Cmd {
+	before := snapshot{stack: m.stack.Clone(), cursor: m.cursor, what: what}
+	sel, err := fn(m.stack)
+	if err != nil {
+		m.stack = before.stack
+		m.recompute()
+		m.setStatus(err.Error(), statusError)
+		return nil
+	}
+	m.hist.push(before)
+	m.dirty = true
+	m.anchor = -1
+	m.recompute()
+	if sel != nil {
+		m.selectAddr(sel)
+	}
+	m.record()
+	m.setStatus(what, statusInfo)
+	return m.widthCmd()
+}
+
+// record writes the journal; a failure is shown but never stops editing.
+func (m *Model) record() {
+	if m.journal == nil {
+		return
+	}
+	if err := m.journal.Record(m.stack); err != nil {
+		m.setStatus("could not keep a recovery copy: "+err.Error(), statusError)
+	}
+}
+
+// selectAddr moves the cursor to the item at a, unfolding its blocks.
+func (m *Model) selectAddr(a addr) {
+	unfolded := false
+	for n := 1; n < len(a); n++ {
+		k := addr(a[:n]).key()
+		if m.folded[k] {
+			delete(m.folded, k)
+			unfolded = true
+		}
+	}
+	if unfolded {
+		m.rebuild()
+	}
+	want := a.key()
+	for i := range m.items {
+		if m.items[i].addr.key() == want {
+			m.cursor = i
+			return
+		}
+	}
+}
+
+// undo and redo swap whole snapshots.
+func (m *Model) undo() tea.Cmd {
+	s, ok := m.hist.back(snapshot{stack: m.stack, cursor: m.cursor})
+	if !ok {
+		m.setStatus("nothing to undo", statusError)
+		return nil
+	}
+	return m.restore(s, "undid: ")
+}
+
+func (m *Model) redo() tea.Cmd {
+	s, ok := m.hist.forward(snapshot{stack: m.stack, cursor: m.cursor})
+	if !ok {
+		m.setStatus("nothing to redo", statusError)
+		return nil
+	}
+	return m.restore(s, "redid: ")
+}
+
+func (m *Model) restore(s snapshot, verb string) tea.Cmd {
+	m.stack, m.cursor = s.stack, s.cursor
+	m.dirty = true
+	m.anchor = -1
+	m.recompute()
+	m.record()
+	m.setStatus(verb+s.what, statusInfo)
+	return m.widthCmd()
+}
+
+// insertAfter places l after the selected item, in the same list.
+func (m *Model) insertAfter(l engine.Layer, what string) tea.Cmd {
+	cur := m.current()
+	return m.change(what, func(s *engine.Stack) (addr, error) {
+		if cur == nil {
+			s.Layers = append(s.Layers, l)
+			return addr{len(s.Layers) - 1}, nil
+		}
+		ls, i := list(s, cur.addr)
+		if ls == nil {
+			return nil, errors.New("the selected layer is gone")
+		}
+		*ls = append((*ls)[:i+1], append([]engine.Layer{l}, (*ls)[i+1:]...)...)
+		return cur.addr.with(i + 1), nil
+	})
+}
+
+// stripNames clears the names of l and everything inside it (a copy must
+// not reuse names).
+func stripNames(l *engine.Layer) {
+	l.Name = ""
+	for i := range l.Body {
+		stripNames(&l.Body[i])
+	}
+}
+
+func (m *Model) duplicate() tea.Cmd {
+	cur := m.current()
+	if cur == nil {
+		return nil
+	}
+	c := engine.CloneLayers([]engine.Layer{*cur.layer})[0]
+	stripNames(&c)
+	return m.insertAfter(c, "copied "+engine.Summary(cur.layer))
+}
+
+// selection returns the selected sibling range (the cursor item alone
+// when no range is marked): the list's parent address and index bounds.
+func (m *Model) selection() (parent addr, lo, hi int, ok bool) {
+	cur := m.current()
+	if cur == nil {
+		return nil, 0, 0, false
+	}
+	lo = cur.addr[len(cur.addr)-1]
+	hi = lo
+	if m.anchor >= 0 && m.anchor < len(m.items) {
+		a := m.items[m.anchor].addr
+		if len(a) != len(cur.addr) || a.parent().key() != cur.addr.parent().key() {
+			return nil, 0, 0, false
+		}
+		lo, hi = min(lo, a[len(a)-1]), max(hi, a[len(a)-1])
+	}
+	return cur.addr.parent(), lo, hi, true
+}
+
+func (m *Model) remove() tea.Cmd {
+	parent, lo, hi, ok := m.selection()
+	if !ok {
+		m.setStatus("a range must stay inside one list; press v to clear it", statusError)
+		return nil
+	}
+	what := fmt.Sprintf("deleted %d layer%s", hi-lo+1, plural(hi-lo+1))
+	return m.change(what, func(s *engine.Stack) (addr, error) {
+		ls, _ := list(s, append(parent, lo))
+		*ls = append((*ls)[:lo], (*ls)[hi+1:]...)
+		if len(*ls) == 0 {
+			if len(parent) > 0 {
+				return parent, nil
+			}
+			return nil, nil
+		}
+		return append(parent, min(lo, len(*ls)-1)), nil
+	})
+}
+
+func (m *Model) move(dir int) tea.Cmd {
+	cur := m.current()
+	if cur == nil {
+		return nil
+	}
+	return m.change("moved "+engine.Summary(cur.layer), func(s *engine.Stack) (addr, error) {
+		ls, i := list(s, cur.addr)
+		j := i + dir
+		if j < 0 || j >= len(*ls) {
+			return nil, errors.New("already at the end of its list")
+		}
+		(*ls)[i], (*ls)[j] = (*ls)[j], (*ls)[i]
+		return cur.addr.with(j), nil
+	})
+}
+
+func (m *Model) wrap() tea.Cmd {
+	parent, lo, hi, ok := m.selection()
+	if !ok {
+		m.setStatus("a range must stay inside one list; press v to clear it", statusError)
+		return nil
+	}
+	if len(parent) >= 2*3 {
+		m.setStatus("blocks nest at most three deep", statusError)
+		return nil
+	}
+	return m.change(fmt.Sprintf("wrapped %d layer%s in a block", hi-lo+1, plural(hi-lo+1)), func(s *engine.Stack) (addr, error) {
+		ls, _ := list(s, append(parent, lo))
+		body := append([]engine.Layer(nil), (*ls)[lo:hi+1]...)
+		b := engine.Layer{Kind: engine.KindBlock, Repeat: 1, Body: body}
+		*ls = append((*ls)[:lo], append([]engine.Layer{b}, (*ls)[hi+1:]...)...)
+		return append(parent, lo), nil
+	})
+}
+
+// scaleFilters multiplies (num/den) the width of the selected layer, or of
+// every weighted layer inside the selected block.
+func (m *Model) scaleFilters(num, den int64) tea.Cmd {
+	cur := m.current()
+	if cur == nil {
+		return nil
+	}
+	verb := "widened"
+	if den > num {
+		verb = "narrowed"
+	}
+	return m.change(verb+" "+engine.Summary(cur.layer), func(s *engine.Stack) (addr, error) {
+		l := at(s, cur.addr)
+		n := 0
+		var walk func(l *engine.Layer)
+		walk = func(l *engine.Layer) {
+			if l.Kind.HasWeights() {
+				l.Filters = min(max(l.Filters*num/den, 1), engine.MaxChannels)
+				n++
+			}
+			for i := range l.Body {
+				walk(&l.Body[i])
+			}
+		}
+		walk(l)
+		if n == 0 {
+			return nil, fmt.Errorf("%s has no filters; widen works on conv, deconv, dense and blocks", l.Kind)
+		}
+		return cur.addr, nil
+	})
+}
+
+func (m *Model) scaleWidth(factor float64) tea.Cmd {
+	return m.change(fmt.Sprintf("scaled every width by %g", factor), func(s *engine.Stack) (addr, error) {
+		out, err := engine.ScaleWidth(s, factor, 8)
+		if err != nil {
+			return nil, err
+		}
+		*s = *out
+		return nil, nil
+	})
+}
+
+// insertStage adds a downsampling stage after the selected top-level item.
+func (m *Model) insertStage() tea.Cmd {
+	after := -1
+	if cur := m.current(); cur != nil {
+		after = cur.addr[0]
+	}
+	opt := m.stage
+	return m.change(fmt.Sprintf("added a stage: halve the size, double the channels (cap %d), %d more layer%s", opt.Cap, opt.Repeat, plural(opt.Repeat)),
+		func(s *engine.Stack) (addr, error) {
+			out, n, err := engine.InsertStage(s, after, opt)
+			if err != nil {
+				return nil, err
+			}
+			*s = *out
+			return addr{after + n}, nil
+		})
+}
+
+// replaceLayer puts l at a.
+func (m *Model) replaceLayer(a addr, l engine.Layer) tea.Cmd {
+	return m.change("edited "+engine.Summary(&l), func(s *engine.Stack) (addr, error) {
+		p := at(s, a)
+		if p == nil {
+			return nil, errors.New("the edited layer is gone")
+		}
+		*p = l
+		return a, nil
+	})
+}
+
+func plural(n int) string {
+	if n == 1 {
+		return ""
+	}
+	return "s"
+}

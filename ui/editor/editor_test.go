@@ -1,0 +1,494 @@
+package editor
+
+import (
+	"flag"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"testing"
+
+	tea "github.com/charmbracelet/bubbletea"
+	"github.com/charmbracelet/lipgloss"
+	"github.com/charmbracelet/x/ansi"
+	"github.com/muesli/termenv"
+
+	"stackfit/engine"
+	"stackfit/engine/examples"
+	"stackfit/engine/stackfile"
+	"stackfit/keymap"
+	"stackfit/ui/styles"
+)
+
+var update = flag.Bool("update", false, "rewrite golden files")
+
+func TestMain(m *testing.M) {
+	lipgloss.SetColorProfile(termenv.Ascii)
+	os.Exit(m.Run())
+}
+
+// example returns the built-in example stack.
+func example(t testing.TB) *engine.Stack {
+	t.Helper()
+	s, err := stackfile.Load(examples.FruitGrader())
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
+}
+
+func newModel(t testing.TB, s *engine.Stack, w, h int) *Model {
+	t.Helper()
+	m := New(Options{Stack: s, Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles()})
+	m.Update(tea.WindowSizeMsg{Width: w, Height: h})
+	return m
+}
+
+// keyMsg turns "j", "enter", "ctrl+r", "shift+up" into a key message.
+func keyMsg(k string) tea.KeyMsg {
+	special := map[string]tea.KeyType{
+		"enter": tea.KeyEnter, "esc": tea.KeyEsc, "tab": tea.KeyTab, "shift+tab": tea.KeyShiftTab,
+		"up": tea.KeyUp, "down": tea.KeyDown, "ctrl+c": tea.KeyCtrlC, "ctrl+u": tea.KeyCtrlU,
+		"backspace": tea.KeyBackspace, "shift+up": tea.KeyShiftUp, "shift+down": tea.KeyShiftDown,
+		"space": tea.KeySpace, "home": tea.KeyHome, "end": tea.KeyEnd, "pgdown": tea.KeyPgDown,
+		"ctrl+y": tea.KeyCtrlY, "ctrl+z": tea.KeyCtrlZ, "delete": tea.KeyDelete,
+	}
+	if t, ok := special[k]; ok {
+		return tea.KeyMsg{Type: t}
+	}
+	return tea.KeyMsg{Type: tea.KeyRunes, Runes: []rune(k)}
+}
+
+// press sends keys; a word like "conv 64" typed in a prompt goes as runes.
+func press(m *Model, keys ...string) []tea.Cmd {
+	var cmds []tea.Cmd
+	for _, k := range keys {
+		_, cmd := m.Update(keyMsg(k))
+		cmds = append(cmds, cmd)
+	}
+	return cmds
+}
+
+// typeText sends each rune of s as its own key.
+func typeText(m *Model, s string) {
+	for _, r := range s {
+		m.Update(tea.KeyMsg{Type: tea.KeyRunes, Runes: []rune{r}})
+	}
+}
+
+func view(m *Model) string { return ansi.Strip(m.View()) }
+
+func golden(t *testing.T, got string) {
+	t.Helper()
+	p := filepath.Join("testdata", t.Name()+".golden")
+	if *update {
+		os.MkdirAll(filepath.Dir(p), 0o755)
+		os.WriteFile(p, []byte(got), 0o644)
+	}
+	want, err := os.ReadFile(p)
+	if err != nil {
+		t.Fatalf("%v (run go test ./ui/editor -update)", err)
+	}
+	if got != string(want) {
+		t.Errorf("view differs from %s:\n%s", p, got)
+	}
+}
+
+// TestGoldenViews renders the example at both standard sizes, including the
+// detail panel's arithmetic and the budget gauge.
+func TestGoldenViews(t *testing.T) {
+	for _, size := range []struct {
+		name string
+		w, h int
+	}{{"80x24", 80, 24}, {"120x40", 120, 40}} {
+		t.Run(size.name, func(t *testing.T) {
+			m := newModel(t, example(t), size.w, size.h)
+			press(m, "j", "j", "j", "j", "j", "j") // the stride-2 convolution
+			m.fit.MaxWidth, m.fit.WidthExact = 23.62, true // the background search's answer
+			golden(t, view(m))
+		})
+	}
+}
+
+// TestGoldenPanels renders the form, the picker, the chart and the help.
+func TestGoldenPanels(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		keys []string
+	}{
+		{"form", []string{"j", "j", "j", "enter", "backspace", "backspace", "4", "8"}},
+		{"form-invalid", []string{"enter", "tab", "backspace", "0"}},
+		{"picker", []string{"a", "down", "down"}},
+		{"chart", []string{"p"}},
+		{"help", []string{"?"}},
+		{"prompt", []string{":", "c", "o", "n", "v", " ", "6", "4"}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			m := newModel(t, example(t), 80, 24)
+			m.fit.MaxWidth, m.fit.WidthExact = 23.62, true
+			press(m, tc.keys...)
+			golden(t, view(m))
+		})
+	}
+}
+
+func TestTooSmall(t *testing.T) {
+	m := newModel(t, example(t), 80, 24)
+	for _, sz := range [][2]int{{40, 12}, {59, 30}, {100, 10}, {1, 1}, {0, 0}} {
+		m.Update(tea.WindowSizeMsg{Width: sz[0], Height: sz[1]})
+		press(m, "j", "n", "p", "p") // keys still work and nothing panics
+		if v := view(m); sz[0] > 20 && sz[1] > 3 && !strings.Contains(v, "stackfit needs a 60×18 window") {
+			t.Errorf("%v: %q", sz, v)
+		}
+	}
+}
+
+func TestCursorAndScroll(t *testing.T) {
+	m := newModel(t, example(t), 80, 24)
+	press(m, "end")
+	if m.cursor != len(m.items)-1 || m.offset == 0 {
+		t.Errorf("cursor %d offset %d", m.cursor, m.offset)
+	}
+	press(m, "home")
+	if m.cursor != 0 || m.offset != 0 {
+		t.Errorf("cursor %d offset %d", m.cursor, m.offset)
+	}
+	press(m, "k") // stays at the top
+	if m.cursor != 0 {
+		t.Error("moved above the first layer")
+	}
+	press(m, "pgdown")
+	if m.cursor != m.listHeight()-1 {
+		t.Errorf("page down to %d", m.cursor)
+	}
+}
+
+// TestStageWidenUndo checks "halve the resolution, double the channels",
+// the quick widen, and that undo takes each back as one step.
+func TestStageWidenUndo(t *testing.T) {
+	m := newModel(t, example(t), 80, 24)
+	n0, p0 := len(m.stack.Layers), m.res.Totals.Params
+	press(m, "j", "j") // after the first act relu: 32×64×64
+	press(m, "n")
+	if got := len(m.stack.Layers); got != n0+9 {
+		t.Fatalf("stage inserted %d layers, want 9 (conv, norm, act, then 2 more triples)", got-n0)
+	}
+	stage := m.res.Rows[3]
+	if stage.Out != (engine.Shape{C: 64, H: 32, W: 32}) {
+		t.Errorf("stage entry %v, want 64×32×32", stage.Out)
+	}
+	if m.cursor != 11 || !m.dirty {
+		t.Errorf("cursor %d dirty %v", m.cursor, m.dirty)
+	}
+	press(m, "home", ">")
+	if m.stack.Layers[0].Filters != 64 {
+		t.Errorf("widened to %d", m.stack.Layers[0].Filters)
+	}
+	press(m, "<", "<")
+	if m.stack.Layers[0].Filters != 16 {
+		t.Errorf("narrowed to %d", m.stack.Layers[0].Filters)
+	}
+	press(m, "u", "u", "u", "u")
+	if len(m.stack.Layers) != n0 || m.res.Totals.Params != p0 {
+		t.Errorf("after undo: %d layers, %d params", len(m.stack.Layers), m.res.Totals.Params)
+	}
+	press(m, "U")
+	if len(m.stack.Layers) != n0+9 {
+		t.Error("redo did not bring the stage back")
+	}
+}
+
+func TestUndoDepth(t *testing.T) {
+	m := newModel(t, example(t), 80, 24)
+	f0 := m.stack.Layers[0].Filters
+	for i := 0; i < 210; i++ {
+		press(m, ">", "<")
+	}
+	for i := 0; i < 210; i++ {
+		press(m, "u")
+	}
+	if len(m.hist.undo) != historyLimit-210 && len(m.hist.undo) != 0 {
+		t.Errorf("%d undo steps left", len(m.hist.undo))
+	}
+	if m.stack.Layers[0].Filters != f0 {
+		t.Errorf("filters %d after 210 undos", m.stack.Layers[0].Filters)
+	}
+}
+
+func TestEditOperations(t *testing.T) {
+	m := newModel(t, example(t), 80, 24)
+	n0 := len(m.stack.Layers)
+	press(m, "c") // copy the stem: its name must not be copied
+	if len(m.stack.Layers) != n0+1 || m.stack.Layers[1].Name != "" || m.stack.Layers[1].Filters != 32 {
+		t.Errorf("copy: %+v", m.stack.Layers[1])
+	}
+	press(m, "x")
+	if len(m.stack.Layers) != n0 {
+		t.Error("delete")
+	}
+	press(m, "home", "J")
+	if m.stack.Layers[1].Name != "stem" || m.cursor != 1 {
+		t.Errorf("move down: cursor %d", m.cursor)
+	}
+	press(m, "K")
+	if m.stack.Layers[0].Name != "stem" {
+		t.Error("move up")
+	}
+	// Range: layers 1-3 wrapped in a block, folded and unfolded.
+	press(m, "v", "j", "j", "b")
+	b := m.stack.Layers[0]
+	if b.Kind != engine.KindBlock || len(b.Body) != 3 || len(m.stack.Layers) != n0-2 {
+		t.Fatalf("wrap: %v with %d layers", b.Kind, len(b.Body))
+	}
+	if m.res.Rows[0].Path.String() != "1.1.1" || m.res.Errors != 0 {
+		t.Errorf("first row %s errors %d", m.res.Rows[0].Path, m.res.Errors)
+	}
+	press(m, "space")
+	if len(m.items) != len(m.stack.Layers) {
+		t.Errorf("folded block still shows %d items", len(m.items))
+	}
+	press(m, "space")
+	press(m, "*")
+	typeText(m, "")
+	press(m, "ctrl+u")
+	typeText(m, "0.5")
+	press(m, "enter")
+	if m.stack.Layers[4].Filters != 32 { // conv 64 halved
+		t.Errorf("width ×0.5: %d", m.stack.Layers[4].Filters)
+	}
+}
+
+// TestFormLive checks that the form previews each keystroke and never
+// applies an invalid value.
+func TestFormLive(t *testing.T) {
+	m := newModel(t, example(t), 80, 24)
+	press(m, "enter", "backspace", "backspace", "6", "4")
+	if m.preview == nil || m.preview.Result.Rows[0].Out.C != 64 {
+		t.Fatal("no live preview of filters 64")
+	}
+	if m.stack.Layers[0].Filters != 32 {
+		t.Error("the form applied before accept")
+	}
+	press(m, "tab")
+	press(m, "backspace")
+	typeText(m, "x")
+	if m.form.fields[1].err == "" || !strings.Contains(m.form.fields[1].err, "kernel") {
+		t.Errorf("kernel x accepted: %q", m.form.fields[1].err)
+	}
+	press(m, "enter") // refused
+	if m.mode != modeForm || m.stack.Layers[0].Filters != 32 {
+		t.Error("an invalid form was applied")
+	}
+	press(m, "backspace")
+	typeText(m, "5")
+	press(m, "enter")
+	if l := m.stack.Layers[0]; m.mode != modeNormal || l.Filters != 64 || l.Kernel != engine.Square(5) {
+		t.Errorf("applied %+v", l)
+	}
+	press(m, "enter", "esc")
+	if m.stack.Layers[0].Filters != 64 || m.mode != modeNormal {
+		t.Error("cancel changed the layer")
+	}
+}
+
+func TestPickerAndQuickEntry(t *testing.T) {
+	m := newModel(t, example(t), 80, 24)
+	press(m, "a", "d", "d") // jumps to deconv, then dropout
+	if m.picker.kinds[m.picker.sel] != engine.KindDropout {
+		t.Errorf("letter jump to %v", m.picker.kinds[m.picker.sel])
+	}
+	press(m, "enter", "enter")
+	if m.stack.Layers[1].Kind != engine.KindDropout || m.mode != modeNormal {
+		t.Errorf("picker inserted %v", m.stack.Layers[1].Kind)
+	}
+	press(m, ":")
+	typeText(m, "pool mx k2")
+	if !m.prompt.bad || !strings.Contains(m.prompt.hint, "pool needs max or avg") {
+		t.Errorf("hint %q", m.prompt.hint)
+	}
+	press(m, "enter") // refused: stays open
+	if m.mode != modePrompt {
+		t.Error("a bad line was accepted")
+	}
+	press(m, "ctrl+u")
+	typeText(m, "glo")
+	press(m, "tab")
+	if m.prompt.input.Value() != "global-pool " {
+		t.Errorf("completion gave %q", m.prompt.input.Value())
+	}
+	press(m, "esc", ":")
+	typeText(m, "conv 48 k3 p1 @extra")
+	press(m, "enter")
+	if l := m.stack.Layers[2]; l.Kind != engine.KindConv || l.Filters != 48 || l.Name != "extra" {
+		t.Errorf("quick entry inserted %+v", l)
+	}
+}
+
+func TestSettingsAndBaseline(t *testing.T) {
+	m := newModel(t, example(t), 80, 24)
+	press(m, "m")
+	press(m, ">")
+	if !strings.Contains(view(m), "fits · memory 1.62G (+256M) / 24.0G · params 852k (+10.1k) · MACs 231M (+41.3M)") {
+		t.Error("no baseline delta in the footer")
+	}
+	press(m, "t")
+	for m.form.fields[m.form.focus].key != "budget" {
+		press(m, "tab")
+	}
+	press(m, "ctrl+u")
+	typeText(m, "1GiB")
+	if m.preview.Memory.Fits {
+		t.Error("1 GiB should not fit batch 256")
+	}
+	press(m, "enter")
+	if m.stack.Training.Budget != 1<<30 || m.mem.Fits {
+		t.Errorf("budget %d fits %v", m.stack.Training.Budget, m.mem.Fits)
+	}
+	if !strings.Contains(view(m), "does not fit") {
+		t.Error("the footer does not say it does not fit")
+	}
+	press(m, "m")
+	if m.baseline != nil {
+		t.Error("baseline not cleared")
+	}
+}
+
+func TestFilesAndQuit(t *testing.T) {
+	dir := t.TempDir()
+	p := filepath.Join(dir, "grader.yaml")
+	m := newModel(t, example(t), 80, 24)
+	press(m, ">", "w") // no path yet: asks
+	if m.mode != modePrompt || m.prompt.kind != promptSaveAs {
+		t.Fatal("save without a path did not ask for one")
+	}
+	press(m, "ctrl+u")
+	typeText(m, p)
+	press(m, "enter")
+	if m.dirty || m.path != p {
+		t.Fatalf("not saved: %s", m.status)
+	}
+	back, err := stackfile.LoadFile(p)
+	if err != nil || back.Layers[0].Filters != 64 {
+		t.Fatalf("saved file: %v", err)
+	}
+	data1, _ := os.ReadFile(p)
+	press(m, "w")
+	data2, _ := os.ReadFile(p)
+	if string(data1) != string(data2) {
+		t.Error("saving again changed the file")
+	}
+	// Quit with unsaved changes asks; esc stays; n quits.
+	press(m, "<", "q")
+	if m.mode != modeConfirm {
+		t.Fatal("quit with unsaved changes did not ask")
+	}
+	press(m, "esc")
+	if m.quitting || m.mode != modeNormal {
+		t.Error("esc did not stay")
+	}
+	cmds := press(m, "q", "n")
+	if !m.quitting || cmds[1] == nil {
+		t.Error("n did not quit")
+	}
+	// Open a file from the prompt.
+	m2 := newModel(t, example(t), 80, 24)
+	press(m2, "o")
+	typeText(m2, p)
+	press(m2, "enter")
+	if m2.path != p || m2.stack.Layers[0].Filters != 64 {
+		t.Errorf("open: %s", m2.status)
+	}
+	press(m2, "o")
+	typeText(m2, filepath.Join(dir, "nope.yaml"))
+	press(m2, "enter")
+	if m2.mode != modePrompt || !m2.prompt.bad {
+		t.Error("opening a missing file did not say so")
+	}
+}
+
+func TestNewFile(t *testing.T) {
+	p := filepath.Join(t.TempDir(), "new.yaml")
+	m := New(Options{Path: p, NewFile: true, Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles()})
+	m.Update(tea.WindowSizeMsg{Width: 80, Height: 24})
+	if m.mode != modePrompt || m.prompt.kind != promptInput {
+		t.Fatal("a new file does not ask for the input")
+	}
+	press(m, "ctrl+u")
+	typeText(m, "1x28x28")
+	press(m, "enter", ":")
+	typeText(m, "conv 8 k3")
+	press(m, "enter", "w")
+	s, err := stackfile.LoadFile(p)
+	if err != nil || s.Input != (engine.Shape{C: 1, H: 28, W: 28}) || len(s.Layers) != 1 {
+		t.Fatalf("%v %+v", err, s)
+	}
+}
+
+// longStack builds an n-layer stack for the speed benchmarks.
+func longStack(n int) *engine.Stack {
+	s := &engine.Stack{Input: engine.Shape{C: 3, H: 224, W: 224}, Training: engine.Training{Batch: 32, Budget: 80 << 30}}
+	for len(s.Layers) < n {
+		s.Layers = append(s.Layers,
+			engine.Layer{Kind: engine.KindConv, Filters: 64, Kernel: engine.Square(3), Pad: engine.Padding{Size: engine.Square(1)}, NoBias: true},
+			engine.Layer{Kind: engine.KindNorm}, engine.Layer{Kind: engine.KindAct})
+	}
+	return s
+}
+
+// BenchmarkKeyMove is a cursor key and a new frame on a 1,000-layer stack
+// at 120×40.
+func BenchmarkKeyMove(b *testing.B) {
+	m := newModel(b, longStack(1000), 120, 40)
+	press(m, "pgdown", "pgdown")
+	b.ReportAllocs()
+	for i := 0; b.Loop(); i++ {
+		k := "j"
+		if i%2 == 1 {
+			k = "k"
+		}
+		m.Update(keyMsg(k))
+		_ = m.View()
+	}
+}
+
+// BenchmarkKeyEdit is an edit (filters ×2, then ÷2), which recomputes every
+// number of the 1,000-layer stack, and a new frame at 120×40.
+func BenchmarkKeyEdit(b *testing.B) {
+	m := newModel(b, longStack(1000), 120, 40)
+	press(m, "pgdown", "pgdown")
+	b.ReportAllocs()
+	for i := 0; b.Loop(); i++ {
+		k := ">"
+		if i%2 == 1 {
+			k = "<"
+		}
+		m.Update(keyMsg(k))
+		_ = m.View()
+	}
+}
+
+// BenchmarkView measures a frame alone on stacks of 100 and 10,000 layers:
+// only visible rows are drawn, so the two should cost about the same.
+func BenchmarkView(b *testing.B) {
+	for _, n := range []int{100, 10000} {
+		b.Run(strconv.Itoa(n), func(b *testing.B) {
+			m := newModel(b, longStack(n), 120, 40)
+			b.ReportAllocs()
+			for b.Loop() {
+				_ = m.View()
+			}
+		})
+	}
+}
+
+// BenchmarkStartup is New plus the first frame of the 1,000-layer stack.
+func BenchmarkStartup(b *testing.B) {
+	s := longStack(1000)
+	b.ReportAllocs()
+	for b.Loop() {
+		m := New(Options{Stack: s, Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles()})
+		m.Update(tea.WindowSizeMsg{Width: 120, Height: 40})
+		_ = m.View()
+	}
+}
+

@@ -1,0 +1,118 @@
+package editor
+
+import (
+	"fmt"
+	"path/filepath"
+
+	"github.com/charmbracelet/bubbles/key"
+	tea "github.com/charmbracelet/bubbletea"
+
+	"stackfit/engine"
+	"stackfit/engine/stackfile"
+)
+
+// confirm asks a yes/no question; yes and no run their actions.
+type confirm struct {
+	question string
+	yes, no  func() tea.Cmd
+}
+
+func (m *Model) ask(q string, yes, no func() tea.Cmd) {
+	m.confirm = &confirm{question: q, yes: yes, no: no}
+	m.mode = modeConfirm
+}
+
+func (m *Model) updateConfirm(msg tea.KeyMsg) tea.Cmd {
+	c := m.confirm
+	switch {
+	case key.Matches(msg, m.keys.ForceQuit):
+		return m.quit()
+	case key.Matches(msg, m.keys.Yes):
+		m.confirm, m.mode = nil, modeNormal
+		return c.yes()
+	case key.Matches(msg, m.keys.No):
+		m.confirm, m.mode = nil, modeNormal
+		if c.no != nil {
+			return c.no()
+		}
+	case key.Matches(msg, m.keys.Cancel):
+		m.confirm, m.mode = nil, modeNormal
+		m.setStatus("", statusInfo)
+	}
+	return nil
+}
+
+// save writes the stack to its file, or asks for one.
+func (m *Model) save() tea.Cmd {
+	if m.path == "" {
+		m.openPrompt(promptSaveAs, "save as", "net.yaml")
+		return nil
+	}
+	return m.saveTo(m.path)
+}
+
+// saveTo writes the stack to path atomically; the old file stays whole if
+// anything fails.
+func (m *Model) saveTo(path string) tea.Cmd {
+	if err := stackfile.SaveFile(path, m.stack); err != nil {
+		m.setStatus("not saved: "+err.Error(), statusError)
+		return nil
+	}
+	m.path = path
+	m.dirty = false
+	if m.journal != nil {
+		if err := m.journal.Clear(); err != nil {
+			m.setStatus("saved, but the recovery copy could not be removed: "+err.Error(), statusError)
+			return nil
+		}
+	}
+	m.setStatus(fmt.Sprintf("saved %s (%d rows)", filepath.Base(path), len(m.res.Rows)), statusInfo)
+	return nil
+}
+
+// load replaces the stack with s from path; undo history starts afresh.
+func (m *Model) load(s *engine.Stack, path string) {
+	m.stack, m.path, m.dirty = s, path, false
+	m.hist = history{}
+	m.cursor, m.offset, m.anchor = 0, 0, -1
+	m.folded = map[string]bool{}
+	m.baseline = nil
+	m.recompute()
+	m.setStatus("opened "+path, statusInfo)
+}
+
+func (m *Model) open() {
+	if !m.dirty {
+		m.openPrompt(promptOpen, "open", "")
+		return
+	}
+	m.ask("unsaved changes will be lost — open another file anyway? (y: yes · n/esc: stay)",
+		func() tea.Cmd { m.openPrompt(promptOpen, "open", ""); return nil }, nil)
+}
+
+// requestQuit quits, or asks first when there are unsaved changes.
+func (m *Model) requestQuit() tea.Cmd {
+	if !m.dirty {
+		return m.quit()
+	}
+	m.ask("save changes before quitting? (y: save and quit · n: quit without saving · esc: stay)",
+		func() tea.Cmd {
+			m.save()
+			if m.dirty {
+				return nil // not saved: the status line says why
+			}
+			return m.quit()
+		},
+		func() tea.Cmd {
+			if m.journal != nil {
+				m.journal.Clear()
+			}
+			return m.quit()
+		})
+	return nil
+}
+
+func (m *Model) quit() tea.Cmd {
+	m.quitting = true
+	return tea.Quit
+}

@@ -1,0 +1,215 @@
+// Package editor is stackfit's terminal editor: a keyboard-driven view of
+// the layer stack where every change recomputes every number, with a side
+// column of sizes and memory, a detail panel with the arithmetic, a budget
+// gauge and the fit solver's answers.
+package editor
+
+import (
+	"fmt"
+
+	tea "github.com/charmbracelet/bubbletea"
+
+	"stackfit/engine"
+	"stackfit/keymap"
+	"stackfit/ui/styles"
+)
+
+// Options configures a new editor.
+type Options struct {
+	Stack   *engine.Stack // the stack to edit; nil starts an empty one
+	Path    string        // where Save writes; "" asks on first save
+	NewFile bool          // Path does not exist yet: ask for the input shape first
+	Keys    keymap.KeyMap
+	Styles  styles.Styles
+	Journal Journal // where unsaved edits are kept between keystrokes; nil for none
+}
+
+// Journal keeps unsaved edits so a crash loses nothing.
+type Journal interface {
+	// Record stores the current stack; it is called after every change.
+	Record(s *engine.Stack) error
+	// Clear forgets the journal (after a save or a clean quit).
+	Clear() error
+}
+
+// status is the message line's kind.
+type statusKind uint8
+
+const (
+	statusInfo statusKind = iota
+	statusError
+)
+
+// Model is the editor's state.
+type Model struct {
+	keys keymap.KeyMap
+	st   styles.Styles
+
+	width, height int
+
+	stack   *engine.Stack
+	path    string
+	dirty   bool
+	journal Journal
+
+	// Numbers of the current stack, recomputed on every change.
+	res    engine.Result
+	mem    engine.Memory
+	fit    engine.Fit
+	cumAct []int64 // activation bytes of rows 0..i
+	assume engine.Assumptions
+
+	widthGen int // generation of the background width search
+
+	// The stack view.
+	items    []item
+	numWidth int // digits of the largest item number
+	cursor   int
+	offset int
+	anchor int // start of a selected range, −1 when none
+	folded map[string]bool
+
+	mode    keymap.Mode
+	form    *form
+	picker  *picker
+	prompt  *prompt
+	confirm *confirm
+
+	// While a form is open, the numbers of its preview.
+	preview *engine.Analysis
+
+	hist     history
+	baseline *baseline
+	status   string
+	statusK  statusKind
+	stage    engine.StageOptions
+	quitting bool
+}
+
+// New returns an editor for opt.
+func New(opt Options) *Model {
+	m := &Model{
+		keys:    opt.Keys,
+		st:      opt.Styles,
+		stack:   opt.Stack,
+		path:    opt.Path,
+		journal: opt.Journal,
+		anchor:  -1,
+		folded:  map[string]bool{},
+		assume:  engine.DefaultAssumptions(),
+		stage:   engine.StageOptions{Cap: 512, Repeat: 2},
+		width:   80,
+		height:  24,
+	}
+	if m.stack == nil {
+		m.stack = &engine.Stack{Input: engine.Shape{C: 3, H: 224, W: 224}}
+	}
+	m.recompute()
+	if opt.NewFile {
+		m.openPrompt(promptInput, "input shape of one sample, channels×height×width", "3x224x224")
+		m.setStatus(fmt.Sprintf("new file %s: give the input shape, then add layers (a or :)", opt.Path), statusInfo)
+	}
+	return m
+}
+
+// Init starts the background width search.
+func (m *Model) Init() tea.Cmd { return m.widthCmd() }
+
+// Stack returns the stack being edited.
+func (m *Model) Stack() *engine.Stack { return m.stack }
+
+// Dirty reports unsaved changes.
+func (m *Model) Dirty() bool { return m.dirty }
+
+// Cursor returns the index of the selected item.
+func (m *Model) Cursor() int { return m.cursor }
+
+// Mode returns the current mode.
+func (m *Model) Mode() keymap.Mode { return m.mode }
+
+// StatusLine returns the message line.
+func (m *Model) StatusLine() string { return m.status }
+
+func (m *Model) setStatus(s string, k statusKind) { m.status, m.statusK = s, k }
+
+// recompute re-evaluates the stack, its memory and the quick fit answers,
+// and rebuilds the visible items. It runs once per change, never in View.
+func (m *Model) recompute() {
+	m.res.Evaluate(m.stack)
+	m.res.Memory(m.stack.Training, m.assume, &m.mem)
+	w, lim, ok := m.fit.MaxWidth, m.fit.WidthLimit, m.fit.WidthExact
+	m.fit = engine.SolveCapacity(&m.res, &m.mem, m.stack.Training)
+	m.fit.MaxWidth, m.fit.WidthLimit, m.fit.WidthExact = w, lim, ok
+	m.cumAct = m.cumAct[:0]
+	var sum int64
+	for _, b := range m.mem.Rows {
+		sum += b
+		m.cumAct = append(m.cumAct, sum)
+	}
+	m.rebuild()
+}
+
+// rebuild lists the visible items again (after a change or a fold).
+func (m *Model) rebuild() {
+	m.items = buildItems(m.stack, &m.res, m.folded, m.items)
+	most := 0
+	for i := range m.items {
+		most = max(most, m.items[i].addr[len(m.items[i].addr)-1]+1)
+	}
+	m.numWidth = len(fmt.Sprint(most))
+	m.clampCursor()
+}
+
+// widthMsg carries a finished background width search.
+type widthMsg struct {
+	gen   int
+	width float64
+	limit string
+	exact bool
+}
+
+// widthCmd starts the width search for the current stack (it re-evaluates
+// the stack a few dozen times, so it runs off the keystroke path).
+func (m *Model) widthCmd() tea.Cmd {
+	m.widthGen++
+	gen := m.widthGen
+	if m.stack.Training.Budget <= 0 || m.res.Errors > 0 {
+		m.fit.MaxWidth, m.fit.WidthLimit = 0, ""
+		return nil
+	}
+	s := m.stack.Clone()
+	t, a := m.stack.Training, m.assume
+	return func() tea.Msg {
+		w, lim, exact := engine.MaxWidth(s, t, a)
+		return widthMsg{gen, w, lim, exact}
+	}
+}
+
+func (m *Model) clampCursor() {
+	if m.cursor >= len(m.items) {
+		m.cursor = len(m.items) - 1
+	}
+	if m.cursor < 0 {
+		m.cursor = 0
+	}
+	if m.anchor >= len(m.items) {
+		m.anchor = -1
+	}
+}
+
+// current returns the selected item, or nil for an empty stack.
+func (m *Model) current() *item {
+	if m.cursor < 0 || m.cursor >= len(m.items) {
+		return nil
+	}
+	return &m.items[m.cursor]
+}
+
+// channelsAt returns the channels flowing out of the selected item (the
+// input's when the stack is empty).
+func (m *Model) channelsAt() int64 {
+	if it := m.current(); it != nil && it.last >= 0 && m.res.Rows[it.last].Status == engine.StatusOK {
+		return m.res.Rows[it.last].Out.C
+	}
+	return m.stack.Input.C
+}

@@ -1,0 +1,97 @@
+package editor
+
+import (
+	"fmt"
+	"strings"
+
+	"github.com/charmbracelet/bubbles/help"
+
+	"stackfit/engine"
+	"stackfit/keymap"
+)
+
+// formView draws the open form in place of the stack view.
+func (m *Model) formView(lay layout) string {
+	f := m.form
+	lines := []string{m.st.Label.Render(f.title) + m.st.Dim.Render("  — numbers below follow as you type")}
+	labelW := 0
+	for _, fl := range f.fields {
+		labelW = max(labelW, len(fl.key))
+	}
+	first := 0
+	if per := lay.listH - 1; f.focus >= per {
+		first = f.focus - per + 1
+	}
+	for i := first; i < len(f.fields) && len(lines) < lay.listH; i++ {
+		fl := f.fields[i]
+		mark := "  "
+		if i == f.focus {
+			mark = "▸ "
+		}
+		in := fl.input.View()
+		note := m.st.Dim.Render(fl.help)
+		if fl.err != "" {
+			note = m.st.Error.Render("✗ " + fl.err)
+		}
+		lines = append(lines, fit(mark+m.st.Label.Render(fit(fl.key, labelW))+"  "+fit(in, 18)+"  "+note, m.width))
+	}
+	return pad(lines, lay.listH, m.width)
+}
+
+// pad completes lines to exactly n lines of width w.
+func pad(lines []string, n, w int) string {
+	var b strings.Builder
+	for i := 0; i < n; i++ {
+		s := ""
+		if i < len(lines) {
+			s = lines[i]
+		}
+		b.WriteString(fit(s, w))
+		b.WriteByte('\n')
+	}
+	return b.String()
+}
+
+func (m *Model) pickerView(lay layout) string {
+	p := m.picker
+	lines := []string{m.st.Label.Render("add which kind of layer? (a letter jumps to it)")}
+	first := max(0, p.sel-(lay.listH-2))
+	for i := first; i < len(p.kinds) && len(lines) < lay.listH; i++ {
+		k := p.kinds[i]
+		line := fmt.Sprintf("  %-12s %s", k, kindHelp[k])
+		if i == p.sel {
+			line = m.st.Cursor.Render(fit(line, m.width))
+		}
+		lines = append(lines, line)
+	}
+	return pad(lines, lay.listH, m.width)
+}
+
+// helpView is the full help, generated from the key map, with the
+// quick-entry syntax.
+func (m *Model) helpView() string {
+	h := help.New()
+	h.Width = m.width
+	h.FullSeparator = "   "
+	h.Styles.FullKey = m.st.Label
+	h.Styles.FullDesc = m.st.Help
+	var b strings.Builder
+	b.WriteString(m.st.Title.Render("stackfit — keys") + m.st.Dim.Render("  (? or esc closes; override keys in "+keysPath()+")"))
+	b.WriteString("\n\n")
+	b.WriteString(h.FullHelpView(m.keys.FullHelp()))
+	b.WriteString("\n\n")
+	b.WriteString(m.st.Title.Render("the quick-entry line (:)"))
+	b.WriteByte('\n')
+	b.WriteString(engine.QuickSyntax)
+	b.WriteString("\n\n")
+	b.WriteString(m.st.Dim.Render("Memory figures are estimates for one GPU; frameworks, kernels and fragmentation differ — keep headroom."))
+	lines := strings.Split(b.String(), "\n")
+	return pad(lines, m.height, m.width)
+}
+
+func keysPath() string {
+	if p := keymap.DefaultPath(); p != "" {
+		return p
+	}
+	return "$" + keymap.EnvPath
+}

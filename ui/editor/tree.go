@@ -1,0 +1,139 @@
+package editor
+
+import (
+	"strconv"
+	"strings"
+
+	"stackfit/engine"
+)
+
+// addr locates a layer in the stack: indices into the top-level list, then
+// into each enclosing block's body.
+type addr []int
+
+// key is a stable string form of the address, for maps.
+func (a addr) key() string {
+	var b strings.Builder
+	for i, v := range a {
+		if i > 0 {
+			b.WriteByte('/')
+		}
+		b.WriteString(strconv.Itoa(v))
+	}
+	return b.String()
+}
+
+// path is the report path of the layer's first row: for a layer inside
+// blocks, the repeat segments are 1 ("4.1.2"); a block's path is its item
+// prefix ("4").
+func (a addr) path() engine.Path {
+	var p engine.Path
+	for i, v := range a {
+		if i > 0 {
+			p = p.Append(1)
+		}
+		p = p.Append(v + 1)
+	}
+	return p
+}
+
+// parent returns the address of the enclosing block (nil at top level).
+func (a addr) parent() addr {
+	if len(a) <= 1 {
+		return nil
+	}
+	return a[:len(a)-1]
+}
+
+func (a addr) with(last int) addr {
+	out := append(addr(nil), a...)
+	out[len(out)-1] = last
+	return out
+}
+
+// list returns the slice holding the layer at a, and its index there.
+func list(s *engine.Stack, a addr) (*[]engine.Layer, int) {
+	ls := &s.Layers
+	for _, v := range a[:len(a)-1] {
+		if v < 0 || v >= len(*ls) {
+			return nil, -1
+		}
+		ls = &(*ls)[v].Body
+	}
+	i := a[len(a)-1]
+	if i < 0 || i > len(*ls) {
+		return nil, -1
+	}
+	return ls, i
+}
+
+// at returns the layer at a, or nil.
+func at(s *engine.Stack, a addr) *engine.Layer {
+	if len(a) == 0 {
+		return nil
+	}
+	ls, i := list(s, a)
+	if ls == nil || i >= len(*ls) {
+		return nil
+	}
+	return &(*ls)[i]
+}
+
+// item is one visible line of the stack view.
+type item struct {
+	addr  addr
+	depth int
+	layer *engine.Layer
+	first int // first row index of the item, −1 if none
+	last  int // last row index (blocks span all their repeats)
+}
+
+// span is the range of rows an item produced.
+type span struct{ first, last int }
+
+// buildItems lists the visible items (blocks folded hide their bodies) and
+// ties each to its rows in r.
+func buildItems(s *engine.Stack, r *engine.Result, folded map[string]bool, out []item) []item {
+	spans := make(map[engine.Path]span, len(r.Rows))
+	for i := range r.Rows {
+		p := r.Rows[i].Path
+		// A row belongs to itself and to every block prefix (odd lengths).
+		for n := 1; n <= p.Len(); n += 2 {
+			q := prefix(p, n)
+			if sp, ok := spans[q]; ok {
+				sp.last = i
+				spans[q] = sp
+			} else {
+				spans[q] = span{i, i}
+			}
+		}
+	}
+	out = out[:0]
+	var walk func(ls []engine.Layer, parent addr, depth int)
+	walk = func(ls []engine.Layer, parent addr, depth int) {
+		for i := range ls {
+			a := append(append(addr(nil), parent...), i)
+			it := item{addr: a, depth: depth, layer: &ls[i], first: -1, last: -1}
+			if sp, ok := spans[a.path()]; ok {
+				it.first, it.last = sp.first, sp.last
+				if ls[i].Kind != engine.KindBlock {
+					it.last = it.first // inside a block: its first repeat
+				}
+			}
+			out = append(out, it)
+			if ls[i].Kind == engine.KindBlock && !folded[a.key()] {
+				walk(ls[i].Body, a, depth+1)
+			}
+		}
+	}
+	walk(s.Layers, nil, 0)
+	return out
+}
+
+// prefix returns the first n segments of p.
+func prefix(p engine.Path, n int) engine.Path {
+	for p.Len() > n {
+		p = p.Parent()
+	}
+	return p
+}
