@@ -103,7 +103,7 @@ func TestGoldenViews(t *testing.T) {
 	}{{"80x24", 80, 24}, {"120x40", 120, 40}} {
 		t.Run(size.name, func(t *testing.T) {
 			m := newModel(t, example(t), size.w, size.h)
-			press(m, "j", "j", "j", "j", "j", "j") // the stride-2 convolution
+			press(m, "j", "j", "j", "j", "j", "j")         // the stride-2 convolution
 			m.fit.MaxWidth, m.fit.WidthExact = 23.62, true // the background search's answer
 			golden(t, view(m))
 		})
@@ -491,4 +491,3 @@ func BenchmarkStartup(b *testing.B) {
 		_ = m.View()
 	}
 }
-

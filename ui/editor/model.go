@@ -65,9 +65,9 @@ type Model struct {
 	items    []item
 	numWidth int // digits of the largest item number
 	cursor   int
-	offset int
-	anchor int // start of a selected range, −1 when none
-	folded map[string]bool
+	offset   int
+	anchor   int // start of a selected range, −1 when none
+	folded   map[string]bool
 
 	mode    keymap.Mode
 	form    *form
