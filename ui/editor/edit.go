@@ -11,15 +11,19 @@ import (
 
 // change applies fn to the stack as one undoable step, then recomputes
 // every number. fn may move the cursor by returning the address to select.
+//
+// Changes are copy-on-write: fn edits a fresh copy, and the stack it
+// replaces goes to the history untouched, so the background width search
+// can read the current stack while later changes are made.
 func (m *Model) change(what string, fn func(s *engine.Stack) (addr, error)) tea.Cmd {
-	before := snapshot{stack: m.stack.Clone(), cursor: m.cursor, what: what}
-	sel, err := fn(m.stack)
+	before := snapshot{stack: m.stack, cursor: m.cursor, what: what}
+	next := m.stack.Clone()
+	sel, err := fn(next)
 	if err != nil {
-		m.stack = before.stack
-		m.recompute()
 		m.setStatus(err.Error(), statusError)
 		return nil
 	}
+	m.stack = next
 	m.hist.push(before)
 	m.dirty = true
 	m.anchor = -1

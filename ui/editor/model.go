@@ -177,7 +177,7 @@ func (m *Model) widthCmd() tea.Cmd {
 		m.fit.MaxWidth, m.fit.WidthLimit = 0, ""
 		return nil
 	}
-	s := m.stack.Clone()
+	s := m.stack // never edited in place (see change), so safe to share
 	t, a := m.stack.Training, m.assume
 	return func() tea.Msg {
 		w, lim, exact := engine.MaxWidth(s, t, a)

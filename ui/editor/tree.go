@@ -92,42 +92,53 @@ type item struct {
 type span struct{ first, last int }
 
 // buildItems lists the visible items (blocks folded hide their bodies) and
-// ties each to its rows in r.
+// ties each to its rows in r. Items and rows come in the same order, so one
+// forward walk matches them without a lookup table.
 func buildItems(s *engine.Stack, r *engine.Result, folded map[string]bool, out []item) []item {
-	spans := make(map[engine.Path]span, len(r.Rows))
-	for i := range r.Rows {
-		p := r.Rows[i].Path
-		// A row belongs to itself and to every block prefix (odd lengths).
-		for n := 1; n <= p.Len(); n += 2 {
-			q := prefix(p, n)
-			if sp, ok := spans[q]; ok {
-				sp.last = i
-				spans[q] = sp
-			} else {
-				spans[q] = span{i, i}
-			}
-		}
-	}
 	out = out[:0]
+	next := 0 // first row not yet claimed by an earlier item
 	var walk func(ls []engine.Layer, parent addr, depth int)
 	walk = func(ls []engine.Layer, parent addr, depth int) {
 		for i := range ls {
 			a := append(append(addr(nil), parent...), i)
 			it := item{addr: a, depth: depth, layer: &ls[i], first: -1, last: -1}
-			if sp, ok := spans[a.path()]; ok {
-				it.first, it.last = sp.first, sp.last
-				if ls[i].Kind != engine.KindBlock {
-					it.last = it.first // inside a block: its first repeat
+			p := a.path()
+			j := next
+			for j < len(r.Rows) && !r.Rows[j].Path.HasPrefix(p) && !beyond(r.Rows[j].Path, p) {
+				j++
+			}
+			if j < len(r.Rows) && r.Rows[j].Path.HasPrefix(p) {
+				it.first, it.last = j, j
+				if ls[i].Kind == engine.KindBlock {
+					for k := j + 1; k < len(r.Rows) && r.Rows[k].Path.HasPrefix(p); k++ {
+						it.last = k
+					}
+				}
+				next = j
+				if ls[i].Kind != engine.KindBlock || folded[a.key()] {
+					next = it.last + 1
 				}
 			}
 			out = append(out, it)
 			if ls[i].Kind == engine.KindBlock && !folded[a.key()] {
 				walk(ls[i].Body, a, depth+1)
+				next = max(next, it.last+1)
 			}
 		}
 	}
 	walk(s.Layers, nil, 0)
 	return out
+}
+
+// beyond reports whether row path q comes after every row of item path p
+// (their first differing regular segment is larger in q).
+func beyond(q, p engine.Path) bool {
+	for i := 0; i < p.Len() && i < q.Len(); i++ {
+		if q.At(i) != p.At(i) {
+			return q.At(i) > p.At(i)
+		}
+	}
+	return false
 }
 
 // prefix returns the first n segments of p.

@@ -219,11 +219,14 @@ func (m *Model) itemLine(it *item, lay layout, selected bool) string {
 	if selected {
 		cur = "▶"
 	}
-	left := cur + m.mark(it) + " " + strings.Repeat("  ", it.depth) + fold + m.st.Dim.Render(num) + " "
-	if l.Kind == engine.KindBlock {
-		label = m.st.Block.Render(label)
+	// Plain text, with style only where it carries meaning (marks, block
+	// headers): lipgloss rendering is the costliest part of a frame.
+	left := cur + m.mark(it) + " " + strings.Repeat("  ", it.depth) + fold + num + " "
+	line := fit(left+label, lay.listW)
+	if l.Kind == engine.KindBlock && !selected {
+		line = m.st.Block.Render(line)
 	}
-	return fit(left+label, lay.listW) + " " + m.sideCells(it, lay)
+	return line + " " + m.sideCells(it, lay)
 }
 
 // sideCells draws the numbers beside an item.
