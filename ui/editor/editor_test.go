@@ -20,7 +20,11 @@ import (
 	"stackfit/ui/styles"
 )
 
-var update = flag.Bool("update", false, "rewrite golden files")
+// updating reports -update (the flag the terminal-test helper defines).
+func updating() bool {
+	f := flag.Lookup("update")
+	return f != nil && f.Value.String() == "true"
+}
 
 func TestMain(m *testing.M) {
 	lipgloss.SetColorProfile(termenv.Ascii)
@@ -81,7 +85,7 @@ func view(m *Model) string { return ansi.Strip(m.View()) }
 func golden(t *testing.T, got string) {
 	t.Helper()
 	p := filepath.Join("testdata", t.Name()+".golden")
-	if *update {
+	if updating() {
 		os.MkdirAll(filepath.Dir(p), 0o755)
 		os.WriteFile(p, []byte(got), 0o644)
 	}
