@@ -17,25 +17,30 @@ func (m *Model) chartView(h int) string {
 	if len(rows) == 0 || w < 10 {
 		return pad([]string{"nothing to chart: the stack is empty"}, h, m.width)
 	}
-	cols := min(w, len(rows))
-	// Each column takes the largest value of the rows that fall in it.
+	// Short stacks get up to three columns a row; long ones share columns,
+	// each showing the largest value of its rows.
+	per := max(min(w/len(rows), 3), 1)
+	cols := min(w, len(rows)*per)
 	vol := make([]float64, cols)
 	par := make([]float64, cols)
 	stage := make([]bool, cols)
 	prevH := m.res.Input.H
 	for i := range rows {
-		c := i * cols / len(rows)
 		r := &rows[i]
 		if r.Status != engine.StatusOK {
 			continue
 		}
 		v, _ := r.Out.Elements()
-		vol[c] = math.Max(vol[c], float64(v))
-		par[c] = math.Max(par[c], float64(r.Params))
-		if r.Out.H < prevH && r.Role == engine.RoleLayer {
-			stage[c] = true
-		}
+		drop := r.Out.H < prevH && r.Role == engine.RoleLayer
 		prevH = r.Out.H
+		c0, c1 := i*cols/len(rows), max((i+1)*cols/len(rows), i*cols/len(rows)+1)
+		for c := c0; c < c1 && c < cols; c++ {
+			vol[c] = math.Max(vol[c], float64(v))
+			par[c] = math.Max(par[c], float64(r.Params))
+		}
+		if drop {
+			stage[c0] = true
+		}
 	}
 	plotH := max((h-5)/2, 2)
 	var lines []string
@@ -50,16 +55,20 @@ func (m *Model) chartView(h int) string {
 
 // bars draws values as vertical bars h cells tall, on a log scale.
 func (m *Model) bars(vals []float64, h int, paint func(...string) string) []string {
-	top := 0.0
+	top, bottom := 0.0, math.Inf(1)
 	for _, v := range vals {
 		top = math.Max(top, v)
+		if v > 0 {
+			bottom = math.Min(bottom, v)
+		}
 	}
+	// Log scale from a tenth of the smallest value to the largest, so the
+	// smallest non-zero value still shows and the shape fills the height.
 	scaled := make([]float64, len(vals)) // 0..h·8 eighths
-	if top > 1 {
-		for i, v := range vals {
-			if v >= 1 {
-				scaled[i] = math.Log10(v+1) / math.Log10(top+1) * float64(h*8)
-			}
+	lo, hi := math.Log10(bottom/10), math.Log10(top)
+	for i, v := range vals {
+		if v > 0 && hi > lo {
+			scaled[i] = (math.Log10(v) - lo) / (hi - lo) * float64(h*8)
 		}
 	}
 	glyph := []string{" ", "▁", "▂", "▃", "▄", "▅", "▆", "▇", "█"}
@@ -72,8 +81,11 @@ func (m *Model) bars(vals []float64, h int, paint func(...string) string) []stri
 			b.WriteString(glyph[max(min(e, 8), 0)])
 		}
 		label := "      "
-		if y == 0 {
+		switch {
+		case y == 0:
 			label = fmt.Sprintf("%6s", engine.FormatCount(int64(top)))
+		case y == h-1 && bottom < top:
+			label = fmt.Sprintf("%6s", engine.FormatCount(int64(bottom)))
 		}
 		out[y] = m.st.Dim.Render(label) + " " + paint(b.String())
 	}

@@ -327,7 +327,11 @@ func (m *Model) detailLines() []string {
 	}
 	r := &res.Rows[row]
 	var out []string
-	head := fmt.Sprintf("%s · %s", r.Path, engine.Summary(it.layer))
+	where := r.Path.String()
+	if it.layer.Kind == engine.KindBlock {
+		where = it.addr.path().String()
+	}
+	head := fmt.Sprintf("%s · %s", where, engine.Summary(it.layer))
 	if m.preview != nil {
 		head = "preview · " + head
 	}
