@@ -3,7 +3,9 @@
 package report
 
 import (
+	"bytes"
 	"encoding/json"
+	"fmt"
 	"io"
 
 	"stackfit/engine"
@@ -175,9 +177,53 @@ func BuildJSON(an *engine.Analysis) *JSON {
 	return doc
 }
 
-// WriteJSON writes the JSON report, indented, with a final newline.
+// WriteJSON writes the JSON report with one top-level field, and one
+// layer, per line: readable, diffable, and several times faster to write
+// than fully indented JSON.
 func WriteJSON(w io.Writer, an *engine.Analysis) error {
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	return enc.Encode(BuildJSON(an))
+	doc := BuildJSON(an)
+	var b bytes.Buffer
+	field := func(name string, v any, last bool) error {
+		data, err := json.Marshal(v)
+		if err != nil {
+			return err
+		}
+		fmt.Fprintf(&b, "  %q: %s", name, data)
+		if !last {
+			b.WriteByte(',')
+		}
+		b.WriteByte('\n')
+		return nil
+	}
+	b.WriteString("{\n")
+	if err := field("name", doc.Name, false); err != nil {
+		return err
+	}
+	field("input", doc.Input, false)
+	b.WriteString("  \"layers\": [")
+	for i := range doc.Layers {
+		data, err := json.Marshal(&doc.Layers[i])
+		if err != nil {
+			return err
+		}
+		if i > 0 {
+			b.WriteByte(',')
+		}
+		b.WriteString("\n    ")
+		b.Write(data)
+	}
+	if len(doc.Layers) > 0 {
+		b.WriteString("\n  ")
+	}
+	b.WriteString("],\n")
+	field("totals", doc.Totals, false)
+	field("errors", doc.Errors, false)
+	field("warnings", doc.Warnings, false)
+	field("memory", doc.Memory, false)
+	if err := field("fit", doc.Fit, true); err != nil {
+		return err
+	}
+	b.WriteString("}\n")
+	_, err := w.Write(b.Bytes())
+	return err
 }

@@ -1,5 +1,6 @@
 // Package cli is stackfit's command line: it parses arguments, loads stack
-// files and hands them to the engine and the report writers.
+// files and hands them to the engine, the report writers, the exporter or
+// the editor.
 package cli
 
 import (
@@ -19,7 +20,7 @@ import (
 // Exit statuses.
 const (
 	ExitOK       = 0 // clean
-	ExitProblems = 1 // the stack has errors
+	ExitProblems = 1 // the stack has errors, does not fit, or (check --strict) has warnings
 	ExitUsage    = 2 // bad usage or unreadable input
 )
 
@@ -42,7 +43,17 @@ func Run(args []string, std IO) int {
 	switch args[0] {
 	case "report":
 		return runReport(args[1:], std)
+	case "check":
+		return runCheck(args[1:], std)
+	case "export":
+		return runExport(args[1:], std)
 	case "help", "-h", "--help", "-help":
+		if len(args) > 1 {
+			if u, ok := commandUsage[args[1]]; ok {
+				fmt.Fprint(std.Out, u)
+				return ExitOK
+			}
+		}
 		fmt.Fprint(std.Out, usage)
 		return ExitOK
 	}
@@ -53,7 +64,7 @@ func Run(args []string, std IO) int {
 		}
 		return runEditor(args[0], std)
 	}
-	fmt.Fprintf(std.Err, "stackfit: unknown command %q (commands: report, help; a stack file name needs its extension, e.g. net.yaml)\n\n%s", args[0], usage)
+	fmt.Fprintf(std.Err, "stackfit: unknown command %q (commands: report, check, export, help; a stack file name needs its extension, e.g. net.yaml)\n\n%s", args[0], usage)
 	return ExitUsage
 }
 
@@ -65,34 +76,77 @@ func fileExists(p string) bool {
 const usage = `stackfit — size a convolutional network before you write it
 
 usage:
-  stackfit                          edit the built-in example (fruit grader);
-                                    without a terminal, print its report
-  stackfit FILE                     edit FILE (a new file starts empty)
-  stackfit report FILE [flags]      report a stack file ('-' reads standard input)
+  stackfit                        edit the built-in example (fruit grader);
+                                  without a terminal, print its report
+  stackfit FILE                   edit FILE (a new file starts empty)
+  stackfit report FILE [flags]    print the numbers: text, markdown, csv or json
+  stackfit check FILE [flags]     for CI: errors, warnings and the memory verdict
+  stackfit export FILE [flags]    write the stack as a PyTorch module
+  stackfit help COMMAND           the flags of one command (or COMMAND --help)
 
-report flags:
-  --format text|json   output format (default text)
-  -o FILE              write the report to FILE instead of standard output
+FILE may be '-' to read the stack from standard input (report, check, export).
 
-training flags (override the stack file's training section):
-  --batch N            samples per optimizer step over all GPUs
-  --precision P        fp32, fp16-mixed, bf16-mixed or bf16
-  --optimizer O        sgd, momentum, adam, adamw, adagrad or rmsprop
-  --budget SIZE        GPU memory per device: 24GiB, 24GB, 24000MiB
-  --gpus N             data-parallel GPUs
-  --shard S            none, optimizer, gradients or parameters (ZeRO stages)
-  --accumulate N       gradient-accumulation steps per optimizer step
-  --checkpoint K       keep every K-th layer's output, recompute the rest
-  --workspace SIZE     convolution workspace (default 256MiB)
-  --overhead SIZE      CUDA context and library overhead (default 512MiB)
-  --headroom SHARE     share of the budget kept free (default 10%)
+exit status: 0 clean · 1 the stack has errors or does not fit the budget
+(check --strict: or has warnings) · 2 bad usage or unreadable input
+` + trainingUsage
 
-exit status: 0 clean, 1 the stack has errors, 2 bad usage or unreadable file
-
-example:
-  stackfit report net.yaml --format json -o net.json
-  stackfit report net.yaml --batch 512 --precision bf16-mixed --budget 80GiB
+const trainingUsage = `
+training flags (report, check, export; they override the file's training section):
+  --batch N            samples per optimizer step over all GPUs         e.g. --batch 256
+  --precision P        fp32, fp16-mixed, bf16-mixed or bf16             e.g. --precision bf16-mixed
+  --optimizer O        sgd, momentum, adam, adamw, adagrad or rmsprop  e.g. --optimizer adamw
+  --budget SIZE        GPU memory per device, or auto (nvidia-smi)      e.g. --budget 24GiB
+  --gpus N             data-parallel GPUs                               e.g. --gpus 8
+  --shard S            none, optimizer, gradients or parameters         e.g. --shard optimizer
+  --accumulate N       gradient-accumulation steps                      e.g. --accumulate 4
+  --checkpoint K       keep every K-th layer's output, recompute the rest  e.g. --checkpoint 6
+  --workspace SIZE     convolution workspace (default 256MiB)           e.g. --workspace 1GiB
+  --overhead SIZE      CUDA runtime overhead (default 512MiB)           e.g. --overhead 700MiB
+  --headroom SHARE     share of the budget kept free (default 10%)      e.g. --headroom 15%
 `
+
+var commandUsage = map[string]string{
+	"report": `usage: stackfit report FILE [flags]
+
+Prints every layer's output size, parameters, MACs and receptive field,
+the totals and the training-memory estimate.
+
+  --format F     text (default, for a terminal), markdown (for design
+                 documents), csv (for spreadsheets) or json (for scripts)
+                 e.g. --format markdown
+  -o FILE        write to FILE instead of standard output   e.g. -o net.md
+
+examples:
+  stackfit report net.yaml
+  stackfit report net.yaml --format json -o net.json
+  cat net.yaml | stackfit report - --batch 512 --budget 80GiB
+` + trainingUsage,
+	"check": `usage: stackfit check FILE [flags]
+
+For the CI of a model repository: prints each error, each warning and the
+memory verdict, one per line with the layer's path, and exits 0 when clean,
+1 when the stack has errors or does not fit the budget, 2 on bad usage or
+an unreadable file.
+
+  --strict       warnings fail the check too      e.g. --strict
+
+examples:
+  stackfit check net.yaml --budget 24GiB
+  stackfit check net.yaml --budget auto --strict
+` + trainingUsage,
+	"export": `usage: stackfit export FILE [flags]
+
+Writes a self-contained Python module with one nn.Module class for the
+stack (blocks, residual shortcuts, concatenations and crops included) and a
+comment header with stackfit's totals.
+
+  --to T         the framework: pytorch (the only one so far)   e.g. --to pytorch
+  -o FILE        write to FILE instead of standard output       e.g. -o net.py
+
+examples:
+  stackfit export net.yaml --to pytorch -o net.py
+` + trainingUsage,
+}
 
 func showExample(std IO) int {
 	s, err := stackfile.Load(examples.FruitGrader())
@@ -108,58 +162,95 @@ func showExample(std IO) int {
 	return ExitOK
 }
 
-func runReport(args []string, std IO) int {
-	fs := flag.NewFlagSet("report", flag.ContinueOnError)
-	fs.SetOutput(std.Err)
-	format := fs.String("format", "text", "output format: text or json")
-	out := fs.String("o", "", "write the report to this file")
-	tf := addTrainingFlags(fs)
-	fs.Usage = func() { fmt.Fprint(std.Err, usage) }
-	pos, err := parseInterleaved(fs, args)
+// command is what report, check and export share: a flag set with the
+// training flags, one stack file, and its analysis.
+type command struct {
+	name string
+	fs   *flag.FlagSet
+	tf   trainingFlags
+	std  IO
+	file string
+}
+
+func newCommand(name string, std IO) *command {
+	fs := flag.NewFlagSet(name, flag.ContinueOnError)
+	fs.SetOutput(io.Discard)
+	return &command{name: name, fs: fs, tf: addTrainingFlags(fs), std: std}
+}
+
+// parse reads the arguments; it returns an exit status when the command
+// must stop (help asked, or bad usage).
+func (c *command) parse(args []string) (int, bool) {
+	pos, err := parseInterleaved(c.fs, args)
+	if errors.Is(err, flag.ErrHelp) {
+		fmt.Fprint(c.std.Out, commandUsage[c.name])
+		return ExitOK, true
+	}
 	if err != nil {
-		return ExitUsage
+		fmt.Fprintf(c.std.Err, "stackfit %s: %v\n(stackfit %s --help lists the flags)\n", c.name, err, c.name)
+		return ExitUsage, true
 	}
 	if len(pos) != 1 {
-		fmt.Fprintf(std.Err, "stackfit report: give exactly one stack file (got %d); e.g. stackfit report net.yaml\n", len(pos))
-		return ExitUsage
+		fmt.Fprintf(c.std.Err, "stackfit %s: give exactly one stack file (got %d); e.g. stackfit %s net.yaml\n", c.name, len(pos), c.name)
+		return ExitUsage, true
 	}
-	var write func(io.Writer, *engine.Analysis) error
-	switch *format {
-	case "text":
-		write = report.WriteText
-	case "json":
-		write = report.WriteJSON
-	default:
-		fmt.Fprintf(std.Err, "stackfit report: --format %q is not known; use text or json\n", *format)
-		return ExitUsage
-	}
-	s, err := load(pos[0], std.In)
+	c.file = pos[0]
+	return 0, false
+}
+
+func (c *command) fail(err error) int {
+	fmt.Fprintf(c.std.Err, "stackfit %s: %v\n", c.name, err)
+	return ExitUsage
+}
+
+// analyze loads the file and evaluates it under the effective settings.
+func (c *command) analyze() (*engine.Analysis, error) {
+	s, err := load(c.file, c.std.In)
 	if err != nil {
-		fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
-		return ExitUsage
+		return nil, err
 	}
-	t, err := tf.apply(s.Training)
+	t, err := c.tf.apply(s.Training)
 	if err != nil {
-		fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
+		return nil, err
+	}
+	return engine.Analyze(s, t, engine.DefaultAssumptions()), nil
+}
+
+// output runs write to -o FILE (atomically) or standard output.
+func (c *command) output(path string, write func(io.Writer) error) error {
+	if path == "" {
+		return write(c.std.Out)
+	}
+	var buf strings.Builder
+	if err := write(&buf); err != nil {
+		return err
+	}
+	return stackfile.WriteFileAtomic(path, []byte(buf.String()), 0o644)
+}
+
+func runReport(args []string, std IO) int {
+	c := newCommand("report", std)
+	format := c.fs.String("format", "text", "")
+	out := c.fs.String("o", "", "")
+	if code, stop := c.parse(args); stop {
+		return code
+	}
+	writers := map[string]func(io.Writer, *engine.Analysis) error{
+		"text": report.WriteText, "json": report.WriteJSON, "markdown": report.WriteMarkdown, "csv": report.WriteCSV,
+	}
+	write, ok := writers[*format]
+	if !ok {
+		fmt.Fprintf(std.Err, "stackfit report: --format %q is not known; use text, markdown, csv or json\n", *format)
 		return ExitUsage
 	}
-	an := engine.Analyze(s, t, engine.DefaultAssumptions())
-	r := an.Result
-	if *out != "" {
-		var buf strings.Builder
-		if err := write(&buf, an); err != nil {
-			fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
-			return ExitUsage
-		}
-		if err := stackfile.WriteFileAtomic(*out, []byte(buf.String()), 0o644); err != nil {
-			fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
-			return ExitUsage
-		}
-	} else if err := write(std.Out, an); err != nil {
-		fmt.Fprintf(std.Err, "stackfit report: %v\n", err)
-		return ExitUsage
+	an, err := c.analyze()
+	if err != nil {
+		return c.fail(err)
 	}
-	if r.Errors > 0 {
+	if err := c.output(*out, func(w io.Writer) error { return write(w, an) }); err != nil {
+		return c.fail(err)
+	}
+	if an.Result.Errors > 0 {
 		return ExitProblems
 	}
 	return ExitOK

@@ -18,7 +18,7 @@ func addTrainingFlags(fs *flag.FlagSet) trainingFlags {
 	fs.String("batch", "", "samples per optimizer step over all GPUs, e.g. 256")
 	fs.String("precision", "", "fp32, fp16-mixed, bf16-mixed or bf16")
 	fs.String("optimizer", "", "sgd, momentum, adam, adamw, adagrad or rmsprop")
-	fs.String("budget", "", "GPU memory per device, e.g. 24GiB, 24GB or 24000MiB")
+	fs.String("budget", "", "GPU memory per device, e.g. 24GiB, 24GB, 24000MiB, or auto (ask nvidia-smi)")
 	fs.String("gpus", "", "data-parallel GPUs, e.g. 8")
 	fs.String("shard", "", "state split across GPUs: none, optimizer, gradients or parameters")
 	fs.String("accumulate", "", "gradient-accumulation steps per optimizer step")
@@ -59,6 +59,13 @@ func (tf trainingFlags) apply(t engine.Training) (engine.Training, error) {
 			i, err = choiceFlag(f.Name, v, engine.Shards())
 			t.Shard = engine.Shard(i)
 		case "budget":
+			if v == "auto" {
+				t.Budget, err = gpuMemory()
+				if err != nil {
+					err = fmt.Errorf("--budget auto: %w", err)
+				}
+				break
+			}
 			t.Budget, err = sizeFlag(f.Name, v)
 		case "workspace":
 			t.Workspace, err = sizeFlag(f.Name, v)

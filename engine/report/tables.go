@@ -1,0 +1,126 @@
+package report
+
+import (
+	"encoding/csv"
+	"fmt"
+	"io"
+	"strconv"
+	"strings"
+
+	"stackfit/engine"
+)
+
+// columns are the per-layer fields of the markdown and CSV reports.
+var columns = []string{"path", "layer", "name", "status", "out C", "out H", "out W", "params", "buffers", "MACs", "rf h", "rf w", "act bytes"}
+
+// cells returns one row's values as text, plain numbers for CSV.
+func cells(an *engine.Analysis, i int) []string {
+	r := &an.Result.Rows[i]
+	act := int64(0)
+	if i < len(an.Memory.Rows) {
+		act = an.Memory.Rows[i]
+	}
+	out := []string{"", "", ""}
+	if r.Status == engine.StatusOK {
+		out = []string{strconv.FormatInt(r.Out.C, 10), strconv.FormatInt(r.Out.H, 10), strconv.FormatInt(r.Out.W, 10)}
+	}
+	f := func(v float64) string { return strconv.FormatFloat(v, 'f', -1, 64) }
+	return append([]string{r.Path.String(), engine.RowSummary(r), r.Layer.Name, r.Status.String()},
+		append(out, strconv.FormatInt(r.Params, 10), strconv.FormatInt(r.Buffers, 10), strconv.FormatInt(r.MACs, 10),
+			f(r.RF.H), f(r.RF.W), strconv.FormatInt(act, 10))...)
+}
+
+// WriteCSV writes one line per layer with a header line; numbers are plain
+// integers (bytes for act bytes) so spreadsheets can sum them.
+func WriteCSV(w io.Writer, an *engine.Analysis) error {
+	cw := csv.NewWriter(w)
+	if err := cw.Write(columns); err != nil {
+		return err
+	}
+	for i := range an.Result.Rows {
+		if err := cw.Write(cells(an, i)); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+// mdEscape keeps a cell inside its markdown table column.
+func mdEscape(s string) string {
+	s = strings.ReplaceAll(s, "\\", "\\\\")
+	s = strings.ReplaceAll(s, "|", "\\|")
+	return strings.NewReplacer("\n", " ", "\r", " ").Replace(s)
+}
+
+// WriteMarkdown writes the report for a design document: a title, the
+// layer table, totals, the memory estimate and the diagnostics.
+func WriteMarkdown(w io.Writer, an *engine.Analysis) error {
+	s, r, m := an.Stack, an.Result, &an.Memory
+	var b strings.Builder
+	title := s.Name
+	if title == "" {
+		title = "Stack"
+	}
+	fmt.Fprintf(&b, "## %s\n\n", mdEscape(title))
+	fmt.Fprintf(&b, "Input %s → output %s · %s parameters · %s MACs per sample.\n\n",
+		s.Input, outText(r), engine.GroupDigits(r.Totals.Params), engine.GroupDigits(r.Totals.MACs))
+	head := []string{"at", "layer", "out C×H×W", "params", "MACs", "rf", "kept for backward"}
+	b.WriteString("| " + strings.Join(head, " | ") + " |\n")
+	b.WriteString("|" + strings.Repeat(" --- |", len(head)) + "\n")
+	for i := range r.Rows {
+		row := &r.Rows[i]
+		label := engine.RowSummary(row)
+		if row.Layer.Name != "" {
+			label += " [" + row.Layer.Name + "]"
+		}
+		out := row.Status.String()
+		if row.Status == engine.StatusOK {
+			out = row.Out.String()
+		}
+		act := int64(0)
+		if i < len(m.Rows) {
+			act = m.Rows[i]
+		}
+		vals := []string{row.Path.String(), label, out, engine.GroupDigits(row.Params), engine.FormatCount(row.MACs), fpair(row.RF), engine.FormatBytes(act)}
+		for j := range vals {
+			vals[j] = mdEscape(vals[j])
+		}
+		b.WriteString("| " + strings.Join(vals, " | ") + " |\n")
+	}
+	t := an.Training
+	fmt.Fprintf(&b, "\n**Training memory per GPU (estimate)** at batch %d on %d GPU(s), %s, %s:\n\n",
+		max(t.Batch, 1), max(t.GPUs, 1), t.Precision, t.Optimizer)
+	b.WriteString("| category | size |\n| --- | --- |\n")
+	for _, c := range m.Categories() {
+		fmt.Fprintf(&b, "| %s | %s |\n", c.Name, engine.FormatBytes(c.Bytes))
+	}
+	fmt.Fprintf(&b, "| **total** | **%s** |\n\n", engine.FormatBytes(m.Total))
+	if m.Budget > 0 {
+		verdict := "fits"
+		if !m.Fits {
+			verdict = "does not fit"
+		}
+		fmt.Fprintf(&b, "Budget %s with %s kept free: %s.", engine.FormatBytes(m.Budget), engine.FormatShare(t.HeadroomShare()), verdict)
+		if f := an.Fit; f.HasBudget {
+			fmt.Fprintf(&b, " Largest batch %s, widest ×%.2f, fewest GPUs %d.", answer(f.MaxBatch), f.MaxWidth, f.MinGPUs)
+		}
+		b.WriteString("\n\n")
+	}
+	b.WriteString("_" + Caution + "_\n")
+	if len(r.Diags) > 0 {
+		b.WriteString("\n**Diagnostics**\n\n")
+		for _, d := range r.Diags {
+			fmt.Fprintf(&b, "- %s: %s\n", d.Severity, mdEscape(r.Describe(d)))
+		}
+	}
+	_, err := io.WriteString(w, b.String())
+	return err
+}
+
+func outText(r *engine.Result) string {
+	if r.Errors > 0 || len(r.Rows) == 0 {
+		return "unknown"
+	}
+	return r.Output.String()
+}
