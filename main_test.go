@@ -12,56 +12,131 @@ import (
 	"stackfit/engine/stackfile"
 )
 
-// TestRealTerminal builds the binary, runs the editor in tmux, inserts a
-// stage, widens a layer, undoes the widen and saves; it then reads the
-// screen with capture-pane and the saved YAML, and checks both.
-func TestRealTerminal(t *testing.T) {
+// term drives one tmux server for a test.
+type term struct {
+	t    *testing.T
+	tmux string
+	sock string
+}
+
+func newTerm(t *testing.T, dir string) *term {
 	tmux, err := exec.LookPath("tmux")
 	if err != nil {
 		t.Skip("tmux is not installed (apt-get install tmux); .ci/run installs it")
 	}
-	dir := t.TempDir()
+	tm := &term{t: t, tmux: tmux, sock: filepath.Join(dir, "tmux.sock")}
+	t.Cleanup(func() { exec.Command(tmux, "-S", tm.sock, "kill-server").Run() })
+	return tm
+}
+
+func (tm *term) run(args ...string) string {
+	out, err := exec.Command(tm.tmux, append([]string{"-S", tm.sock}, args...)...).CombinedOutput()
+	if err != nil {
+		tm.t.Fatalf("tmux %v: %v\n%s", args, err, out)
+	}
+	return string(out)
+}
+
+func (tm *term) start(session string, dir string, cmd ...string) {
+	args := []string{"new-session", "-d", "-s", session, "-x", "100", "-y", "30",
+		"env", "STACKFIT_KEYS=" + filepath.Join(dir, "none.yaml"), "XDG_STATE_HOME=" + dir, "TERM=xterm-256color"}
+	tm.run(append(args, cmd...)...)
+}
+
+func (tm *term) waitFor(session, text string) string {
+	tm.t.Helper()
+	deadline := time.Now().Add(10 * time.Second)
+	for {
+		s := tm.run("capture-pane", "-p", "-t", session)
+		if strings.Contains(s, text) {
+			return s
+		}
+		if time.Now().After(deadline) {
+			tm.t.Fatalf("screen never showed %q:\n%s", text, s)
+		}
+		time.Sleep(50 * time.Millisecond)
+	}
+}
+
+func (tm *term) keys(session string, k ...string) {
+	for _, key := range k {
+		tm.run("send-keys", "-t", session, key)
+		time.Sleep(30 * time.Millisecond)
+	}
+}
+
+func build(t *testing.T, dir string) string {
 	bin := filepath.Join(dir, "stackfit")
 	if out, err := exec.Command("go", "build", "-o", bin, ".").CombinedOutput(); err != nil {
 		t.Fatalf("build: %v\n%s", err, out)
 	}
+	return bin
+}
+
+// TestCrashRecovery edits a file, kills the editor with SIGKILL, reopens
+// the file, restores the unsaved edits and saves them.
+func TestCrashRecovery(t *testing.T) {
+	dir := t.TempDir()
+	tm := newTerm(t, dir)
+	bin := build(t, dir)
+	file := filepath.Join(dir, "grader.yaml")
+	os.WriteFile(file, examples.FruitGrader(), 0o644)
+	tm.start("one", dir, bin, file)
+	tm.waitFor("one", "Fruit grader")
+	tm.keys("one", "j", "j", "n")
+	tm.waitFor("one", "added a stage")
+	tm.keys("one", "home", ">")
+	tm.waitFor("one", "widened conv 32")
+	pid := strings.TrimSpace(tm.run("display-message", "-p", "-t", "one", "#{pane_pid}"))
+	if out, err := exec.Command("kill", "-9", pid).CombinedOutput(); err != nil {
+		t.Fatalf("kill -9 %s: %v %s", pid, err, out)
+	}
+	time.Sleep(200 * time.Millisecond)
+	// The file is untouched; the journal holds the edits.
+	if data, _ := os.ReadFile(file); string(data) != string(examples.FruitGrader()) {
+		t.Fatal("the file changed without a save")
+	}
+	journal := filepath.Join(dir, ".grader.yaml.unsaved")
+	kept, err := stackfile.LoadFile(journal)
+	if err != nil || len(kept.Layers) != 36 || kept.Layers[0].Filters != 64 {
+		t.Fatalf("journal: %v", err)
+	}
+	tm.start("two", dir, bin, file)
+	tm.waitFor("two", "restore them? (y: restore · n: discard)")
+	tm.keys("two", "y")
+	tm.waitFor("two", "restored the unsaved edits")
+	tm.keys("two", "w")
+	tm.waitFor("two", "saved grader.yaml")
+	tm.keys("two", "q")
+	saved, err := stackfile.LoadFile(file)
+	if err != nil {
+		t.Fatal(err)
+	}
+	a, _ := stackfile.Save(saved)
+	b, _ := stackfile.Save(kept)
+	if string(a) != string(b) {
+		t.Errorf("restored and saved stack differs from the edits made before the kill")
+	}
+	if _, err := os.Stat(journal); !os.IsNotExist(err) {
+		t.Error("the journal outlived the save")
+	}
+}
+
+// TestRealTerminal builds the binary, runs the editor in tmux, inserts a
+// stage, widens a layer, undoes the widen and saves; it then reads the
+// screen with capture-pane and the saved YAML, and checks both.
+func TestRealTerminal(t *testing.T) {
+	dir := t.TempDir()
+	tm := newTerm(t, dir)
+	bin := build(t, dir)
 	file := filepath.Join(dir, "grader.yaml")
 	if err := os.WriteFile(file, examples.FruitGrader(), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	session := "stackfit-test-" + strings.ReplaceAll(filepath.Base(dir), ".", "")
-	sock := filepath.Join(dir, "tmux.sock")
-	run := func(args ...string) string {
-		out, err := exec.Command(tmux, append([]string{"-S", sock}, args...)...).CombinedOutput()
-		if err != nil {
-			t.Fatalf("tmux %v: %v\n%s", args, err, out)
-		}
-		return string(out)
-	}
-	run("new-session", "-d", "-s", session, "-x", "100", "-y", "30",
-		"env", "STACKFIT_KEYS="+filepath.Join(dir, "none.yaml"), "TERM=xterm-256color", bin, file)
-	defer exec.Command(tmux, "-S", sock, "kill-server").Run()
-	screen := func() string { return run("capture-pane", "-p", "-t", session) }
-	waitFor := func(text string) string {
-		t.Helper()
-		deadline := time.Now().Add(10 * time.Second)
-		for {
-			s := screen()
-			if strings.Contains(s, text) {
-				return s
-			}
-			if time.Now().After(deadline) {
-				t.Fatalf("screen never showed %q:\n%s", text, s)
-			}
-			time.Sleep(50 * time.Millisecond)
-		}
-	}
-	keys := func(k ...string) {
-		for _, key := range k {
-			run("send-keys", "-t", session, key)
-			time.Sleep(30 * time.Millisecond)
-		}
-	}
+	const session = "edit"
+	tm.start(session, dir, bin, file)
+	waitFor := func(text string) string { t.Helper(); return tm.waitFor(session, text) }
+	keys := func(k ...string) { tm.keys(session, k...) }
 	waitFor("Fruit grader")
 	keys("j", "j", "n")
 	waitFor("added a stage")

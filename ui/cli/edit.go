@@ -52,6 +52,16 @@ func runEditor(path string, std IO) int {
 			return ExitUsage
 		}
 	}
+	opt.JournalFor = func(p string) editor.Journal { return stackfile.JournalFor(p, stackfile.StateDir()) }
+	current := opt.Stack
+	if opt.NewFile {
+		current = nil
+	}
+	if rec, err := stackfile.JournalFor(path, stackfile.StateDir()).Check(current); err != nil {
+		opt.Notice = err.Error()
+	} else if rec != nil {
+		opt.Recovered, opt.RecoveredAt = rec.Stack, rec.At
+	}
 	if os.Getenv("NO_COLOR") != "" {
 		lipgloss.SetColorProfile(termenv.Ascii)
 	}

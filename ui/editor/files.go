@@ -58,10 +58,15 @@ func (m *Model) saveTo(path string) tea.Cmd {
 		m.setStatus("not saved: "+err.Error(), statusError)
 		return nil
 	}
+	moved := path != m.path
 	m.path = path
 	m.dirty = false
 	if m.journal != nil {
-		if err := m.journal.Clear(); err != nil {
+		err := m.journal.Clear()
+		if moved && m.journalFor != nil {
+			m.journal = m.journalFor(path)
+		}
+		if err != nil {
 			m.setStatus("saved, but the recovery copy could not be removed: "+err.Error(), statusError)
 			return nil
 		}
@@ -72,7 +77,13 @@ func (m *Model) saveTo(path string) tea.Cmd {
 
 // load replaces the stack with s from path; undo history starts afresh.
 func (m *Model) load(s *engine.Stack, path string) {
+	if m.journal != nil {
+		m.journal.Clear() // the user chose to leave the unsaved edits
+	}
 	m.stack, m.path, m.dirty = s, path, false
+	if m.journalFor != nil {
+		m.journal = m.journalFor(path)
+	}
 	m.hist = history{}
 	m.cursor, m.offset, m.anchor = 0, 0, -1
 	m.folded = map[string]bool{}
@@ -114,5 +125,8 @@ func (m *Model) requestQuit() tea.Cmd {
 
 func (m *Model) quit() tea.Cmd {
 	m.quitting = true
+	if !m.dirty && m.journal != nil {
+		m.journal.Clear()
+	}
 	return tea.Quit
 }

@@ -6,6 +6,7 @@ package editor
 
 import (
 	"fmt"
+	"time"
 
 	tea "github.com/charmbracelet/bubbletea"
 
@@ -21,7 +22,15 @@ type Options struct {
 	NewFile bool          // Path does not exist yet: ask for the input shape first
 	Keys    keymap.KeyMap
 	Styles  styles.Styles
-	Journal Journal // where unsaved edits are kept between keystrokes; nil for none
+	// JournalFor returns where the unsaved edits of the stack file at path
+	// are kept ("" for an untitled stack); nil keeps no journal.
+	JournalFor func(path string) Journal
+	// Recovered holds unsaved edits found in the journal at start; the
+	// editor offers to restore them.
+	Recovered   *engine.Stack
+	RecoveredAt time.Time
+	// Notice is shown on the status line at start.
+	Notice string
 }
 
 // Journal keeps unsaved edits so a crash loses nothing.
@@ -47,10 +56,11 @@ type Model struct {
 
 	width, height int
 
-	stack   *engine.Stack
-	path    string
-	dirty   bool
-	journal Journal
+	stack      *engine.Stack
+	path       string
+	dirty      bool
+	journal    Journal
+	journalFor func(string) Journal
 
 	// Numbers of the current stack, recomputed on every change.
 	res    engine.Result
@@ -89,27 +99,55 @@ type Model struct {
 // New returns an editor for opt.
 func New(opt Options) *Model {
 	m := &Model{
-		keys:    opt.Keys,
-		st:      opt.Styles,
-		stack:   opt.Stack,
-		path:    opt.Path,
-		journal: opt.Journal,
-		anchor:  -1,
-		folded:  map[string]bool{},
-		assume:  engine.DefaultAssumptions(),
-		stage:   engine.StageOptions{Cap: 512, Repeat: 2},
-		width:   80,
-		height:  24,
+		keys:       opt.Keys,
+		st:         opt.Styles,
+		stack:      opt.Stack,
+		path:       opt.Path,
+		journalFor: opt.JournalFor,
+		anchor:     -1,
+		folded:     map[string]bool{},
+		assume:     engine.DefaultAssumptions(),
+		stage:      engine.StageOptions{Cap: 512, Repeat: 2},
+		width:      80,
+		height:     24,
 	}
 	if m.stack == nil {
 		m.stack = &engine.Stack{Input: engine.Shape{C: 3, H: 224, W: 224}}
+	}
+	if m.journalFor != nil {
+		m.journal = m.journalFor(m.path)
 	}
 	m.recompute()
 	if opt.NewFile {
 		m.openPrompt(promptInput, "input shape of one sample, channels×height×width", "3x224x224")
 		m.setStatus(fmt.Sprintf("new file %s: give the input shape, then add layers (a or :)", opt.Path), statusInfo)
 	}
+	if opt.Notice != "" {
+		m.setStatus(opt.Notice, statusError)
+	}
+	if opt.Recovered != nil {
+		m.offerRecovery(opt.Recovered, opt.RecoveredAt)
+	}
 	return m
+}
+
+// offerRecovery asks whether to restore unsaved edits kept by the journal.
+func (m *Model) offerRecovery(s *engine.Stack, at time.Time) {
+	q := fmt.Sprintf("unsaved edits from %s were kept (%d layers) — restore them? (y: restore · n: discard)",
+		at.Format("Jan 2 15:04:05"), len(s.Layers))
+	m.ask(q, func() tea.Cmd {
+		cmd := m.change("restored the unsaved edits", func(st *engine.Stack) (addr, error) {
+			*st = *s
+			return nil, nil
+		})
+		return cmd
+	}, func() tea.Cmd {
+		if m.journal != nil {
+			m.journal.Clear()
+		}
+		m.setStatus("discarded the unsaved edits", statusInfo)
+		return nil
+	})
 }
 
 // Init starts the background width search.

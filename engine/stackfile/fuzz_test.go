@@ -1,0 +1,69 @@
+package stackfile
+
+import (
+	"bytes"
+	"errors"
+	"os"
+	"path/filepath"
+	"reflect"
+	"testing"
+
+	"stackfit/engine/examples"
+)
+
+// FuzzLoad feeds arbitrary bytes to the loader. Invariants: no panic;
+// every failure is an ErrorList of *Error values that wrap a sentinel and
+// name a field or a position; a stack that loads saves, reloads to the same
+// stack, and saves to the same bytes again.
+func FuzzLoad(f *testing.F) {
+	f.Add(examples.FruitGrader())
+	// Small files only: a large seed slows every mutation.
+	files, _ := filepath.Glob("../../testdata/examples/*.yaml")
+	files = append(files, "../../testdata/published/lenet5.yaml", "../../testdata/published/dcgan-generator.yaml")
+	for _, p := range files {
+		if data, err := os.ReadFile(p); err == nil {
+			f.Add(data)
+		}
+	}
+	f.Add([]byte("stackfit: 1\ninput: [3, 8, 8]\nlayers: [{conv: 8, kernel: [3, 5], pad: same, groups: depthwise}]\n"))
+	f.Add([]byte("a: &a [*a, *a]\n"))
+	f.Add([]byte("stackfit: 1\ninput: [3, 8, 8]\nlayers:\n  - block: 2\n    residual: true\n    layers: [{add: x}]\n"))
+	sentinels := []error{ErrSyntax, ErrUnknown, ErrType, ErrRange, ErrMissing, ErrVersion, ErrTooLarge, ErrAlias, ErrNesting, ErrName}
+	f.Fuzz(func(t *testing.T, data []byte) {
+		s, err := Load(data)
+		if err != nil {
+			var list ErrorList
+			if !errors.As(err, &list) || len(list) == 0 {
+				t.Fatalf("error %T %v is not an ErrorList", err, err)
+			}
+			for _, e := range list {
+				ok := false
+				for _, sn := range sentinels {
+					ok = ok || errors.Is(e, sn)
+				}
+				if !ok || e.Msg == "" || (e.Field == "" && e.Line == 0 && e.Err != ErrTooLarge && e.Err != ErrSyntax && e.Err != ErrMissing) {
+					t.Fatalf("untyped or unlocated error: %#v", e)
+				}
+			}
+			return
+		}
+		if s.Input.C < 0 || s.Input.H < 0 || s.Input.W < 0 {
+			t.Fatalf("negative input %v", s.Input)
+		}
+		b1, err := Save(s)
+		if err != nil {
+			t.Fatalf("save: %v", err)
+		}
+		s2, err := Load(b1)
+		if err != nil {
+			t.Fatalf("a saved stack does not load: %v\n%s", err, b1)
+		}
+		if !reflect.DeepEqual(s, s2) {
+			t.Fatalf("reload differs:\n%+v\n%+v\n%s", s, s2, b1)
+		}
+		b2, _ := Save(s2)
+		if !bytes.Equal(b1, b2) {
+			t.Fatalf("save is not stable:\n%s\n---\n%s", b1, b2)
+		}
+	})
+}
