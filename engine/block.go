@@ -13,8 +13,11 @@ type tap struct {
 // the same layer (a later repeat of a block) moves to the latest output.
 func (r *Result) setTap(l *Layer, f *flow) {
 	if old, ok := r.taps[l.Name]; ok && old.layer != l {
-		row := len(r.Rows) - 1
-		r.diag(Diagnostic{Severity: SevError, Code: ErrNameTwice, Row: row, Name: l.Name, Field: r.Rows[old.row].Path.String()})
+		first := "an earlier item"
+		if old.row >= 0 && old.row < len(r.Rows) {
+			first = r.Rows[old.row].Path.String()
+		}
+		r.diag(Diagnostic{Severity: SevError, Code: ErrNameTwice, Row: len(r.Rows) - 1, Name: l.Name, Field: first})
 		f.ok = false
 		return
 	}

@@ -148,6 +148,9 @@ func (d *decoder) layerList(n *yaml.Node, field, prefix string, depth int) []eng
 		d.fail(n, field, ErrRange, "holds %d layers; the limit is %d per list", len(n.Content), engine.MaxSegment)
 		return nil
 	}
+	if len(n.Content) == 0 {
+		return nil // "[]" and nothing read the same
+	}
 	out := make([]engine.Layer, 0, len(n.Content))
 	for i, item := range n.Content {
 		out = append(out, d.layer(item, fmt.Sprintf("%s%d", prefix, i+1), depth))
