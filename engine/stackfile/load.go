@@ -49,6 +49,12 @@ func Load(data []byte) (*engine.Stack, error) {
 		return nil, ErrorList{syntaxError(err)}
 	}
 	d := &decoder{names: map[string]int{}}
+	if n := findAlias(&doc); n != nil {
+		// Refused before anything reads the tree: aliases are how "billion
+		// laughs" files expand, and stack files never need them.
+		d.fail(n, "file", ErrAlias, "anchors (&) and aliases (*) are not allowed in stack files; write the value out")
+		return nil, d.errs
+	}
 	s := d.document(&doc)
 	if len(d.errs) > 0 {
 		return nil, d.errs
@@ -144,6 +150,20 @@ func (d *decoder) deref(n *yaml.Node, field string) *yaml.Node {
 		return nil
 	}
 	return n
+}
+
+// findAlias returns the first anchored or alias node in the tree, or nil.
+// The tree holds aliases unexpanded, so this walk is linear in the file.
+func findAlias(n *yaml.Node) *yaml.Node {
+	if n.Kind == yaml.AliasNode || n.Anchor != "" {
+		return n
+	}
+	for _, c := range n.Content {
+		if a := findAlias(c); a != nil {
+			return a
+		}
+	}
+	return nil
 }
 
 func describe(n *yaml.Node) string {

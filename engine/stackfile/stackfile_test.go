@@ -153,7 +153,7 @@ func TestLoadErrors(t *testing.T) {
 		{"two kinds", head + "  - {conv: 8, dense: 3}\n",
 			ErrType, `4:15: layer 1: has two kinds, "conv" and "dense"; one layer per list item`},
 		{"alias", "stackfit: 1\ninput: &i [3, 8, 8]\nlayers: []\nname: *i\n",
-			ErrAlias, `2:8: input: anchors (&) and aliases (*) are not allowed in stack files; write the value out`},
+			ErrAlias, `2:8: file: anchors (&) and aliases (*) are not allowed in stack files; write the value out`},
 		{"syntax", "stackfit: 1\ninput: [3, 8, 8\nlayers: []\n",
 			ErrSyntax, `1:1: not valid YAML: did not find expected ',' or ']' (check indentation, colons, quotes and brackets from this line on)`},
 		{"budget", "stackfit: 1\ninput: [3, 8, 8]\ntraining: {budget: lots}\nlayers: []\n",
