@@ -84,7 +84,7 @@ type fakeJournal struct {
 }
 
 func (f *fakeJournal) Record(s *engine.Stack) error { f.records++; f.last = s.Clone(); return nil }
-func (f *fakeJournal) Clear() error                  { f.cleared++; return nil }
+func (f *fakeJournal) Clear() error                 { f.cleared++; return nil }
 
 func TestJournalAndRecovery(t *testing.T) {
 	j := &fakeJournal{}
