@@ -28,11 +28,9 @@ type referenceDoc struct {
 	} `json:"cases"`
 }
 
-// TestAgainstPyTorch compares the engine, layer by layer, with the shapes,
-// parameter counts and buffer counts PyTorch produced for the same stacks,
-// and checks that the engine reports an error exactly where PyTorch
-// refused a layer.
-func TestAgainstPyTorch(t *testing.T) {
+// loadReference reads testdata/reference/shapes.json.
+func loadReference(t *testing.T) referenceDoc {
+	t.Helper()
 	data, err := os.ReadFile(filepath.Join("..", "testdata", "reference", "shapes.json"))
 	if err != nil {
 		t.Fatal(err)
@@ -41,6 +39,15 @@ func TestAgainstPyTorch(t *testing.T) {
 	if err := json.Unmarshal(data, &doc); err != nil {
 		t.Fatal(err)
 	}
+	return doc
+}
+
+// TestAgainstPyTorch compares the engine, layer by layer, with the shapes,
+// parameter counts and buffer counts PyTorch produced for the same stacks,
+// and checks that the engine reports an error exactly where PyTorch
+// refused a layer.
+func TestAgainstPyTorch(t *testing.T) {
+	doc := loadReference(t)
 	if len(doc.Cases) < 80 {
 		t.Fatalf("only %d reference stacks", len(doc.Cases))
 	}
@@ -82,14 +89,7 @@ func TestAgainstPyTorch(t *testing.T) {
 // reference keeps dropout masks as 4-byte floats, so the comparison uses
 // 4-byte masks; the engine's default is the GPU's 1 byte.
 func TestActivationsAgainstPyTorch(t *testing.T) {
-	data, err := os.ReadFile(filepath.Join("..", "testdata", "reference", "shapes.json"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	var doc referenceDoc
-	if err := json.Unmarshal(data, &doc); err != nil {
-		t.Fatal(err)
-	}
+	doc := loadReference(t)
 	cpu := engine.Assumptions{MaskBytes: 4, IndexBytes: 8}
 	checked := 0
 	for _, c := range doc.Cases {
