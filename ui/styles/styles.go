@@ -9,23 +9,20 @@ import "github.com/charmbracelet/lipgloss"
 
 // Styles holds the text styles of the editor.
 type Styles struct {
-	Title     lipgloss.Style // the top line
-	Modified  lipgloss.Style // the unsaved-changes mark
-	Pane      lipgloss.Style // frames around the stack and the numbers
-	PaneTitle lipgloss.Style
-	Cursor    lipgloss.Style // the selected row
-	Range     lipgloss.Style // rows in a selected range
-	Dim       lipgloss.Style // secondary text
-	Block     lipgloss.Style // block headers
-	Error     lipgloss.Style
-	Warning   lipgloss.Style
-	Note      lipgloss.Style
-	Good      lipgloss.Style // "fits"
-	Bad       lipgloss.Style // "does not fit"
-	Delta     lipgloss.Style // changes against the baseline
-	Label     lipgloss.Style // form labels
-	Input     lipgloss.Style // the focused form field
-	Help      lipgloss.Style
+	Title    lipgloss.Style // the top line
+	Modified lipgloss.Style // the unsaved-changes mark
+	Cursor   lipgloss.Style // the selected row
+	Range    lipgloss.Style // rows in a selected range
+	Dim      lipgloss.Style // secondary text
+	Block    lipgloss.Style // block headers
+	Error    lipgloss.Style
+	Warning  lipgloss.Style
+	Note     lipgloss.Style
+	Good     lipgloss.Style // "fits"
+	Bad      lipgloss.Style // "does not fit"
+	Delta    lipgloss.Style // changes against the baseline
+	Label    lipgloss.Style // form labels
+	Help     lipgloss.Style
 	// Gauge colours the budget gauge's categories, in Memory.Categories order.
 	Gauge [6]lipgloss.Style
 	// GaugeGlyph draws each category so it reads without colour too.
@@ -38,23 +35,20 @@ type Styles struct {
 func DefaultStyles() Styles {
 	c := func(s string) lipgloss.Color { return lipgloss.Color(s) }
 	return Styles{
-		Title:     lipgloss.NewStyle().Bold(true).Foreground(c("6")),
-		Modified:  lipgloss.NewStyle().Bold(true).Foreground(c("3")),
-		Pane:      lipgloss.NewStyle().Border(lipgloss.NormalBorder()).BorderForeground(c("8")),
-		PaneTitle: lipgloss.NewStyle().Foreground(c("6")),
-		Cursor:    lipgloss.NewStyle().Reverse(true),
-		Range:     lipgloss.NewStyle().Underline(true),
-		Dim:       lipgloss.NewStyle().Foreground(c("8")),
-		Block:     lipgloss.NewStyle().Foreground(c("5")).Bold(true),
-		Error:     lipgloss.NewStyle().Foreground(c("1")).Bold(true),
-		Warning:   lipgloss.NewStyle().Foreground(c("3")),
-		Note:      lipgloss.NewStyle().Foreground(c("4")),
-		Good:      lipgloss.NewStyle().Foreground(c("2")).Bold(true),
-		Bad:       lipgloss.NewStyle().Foreground(c("1")).Bold(true),
-		Delta:     lipgloss.NewStyle().Foreground(c("5")),
-		Label:     lipgloss.NewStyle().Foreground(c("6")),
-		Input:     lipgloss.NewStyle().Underline(true),
-		Help:      lipgloss.NewStyle().Foreground(c("8")),
+		Title:    lipgloss.NewStyle().Bold(true).Foreground(c("6")),
+		Modified: lipgloss.NewStyle().Bold(true).Foreground(c("3")),
+		Cursor:   lipgloss.NewStyle().Reverse(true),
+		Range:    lipgloss.NewStyle().Underline(true),
+		Dim:      lipgloss.NewStyle().Foreground(c("8")),
+		Block:    lipgloss.NewStyle().Foreground(c("5")).Bold(true),
+		Error:    lipgloss.NewStyle().Foreground(c("1")).Bold(true),
+		Warning:  lipgloss.NewStyle().Foreground(c("3")),
+		Note:     lipgloss.NewStyle().Foreground(c("4")),
+		Good:     lipgloss.NewStyle().Foreground(c("2")).Bold(true),
+		Bad:      lipgloss.NewStyle().Foreground(c("1")).Bold(true),
+		Delta:    lipgloss.NewStyle().Foreground(c("5")),
+		Label:    lipgloss.NewStyle().Foreground(c("6")),
+		Help:     lipgloss.NewStyle().Foreground(c("8")),
 		Gauge: [6]lipgloss.Style{
 			lipgloss.NewStyle().Foreground(c("4")),
 			lipgloss.NewStyle().Foreground(c("5")),
