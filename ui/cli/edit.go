@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"io/fs"
 	"os"
+	"path/filepath"
+	"strings"
 
 	tea "github.com/charmbracelet/bubbletea"
 	"github.com/charmbracelet/lipgloss"
@@ -46,7 +48,8 @@ func runEditor(path string, std IO) int {
 			opt.Stack = s
 		case errors.Is(err, fs.ErrNotExist):
 			opt.NewFile = true
-			opt.Stack = &engine.Stack{Input: engine.Shape{C: 3, H: 224, W: 224}}
+			name := strings.TrimSuffix(filepath.Base(path), filepath.Ext(path))
+			opt.Stack = &engine.Stack{Name: name, Input: engine.Shape{C: 3, H: 224, W: 224}}
 		default:
 			fmt.Fprintf(std.Err, "stackfit: %v\n", err)
 			return ExitUsage
