@@ -69,6 +69,9 @@ func ParseQuick(line string) (Layer, error) {
 	if (k == KindConv || k == KindDeconv || k == KindPool) && l.Kernel.IsZero() {
 		return Layer{}, fmt.Errorf("%w: %s needs a kernel; add k3 (or k3x5)", ErrQuick, k)
 	}
+	if k == KindBlock && l.HasPostAct && !l.Residual {
+		return Layer{}, fmt.Errorf("%w: \"then %s\" follows a residual addition; add residual", ErrQuick, l.PostAct)
+	}
 	if k == KindNorm && l.Norm == NormGroup && l.NormGroups == 0 {
 		return Layer{}, fmt.Errorf("%w: group norm needs groups; add g32", ErrQuick)
 	}

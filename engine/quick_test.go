@@ -81,6 +81,7 @@ func TestQuickErrors(t *testing.T) {
 		{"reshape 4x4", "give channels×height×width"},
 		{"conv 99999999999999999999 k3", "give a whole number from 1 to 16777216"},
 		{"conv 64 k3 @9bad", `"9bad" is not a layer name`},
+		{"block 2 then relu", `"then relu" follows a residual addition; add residual`},
 	}
 	for _, tt := range tests {
 		_, err := engine.ParseQuick(tt.line)
