@@ -2,6 +2,10 @@ package engine
 
 import "math"
 
+// MaxBlockDepth is how deeply blocks may nest (paths hold item and repeat
+// numbers for each level).
+const MaxBlockDepth = 3
+
 // tap is what a named layer or block leaves for later merges.
 type tap struct {
 	layer *Layer

@@ -285,6 +285,19 @@ func TestRowLimit(t *testing.T) {
 	outer := engine.Layer{Kind: engine.KindBlock, Repeat: 1000, Body: []engine.Layer{inner}}
 	r := engine.Evaluate(&engine.Stack{Input: engine.Shape{C: 1, H: 1, W: 1}, Layers: []engine.Layer{outer, outer}})
 	if r.Errors != 1 || r.Diags[0].Code != engine.ErrTooManyRows || len(r.Rows) != 0 {
-		t.Errorf("rows %d diags %v", len(r.Rows), r.Diags)
+		t.Errorf("rows %d diags %v path %s", len(r.Rows), r.Diags, r.Rows[0].Path)
+	}
+}
+
+// TestNestingLimit checks that blocks deeper than MaxBlockDepth are an
+// error on their own row, not truncated paths.
+func TestNestingLimit(t *testing.T) {
+	l := engine.Layer{Kind: engine.KindAct}
+	for i := 0; i < 4; i++ {
+		l = engine.Layer{Kind: engine.KindBlock, Repeat: 1, Body: []engine.Layer{l}}
+	}
+	r := engine.Evaluate(&engine.Stack{Input: engine.Shape{C: 1, H: 4, W: 4}, Layers: []engine.Layer{l}})
+	if r.Errors != 1 || r.Diags[0].Code != engine.ErrNesting || r.Rows[0].Path.String() != "1.1.1.1.1.1.1" {
+		t.Errorf("rows %d diags %v path %s", len(r.Rows), r.Diags, r.Rows[0].Path)
 	}
 }

@@ -54,6 +54,7 @@ const (
 	ErrAddChannels                    // added maps differ in channels
 	ErrNameTwice                      // two layers share a name
 	ErrProjection                     // a residual block's shortcut cannot be built
+	ErrNesting                        // blocks nested deeper than MaxBlockDepth
 	WarnStrideDrop                    // floor division leaves input rows/columns unused
 	WarnSameAsym                      // same padding needs one extra row/column on one side
 	WarnFinalRF                       // final receptive field smaller than the input
@@ -148,6 +149,8 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("%s has an effective stride of %g input pixels, the map here %g; the merged positions do not line up", mergeWhat(d.Name), float64(d.A)/1e6, float64(d.B)/1e6)
 	case InfoCrop:
 		return fmt.Sprintf("center-crops %s from %d×%d to %d×%d (%d rows and %d columns removed, split between the two sides)", cropWhat(d.Field, d.Name), d.A, d.B, d.C, d.D, d.A-d.C, d.B-d.D)
+	case ErrNesting:
+		return fmt.Sprintf("blocks nest more than %d deep here; flatten an inner block", MaxBlockDepth)
 	case ErrValue:
 		return fmt.Sprintf("%s is %d; it must be at least %d", d.Field, d.A, d.B)
 	case WarnStrideDrop:

@@ -200,7 +200,7 @@ func (r *Result) diag(d Diagnostic) {
 func (r *Result) items(ls []Layer, parent Path, f *flow, unstrided bool) {
 	for i := range ls {
 		l := &ls[i]
-		if l.Kind == KindBlock {
+		if l.Kind == KindBlock && parent.Len() < 2*MaxBlockDepth-1 {
 			r.block(l, parent, i+1, f, unstrided)
 		} else {
 			r.layer(l, &parent, seg(i+1), f, unstrided, RoleLayer)
@@ -230,11 +230,10 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 	}
 	row.Layer, row.In, row.Status, row.Role, row.Unstrided = l, f.shape, StatusOK, role, unstrided
 	row.InStore, row.OtherStore, row.Grad = f.store, -1, f.grad
-	row.Out, row.Params, row.Buffers, row.MACs, row.CumParams = Shape{}, 0, 0, 0, 0
-	row.RF, row.Jump = FPair{}, FPair{}
+	row.Out, row.Params, row.Buffers, row.MACs = Shape{}, 0, 0, 0
 	if !f.ok {
 		row.Status = StatusUnresolved
-		row.In = Shape{}
+		row.In, row.RF, row.Jump, row.OutStore = Shape{}, FPair{}, FPair{}, -1
 		return
 	}
 	// The calculator lives in the Result and is set field by field: a
@@ -244,14 +243,12 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 	c.r, c.idx, c.row, c.l, c.unstrided = r, idx, row, l, unstrided
 	c.failed, c.unresolved, c.ov = false, false, false
 	c.run(f)
-	if c.unresolved {
+	if c.unresolved || c.failed {
 		row.Status = StatusUnresolved
-		f.ok = false
-		return
-	}
-	if c.failed {
-		row.Status = StatusError
-		row.Out = Shape{}
+		if c.failed {
+			row.Status = StatusError
+		}
+		row.Out, row.RF, row.Jump, row.OutStore = Shape{}, FPair{}, FPair{}, -1
 		row.Params, row.Buffers, row.MACs = 0, 0, 0
 		f.ok = false
 		return

@@ -90,6 +90,8 @@ func (c *calc) run(f *flow) {
 		c.reshape()
 	case KindConcat, KindAdd:
 		c.merge(f)
+	case KindBlock: // only a block nested too deep is evaluated as a row
+		c.fail(Diagnostic{Code: ErrNesting, Field: "block"})
 	default:
 		c.fail(Diagnostic{Code: ErrValue, Field: "kind", A: int64(c.l.Kind), B: 1})
 	}

@@ -42,7 +42,7 @@ func kindKeys(k engine.Kind) []field {
 }
 
 // MaxBlockDepth is how deeply blocks may nest.
-const MaxBlockDepth = 3
+const MaxBlockDepth = engine.MaxBlockDepth
 
 // maxRepeat bounds one block's repeat count.
 const maxRepeat = 1024

@@ -7,6 +7,7 @@ import (
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
+	"stackfit/engine/stackfile"
 )
 
 // change applies fn to the stack as one undoable step, then recomputes
@@ -194,8 +195,8 @@ func (m *Model) wrap() tea.Cmd {
 		m.setStatus("a range must stay inside one list; press v to clear it", statusError)
 		return nil
 	}
-	if len(parent) >= 2*3 {
-		m.setStatus("blocks nest at most three deep", statusError)
+	if len(parent) >= stackfile.MaxBlockDepth {
+		m.setStatus(fmt.Sprintf("blocks nest at most %d deep; this range is already inside %d", stackfile.MaxBlockDepth, len(parent)), statusError)
 		return nil
 	}
 	return m.change(fmt.Sprintf("wrapped %d layer%s in a block", hi-lo+1, plural(hi-lo+1)), func(s *engine.Stack) (addr, error) {

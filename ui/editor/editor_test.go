@@ -247,6 +247,13 @@ func TestEditOperations(t *testing.T) {
 	if m.res.Rows[0].Path.String() != "1.1.1" || m.res.Errors != 0 {
 		t.Errorf("first row %s errors %d", m.res.Rows[0].Path, m.res.Errors)
 	}
+	// Blocks nest at most three deep: wrapping the inner layer again and
+	// again stops there.
+	press(m, "j", "b", "j", "b", "j", "b")
+	if !strings.Contains(m.status, "blocks nest at most 3 deep") {
+		t.Errorf("a fourth level of blocks was allowed: %s", m.status)
+	}
+	press(m, "u", "u", "home")
 	press(m, "space")
 	if len(m.items) != len(m.stack.Layers) {
 		t.Errorf("folded block still shows %d items", len(m.items))
