@@ -236,6 +236,15 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 		row.In, row.RF, row.Jump, row.OutStore = Shape{}, FPair{}, FPair{}, -1
 		return
 	}
+	if k := l.Kind; k == KindAct || k == KindDropout {
+		// Element-wise rows keep the shape and own nothing: the common
+		// case skips the calculator entirely.
+		row.Out, row.RF, row.Jump = f.shape, f.rf, f.jump
+		f.store = int32(idx)
+		row.OutStore = f.store
+		row.CumParams = r.Totals.Params
+		return
+	}
 	// The calculator lives in the Result and is set field by field: a
 	// composite literal here is built in a temporary and copied, which
 	// stalls on store forwarding once per row.
