@@ -47,16 +47,22 @@ func SolveCapacity(r *Result, m *Memory, t Training) Fit {
 	f.HasBudget = true
 	usable := t.Budget - m.Reserve
 
-	// Batch: total(micro) = fixed + micro·per, exactly (integers).
+	// Batch: total(micro) = fixed + micro·per, exactly (integers); any
+	// overflow means nothing sensible fits.
 	probe := *m
 	probe.Rows = nil
-	per := m.ActPerSample + m.ScratchPerSample
-	fixed := m.Total - m.MicroBatch*per
-	if per > 0 && usable >= fixed+per {
+	var ov bool
+	per := add(&ov, m.ActPerSample, m.ScratchPerSample)
+	used := mul(&ov, m.MicroBatch, per)
+	fixed := m.Total - used
+	if !ov && m.Total < math.MaxInt64 && fixed >= 0 && per > 0 && usable-fixed >= per {
 		f.MaxMicroBatch = (usable - fixed) / per
 	}
-	steps := max(t.GPUs, 1) * max(t.Accumulate, 1)
-	f.MaxBatch = f.MaxMicroBatch * steps
+	steps := mul(&ov, max(t.GPUs, 1), max(t.Accumulate, 1))
+	f.MaxBatch = mul(&ov, f.MaxMicroBatch, steps)
+	if ov {
+		f.MaxMicroBatch, f.MaxBatch = 0, 0
+	}
 	if f.MaxMicroBatch > 0 {
 		f.BatchLimit = CatActivations
 	} else {
