@@ -247,8 +247,11 @@ func (c *calc) window(ax byte, in, k, s, d int64, pad Padding, p int64, ceil, po
 	}
 	switch pad.Mode {
 	case PadSame:
-		out = (in + s - 1) / s
-		total := (out-1)*s + keff - in
+		out = (in-1)/s + 1 // ⌈in/s⌉ without overflow
+		total := add(&c.ov, (out-1)*s, keff) - in
+		if !c.checkOverflow("padding") {
+			return 0, 0, 0, false
+		}
 		if total < 0 {
 			total = 0
 		}

@@ -340,7 +340,7 @@ func (l *Layer) ResolvedPadding(in Shape) (before, after Pair) {
 		if s < 1 || k < 1 || d < 1 {
 			return 0, 0
 		}
-		out := (i + s - 1) / s
+		out := (i-1)/s + 1 // ⌈i/s⌉ without overflow
 		total := max((out-1)*s+d*(k-1)+1-i, 0)
 		return total / 2, total - total/2
 	}
