@@ -236,10 +236,35 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 		row.In, row.RF, row.Jump, row.OutStore = Shape{}, FPair{}, FPair{}, -1
 		return
 	}
-	if k := l.Kind; k == KindAct || k == KindDropout {
+	switch k := l.Kind; {
+	case k == KindAct || k == KindDropout:
 		// Element-wise rows keep the shape and own nothing: the common
 		// case skips the calculator entirely.
 		row.Out, row.RF, row.Jump = f.shape, f.rf, f.jump
+		f.store = int32(idx)
+		row.OutStore = f.store
+		row.CumParams = r.Totals.Params
+		return
+	case k == KindNorm && l.Norm == NormBatch && f.shape.C < 1<<40:
+		// Batch norm: 2C parameters (unless affine is off) and 2C + 1 buffers.
+		row.Out, row.RF, row.Jump = f.shape, f.rf, f.jump
+		row.Buffers = 2*f.shape.C + 1
+		if l.Affine != Off {
+			row.Params = 2 * f.shape.C
+		}
+		f.store = int32(idx)
+		row.OutStore = f.store
+		f.grad = f.grad || row.Params > 0
+		r.count(idx, row, k, role)
+		return
+	case role == RoleResidual && r.shortcut.ok && r.shortcut.shape == f.shape && r.shortcut.jump == f.jump:
+		// The addition closing a residual repeat, shapes matching.
+		sc := &r.shortcut
+		row.Out, row.Jump = f.shape, f.jump
+		f.rf.H, f.rf.W = max(f.rf.H, sc.rf.H), max(f.rf.W, sc.rf.W)
+		row.RF = f.rf
+		row.OtherStore = sc.store
+		f.grad = f.grad || sc.grad
 		f.store = int32(idx)
 		row.OutStore = f.store
 		row.CumParams = r.Totals.Params
