@@ -446,37 +446,25 @@ func longStack(n int) *engine.Stack {
 	return s
 }
 
-// BenchmarkKeyMove is a cursor key and a new frame on a 1,000-layer stack
-// at 120×40.
-func BenchmarkKeyMove(b *testing.B) {
+// benchKeys alternates two keys on a 1,000-layer stack at 120×40, drawing
+// a new frame after each.
+func benchKeys(b *testing.B, k1, k2 string) {
 	m := newModel(b, longStack(1000), 120, 40)
 	press(m, "pgdown", "pgdown")
+	keys := [2]tea.KeyMsg{keyMsg(k1), keyMsg(k2)}
 	b.ReportAllocs()
 	for i := 0; b.Loop(); i++ {
-		k := "j"
-		if i%2 == 1 {
-			k = "k"
-		}
-		m.Update(keyMsg(k))
+		m.Update(keys[i%2])
 		_ = m.View()
 	}
 }
 
+// BenchmarkKeyMove is a cursor key and a new frame.
+func BenchmarkKeyMove(b *testing.B) { benchKeys(b, "j", "k") }
+
 // BenchmarkKeyEdit is an edit (filters ×2, then ÷2), which recomputes every
-// number of the 1,000-layer stack, and a new frame at 120×40.
-func BenchmarkKeyEdit(b *testing.B) {
-	m := newModel(b, longStack(1000), 120, 40)
-	press(m, "pgdown", "pgdown")
-	b.ReportAllocs()
-	for i := 0; b.Loop(); i++ {
-		k := ">"
-		if i%2 == 1 {
-			k = "<"
-		}
-		m.Update(keyMsg(k))
-		_ = m.View()
-	}
-}
+// number of the stack, and a new frame.
+func BenchmarkKeyEdit(b *testing.B) { benchKeys(b, ">", "<") }
 
 // BenchmarkView measures a frame alone on stacks of 100 and 10,000 layers:
 // only visible rows are drawn, so the two should cost about the same.

@@ -28,25 +28,20 @@ func (h *history) push(s snapshot) {
 }
 
 // back returns the state to restore for undo, given the current one.
-func (h *history) back(cur snapshot) (snapshot, bool) {
-	if len(h.undo) == 0 {
-		return snapshot{}, false
-	}
-	s := h.undo[len(h.undo)-1]
-	h.undo = h.undo[:len(h.undo)-1]
-	cur.what = s.what
-	h.redo = append(h.redo, cur)
-	return s, true
-}
+func (h *history) back(cur snapshot) (snapshot, bool) { return step(&h.undo, &h.redo, cur) }
 
 // forward returns the state to restore for redo.
-func (h *history) forward(cur snapshot) (snapshot, bool) {
-	if len(h.redo) == 0 {
+func (h *history) forward(cur snapshot) (snapshot, bool) { return step(&h.redo, &h.undo, cur) }
+
+// step pops the state to restore from one stack and pushes the current
+// state, labelled with the change it undoes or redoes, onto the other.
+func step(from, to *[]snapshot, cur snapshot) (snapshot, bool) {
+	if len(*from) == 0 {
 		return snapshot{}, false
 	}
-	s := h.redo[len(h.redo)-1]
-	h.redo = h.redo[:len(h.redo)-1]
+	s := (*from)[len(*from)-1]
+	*from = (*from)[:len(*from)-1]
 	cur.what = s.what
-	h.undo = append(h.undo, cur)
+	*to = append(*to, cur)
 	return s, true
 }

@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"time"
 
+	"github.com/charmbracelet/bubbles/help"
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
@@ -79,6 +80,7 @@ type Model struct {
 	anchor   int // start of a selected range, −1 when none
 	folded   map[string]bool
 
+	help    help.Model // built once; its width follows the window
 	mode    keymap.Mode
 	form    *form
 	picker  *picker
@@ -114,6 +116,12 @@ func New(opt Options) *Model {
 	if m.stack == nil {
 		m.stack = &engine.Stack{Input: engine.Shape{C: 3, H: 224, W: 224}}
 	}
+	m.help = help.New()
+	m.help.Width = m.width
+	m.help.ShortSeparator = " · "
+	m.help.FullSeparator = "   "
+	m.help.Styles.ShortKey, m.help.Styles.ShortDesc, m.help.Styles.ShortSeparator = m.st.Label, m.st.Help, m.st.Help
+	m.help.Styles.FullKey, m.help.Styles.FullDesc = m.st.Label, m.st.Help
 	if m.journalFor != nil {
 		m.journal = m.journalFor(m.path)
 	}

@@ -4,8 +4,6 @@ import (
 	"fmt"
 	"strings"
 
-	"github.com/charmbracelet/bubbles/help"
-
 	"stackfit/engine"
 	"stackfit/keymap"
 )
@@ -70,11 +68,7 @@ func (m *Model) pickerView(lay layout) string {
 // helpView is the full help, generated from the key map, with the
 // quick-entry syntax.
 func (m *Model) helpView() string {
-	h := help.New()
-	h.Width = m.width
-	h.FullSeparator = "   "
-	h.Styles.FullKey = m.st.Label
-	h.Styles.FullDesc = m.st.Help
+	h := &m.help
 	var b strings.Builder
 	b.WriteString(m.st.Title.Render("stackfit — keys") + m.st.Dim.Render("  (? or esc closes; override keys in "+keysPath()+")"))
 	b.WriteString("\n\n")

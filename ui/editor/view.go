@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"strings"
 
-	"github.com/charmbracelet/bubbles/help"
 	"github.com/charmbracelet/bubbles/key"
 	"github.com/charmbracelet/lipgloss"
 	"github.com/charmbracelet/x/ansi"
@@ -535,12 +534,7 @@ func batchText(n int64) string {
 
 // bottomView is the status line and the help (or the prompt / question).
 func (m *Model) bottomView() string {
-	h := help.New()
-	h.ShortSeparator = " · "
-	h.Styles.ShortKey = m.st.Label
-	h.Styles.ShortDesc = m.st.Help
-	h.Styles.ShortSeparator = m.st.Help
-	h.Width = m.width
+	h := &m.help
 	switch m.mode {
 	case modePrompt:
 		p := m.prompt
