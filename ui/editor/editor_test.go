@@ -490,3 +490,17 @@ func BenchmarkStartup(b *testing.B) {
 		_ = m.View()
 	}
 }
+
+// TestViewFillsScreen checks every screen is exactly the window's height:
+// one line more scrolls the title away in a real terminal.
+func TestViewFillsScreen(t *testing.T) {
+	for _, size := range [][2]int{{80, 24}, {120, 40}} {
+		for _, keys := range [][]string{nil, {"p"}, {"?"}, {"enter"}, {"a"}, {":"}, {"t"}} {
+			m := newModel(t, example(t), size[0], size[1])
+			press(m, keys...)
+			if got := lipgloss.Height(m.View()); got != size[1] {
+				t.Errorf("%v after %v: %d lines, want %d", size, keys, got, size[1])
+			}
+		}
+	}
+}

@@ -80,7 +80,8 @@ func (m *Model) helpView() string {
 	b.WriteString("\n\n")
 	b.WriteString(m.st.Dim.Render("Memory figures are estimates for one GPU; frameworks, kernels and fragmentation differ — keep headroom."))
 	lines := strings.Split(b.String(), "\n")
-	return pad(lines, m.height, m.width)
+	// Exactly one screen: a final newline would scroll the title off.
+	return strings.TrimSuffix(pad(lines, m.height, m.width), "\n")
 }
 
 func keysPath() string {
