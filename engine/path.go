@@ -82,7 +82,12 @@ func (p Path) At(i int) int { return int(p.seg[i]) }
 // String formats the path as dot-separated numbers, e.g. "4.2.1".
 func (p Path) String() string {
 	var buf [MaxDepth * 11]byte
-	b := buf[:0]
+	return string(p.AppendTo(buf[:0]))
+}
+
+// AppendTo appends the path as String formats it to b and returns the
+// extended slice; it allocates only when b lacks room.
+func (p Path) AppendTo(b []byte) []byte {
 	for i := 0; i < int(p.n); i++ {
 		if i > 0 {
 			b = append(b, '.')
@@ -100,5 +105,5 @@ func (p Path) String() string {
 			b = strconv.AppendUint(b, uint64(v), 10)
 		}
 	}
-	return string(b)
+	return b
 }

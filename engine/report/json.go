@@ -106,54 +106,69 @@ type JSONTotals struct {
 	MACs    int64 `json:"macs"`
 }
 
-// BuildJSON converts an analysis into the JSON document.
+// BuildJSON converts an analysis into the JSON document. WriteJSON writes
+// the same document without building it; BuildJSON is its reference form
+// for programs that want the values rather than the bytes.
 func BuildJSON(an *engine.Analysis) *JSON {
+	doc := buildHead(an)
+	doc.Layers = make([]JSONLayer, len(an.Result.Rows))
+	for i := range an.Result.Rows {
+		doc.Layers[i] = buildLayer(an, i)
+	}
+	return doc
+}
+
+// buildLayer converts row i of an analysis into its JSON form.
+func buildLayer(an *engine.Analysis, i int) JSONLayer {
+	r, m := an.Result, &an.Memory
+	row := &r.Rows[i]
+	jl := JSONLayer{
+		Path:     row.Path.String(),
+		Kind:     row.Layer.Kind.String(),
+		Name:     row.Layer.Name,
+		Role:     row.Role.String(),
+		Status:   row.Status.String(),
+		Params:   row.Params,
+		Buffers:  row.Buffers,
+		MACs:     row.MACs,
+		RF:       [2]float64{row.RF.H, row.RF.W},
+		Jump:     [2]float64{row.Jump.H, row.Jump.W},
+		Errors:   []string{},
+		Warnings: []string{},
+		Notes:    []string{},
+	}
+	if row.Status == engine.StatusOK {
+		jl.Out = &[3]int64{row.Out.C, row.Out.H, row.Out.W}
+	}
+	if i < len(m.Rows) {
+		jl.ActBytes = m.Rows[i]
+	}
+	for _, d := range r.DiagsFor(i) {
+		switch d.Severity {
+		case engine.SevError:
+			jl.Errors = append(jl.Errors, d.Message())
+		case engine.SevWarning:
+			jl.Warnings = append(jl.Warnings, d.Message())
+		default:
+			jl.Notes = append(jl.Notes, d.Message())
+		}
+	}
+	return jl
+}
+
+// buildHead converts everything but the layers.
+func buildHead(an *engine.Analysis) *JSON {
 	s, r, m := an.Stack, an.Result, &an.Memory
 	doc := &JSON{
 		Name:     s.Name,
 		Input:    [3]int64{s.Input.C, s.Input.H, s.Input.W},
-		Layers:   make([]JSONLayer, len(r.Rows)),
+		Layers:   []JSONLayer{},
 		Totals:   JSONTotals{r.Totals.Params, r.Totals.Buffers, r.Totals.MACs},
 		Errors:   []string{},
 		Warnings: []string{},
 	}
 	for _, d := range r.DiagsFor(-1) {
 		doc.Errors = append(doc.Errors, d.Message())
-	}
-	for i := range r.Rows {
-		row := &r.Rows[i]
-		jl := JSONLayer{
-			Path:     row.Path.String(),
-			Kind:     row.Layer.Kind.String(),
-			Name:     row.Layer.Name,
-			Role:     row.Role.String(),
-			Status:   row.Status.String(),
-			Params:   row.Params,
-			Buffers:  row.Buffers,
-			MACs:     row.MACs,
-			RF:       [2]float64{row.RF.H, row.RF.W},
-			Jump:     [2]float64{row.Jump.H, row.Jump.W},
-			Errors:   []string{},
-			Warnings: []string{},
-			Notes:    []string{},
-		}
-		if row.Status == engine.StatusOK {
-			jl.Out = &[3]int64{row.Out.C, row.Out.H, row.Out.W}
-		}
-		if i < len(m.Rows) {
-			jl.ActBytes = m.Rows[i]
-		}
-		for _, d := range r.DiagsFor(i) {
-			switch d.Severity {
-			case engine.SevError:
-				jl.Errors = append(jl.Errors, d.Message())
-			case engine.SevWarning:
-				jl.Warnings = append(jl.Warnings, d.Message())
-			default:
-				jl.Notes = append(jl.Notes, d.Message())
-			}
-		}
-		doc.Layers[i] = jl
 	}
 	t := an.Training
 	doc.Memory = &JSONMemory{
@@ -181,7 +196,7 @@ func BuildJSON(an *engine.Analysis) *JSON {
 // layer, per line: readable, diffable, and several times faster to write
 // than fully indented JSON.
 func WriteJSON(w io.Writer, an *engine.Analysis) error {
-	doc := BuildJSON(an)
+	doc := buildHead(an)
 	var b bytes.Buffer
 	field := func(name string, v any, last bool) error {
 		data, err := json.Marshal(v)
@@ -201,18 +216,19 @@ func WriteJSON(w io.Writer, an *engine.Analysis) error {
 	}
 	field("input", doc.Input, false)
 	b.WriteString("  \"layers\": [")
-	for i := range doc.Layers {
-		data, err := json.Marshal(&doc.Layers[i])
-		if err != nil {
-			return err
-		}
+	line := make([]byte, 0, 512)
+	for i := range an.Result.Rows {
 		if i > 0 {
 			b.WriteByte(',')
 		}
 		b.WriteString("\n    ")
-		b.Write(data)
+		var err error
+		if line, err = appendLayer(line[:0], an, i); err != nil {
+			return err
+		}
+		b.Write(line)
 	}
-	if len(doc.Layers) > 0 {
+	if len(an.Result.Rows) > 0 {
 		b.WriteString("\n  ")
 	}
 	b.WriteString("],\n")
