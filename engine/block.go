@@ -56,7 +56,7 @@ type synthPool struct {
 	n      int // layers handed out
 }
 
-const synthChunk = 64
+const synthChunk = 16
 
 func (p *synthPool) reset() { p.n = 0 }
 

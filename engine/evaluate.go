@@ -160,6 +160,8 @@ func (r *Result) Evaluate(s *Stack) {
 		r.diag(Diagnostic{Severity: SevError, Code: ErrTooManyRows, Row: -1, Field: "repeat", A: n, B: MaxRows})
 		r.finish()
 		return
+	} else if int(n) > cap(r.Rows) {
+		r.Rows = make([]Row, 0, n) // one allocation instead of doubling
 	}
 	r.items(s.Layers, Path{}, &f, false)
 	if f.ok {

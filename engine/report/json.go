@@ -198,6 +198,7 @@ func buildHead(an *engine.Analysis) *JSON {
 func WriteJSON(w io.Writer, an *engine.Analysis) error {
 	doc := buildHead(an)
 	var b bytes.Buffer
+	b.Grow(2048 + 256*len(an.Result.Rows)) // a layer line is about 200 bytes
 	field := func(name string, v any, last bool) error {
 		data, err := json.Marshal(v)
 		if err != nil {
