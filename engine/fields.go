@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"regexp"
 	"strconv"
 	"strings"
 )
@@ -47,11 +46,21 @@ const (
 	MaxNameLen  = 32
 )
 
-var namePattern = regexp.MustCompile(`^[A-Za-z_][A-Za-z0-9_-]*$`)
-
 // ValidName reports whether s can name a layer: letters, digits, '_' and
 // '-', starting with a letter or '_', at most MaxNameLen characters.
-func ValidName(s string) bool { return len(s) <= MaxNameLen && namePattern.MatchString(s) }
+func ValidName(s string) bool {
+	if s == "" || len(s) > MaxNameLen {
+		return false
+	}
+	for i := 0; i < len(s); i++ {
+		c := s[i]
+		letter := c >= 'a' && c <= 'z' || c >= 'A' && c <= 'Z' || c == '_'
+		if !letter && (i == 0 || !(c >= '0' && c <= '9' || c == '-')) {
+			return false
+		}
+	}
+	return true
+}
 
 // ParseInt reads a whole number in [lo, hi] for field key.
 func ParseInt(key, s string, lo, hi int64) (int64, error) {

@@ -296,7 +296,7 @@ func (d *decoder) kindValue(v *yaml.Node, where string, l *engine.Layer) {
 		l.Repeat, _ = d.int(v, w+" (repeats)", 1, maxRepeat)
 	case engine.KindConcat, engine.KindAdd:
 		name, ok := d.text(v, w+" (layer name)", 1<<10)
-		if ok && (len(name) > MaxNameLen || !namePattern.MatchString(name)) {
+		if ok && !engine.ValidName(name) {
 			d.fail(v, w, ErrName, "%q is not a layer name; give the name of an earlier layer or block", name)
 			return
 		}
@@ -340,7 +340,7 @@ func (d *decoder) layerName(v *yaml.Node, where string, l *engine.Layer) {
 	if !ok {
 		return
 	}
-	if len(name) > MaxNameLen || !namePattern.MatchString(name) {
+	if !engine.ValidName(name) {
 		d.fail(v, where+" → name", ErrName, "%q is not a short identifier; use letters, digits, '_' and '-', starting with a letter, at most %d characters", name, MaxNameLen)
 		return
 	}

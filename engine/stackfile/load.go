@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"math"
 	"os"
-	"regexp"
 	"strconv"
 	"strings"
 
@@ -31,9 +30,6 @@ const (
 	maxFactor    = 1 << 10 // upsampling factor
 	maxBatch     = 1 << 24 // training batch
 )
-
-// namePattern is what a layer name may look like: a short identifier.
-var namePattern = regexp.MustCompile(`^[A-Za-z_][A-Za-z0-9_-]*$`)
 
 // Load parses a stack file from memory. The returned error is an ErrorList
 // (every problem found, each an *Error with line and column).
@@ -83,17 +79,21 @@ func LoadFile(path string) (*engine.Stack, error) {
 	return s, err
 }
 
-var yamlLine = regexp.MustCompile(`^line (\d+): `)
-
 // syntaxError converts a YAML parser error into an *Error with the line the
 // parser names (where the broken construct starts; the column is unknown).
 func syntaxError(err error) *Error {
 	msg := strings.TrimPrefix(err.Error(), "yaml: ")
 	e := &Error{Err: ErrSyntax}
-	if m := yamlLine.FindStringSubmatch(msg); m != nil {
-		e.Line, _ = strconv.Atoi(m[1])
-		e.Col = 1
-		msg = msg[len(m[0]):]
+	if rest, ok := strings.CutPrefix(msg, "line "); ok {
+		digits := 0
+		for digits < len(rest) && rest[digits] >= '0' && rest[digits] <= '9' {
+			digits++
+		}
+		if tail, ok := strings.CutPrefix(rest[digits:], ": "); ok && digits > 0 {
+			e.Line, _ = strconv.Atoi(rest[:digits])
+			e.Col = 1
+			msg = tail
+		}
 	}
 	e.Msg = "not valid YAML: " + msg + " (check indentation, colons, quotes and brackets from this line on)"
 	return e

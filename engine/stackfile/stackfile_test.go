@@ -156,6 +156,8 @@ func TestLoadErrors(t *testing.T) {
 			ErrAlias, `2:8: file: anchors (&) and aliases (*) are not allowed in stack files; write the value out`},
 		{"syntax", "stackfit: 1\ninput: [3, 8, 8\nlayers: []\n",
 			ErrSyntax, `1:1: not valid YAML: did not find expected ',' or ']' (check indentation, colons, quotes and brackets from this line on)`},
+		{"syntax on a later line", head + "  - {act: relu}\n  - conv: 8\n    kernel: 3\n  - conv 8: [\n",
+			ErrSyntax, `7:1: not valid YAML: did not find expected node content (check indentation, colons, quotes and brackets from this line on)`},
 		{"budget", "stackfit: 1\ninput: [3, 8, 8]\ntraining: {budget: lots}\nlayers: []\n",
 			ErrRange, `3:20: training → budget: not a memory size: "lots"; write a number and a unit, e.g. 24GiB, 24GB or 24000MiB`},
 		{"headroom", "stackfit: 1\ninput: [3, 8, 8]\ntraining: {headroom: 95%}\nlayers: []\n",
