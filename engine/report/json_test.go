@@ -183,7 +183,7 @@ func TestAppendStringMatchesEncodingJSON(t *testing.T) {
 
 func TestAppendFloatMatchesEncodingJSON(t *testing.T) {
 	cases := []float64{0, math.Copysign(0, -1), 1, -1, 0.5, 0.25, 1.0 / 3, 3, 7, 427, 1e-6, 9.99e-7, 1e-7, 1e20, 1e21, 1.5e300,
-		-2.5e-9, 123456789.125, math.MaxInt64, math.SmallestNonzeroFloat64, math.MaxFloat64}
+		-2.5e-9, 123456789.125, 1<<53 - 1, 1 << 53, -(1<<53 - 1), 1e15, 999999999999999, math.MaxInt64, math.SmallestNonzeroFloat64, math.MaxFloat64}
 	rng := rand.New(rand.NewPCG(3, 4))
 	for n := 0; n < 2000; n++ {
 		cases = append(cases, math.Float64frombits(rng.Uint64()))

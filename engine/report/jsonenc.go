@@ -117,6 +117,11 @@ func appendFloat(b []byte, f float64) ([]byte, error) {
 	if math.IsNaN(f) || math.IsInf(f, 0) {
 		return b, fmt.Errorf("%v has no JSON form", f)
 	}
+	// Receptive fields and jumps are nearly always whole numbers: those
+	// print as integers, exactly as the general path would print them.
+	if f == math.Trunc(f) && math.Abs(f) < 1<<53 && (f != 0 || !math.Signbit(f)) {
+		return strconv.AppendInt(b, int64(f), 10), nil
+	}
 	format := byte('f')
 	if a := math.Abs(f); a != 0 && (a < 1e-6 || a >= 1e21) {
 		format = 'e'
