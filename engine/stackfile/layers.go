@@ -1,7 +1,7 @@
 package stackfile
 
 import (
-	"fmt"
+	"strconv"
 	"strings"
 
 	"gopkg.in/yaml.v3"
@@ -153,7 +153,7 @@ func (d *decoder) layerList(n *yaml.Node, field, prefix string, depth int) []eng
 	}
 	out := make([]engine.Layer, 0, len(n.Content))
 	for i, item := range n.Content {
-		out = append(out, d.layer(item, fmt.Sprintf("%s%d", prefix, i+1), depth))
+		out = append(out, d.layer(item, prefix+strconv.Itoa(i+1), depth))
 	}
 	return out
 }
@@ -201,21 +201,16 @@ func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
 		d.badKind(n, where, first)
 		return l
 	}
-	where = fmt.Sprintf("%s (%s)", label, l.Kind)
+	where = label + " (" + l.Kind.String() + ")"
 	d.kindValue(kindVal, where, &l)
 	fields := kindKeys(l.Kind)
-	allowed := []string{l.Kind.String()}
-	for _, f := range fields {
-		allowed = append(allowed, f.key)
-	}
-	allowed = append(allowed, "name", "note")
-	seen := map[string]bool{}
+	var seen fieldsSeen
 	for _, kv := range pairs {
 		k, v := kv[0], kv[1]
 		if k == kindNode {
 			continue
 		}
-		seen[k.Value] = true
+		seen.mark(k.Value)
 		switch k.Value {
 		case "name":
 			d.layerName(v, where, &l)
@@ -243,7 +238,11 @@ func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
 			}
 		}
 		if !known {
-			d.unknown(k, where, allowed)
+			allowed := []string{l.Kind.String()}
+			for _, f := range fields {
+				allowed = append(allowed, f.key)
+			}
+			d.unknown(k, where, append(allowed, "name", "note"))
 		}
 	}
 	d.required(n, where, &l, seen)
@@ -304,32 +303,51 @@ func (d *decoder) kindValue(v *yaml.Node, where string, l *engine.Layer) {
 	}
 }
 
+// fieldsSeen records which of the keys the checks in required look for
+// were given.
+type fieldsSeen struct{ kernel, groups, layers, shortcutNorm, slope bool }
+
+func (s *fieldsSeen) mark(key string) {
+	switch key {
+	case "kernel":
+		s.kernel = true
+	case "groups":
+		s.groups = true
+	case "layers":
+		s.layers = true
+	case "shortcut-norm":
+		s.shortcutNorm = true
+	case "slope":
+		s.slope = true
+	}
+}
+
 // required reports fields a kind cannot do without.
-func (d *decoder) required(n *yaml.Node, where string, l *engine.Layer, seen map[string]bool) {
+func (d *decoder) required(n *yaml.Node, where string, l *engine.Layer, seen fieldsSeen) {
 	switch l.Kind {
 	case engine.KindConv, engine.KindDeconv, engine.KindPool:
-		if !seen["kernel"] {
+		if !seen.kernel {
 			d.fail(n, where, ErrMissing, "needs a kernel; add e.g. kernel: 3 or kernel: [3, 5]")
 		}
 	case engine.KindNorm:
-		if l.Norm == engine.NormGroup && !seen["groups"] {
+		if l.Norm == engine.NormGroup && !seen.groups {
 			d.fail(n, where, ErrMissing, "group norm needs groups; add e.g. groups: 32")
 		}
-		if l.Norm != engine.NormGroup && seen["groups"] {
+		if l.Norm != engine.NormGroup && seen.groups {
 			d.fail(n, where, ErrUnknown, "groups applies only to group norm; remove it or write norm: group")
 		}
 	case engine.KindBlock:
-		if !seen["layers"] {
+		if !seen.layers {
 			d.fail(n, where, ErrMissing, "needs layers; add the block's layers under layers:")
 		}
 		if l.HasPostAct && !l.Residual {
 			d.fail(n, where, ErrUnknown, "after (the activation after the addition) needs residual: true")
 		}
-		if seen["shortcut-norm"] && !l.Residual {
+		if seen.shortcutNorm && !l.Residual {
 			d.fail(n, where, ErrUnknown, "shortcut-norm needs residual: true")
 		}
 	case engine.KindAct:
-		if l.Act != engine.ActLeakyReLU && seen["slope"] {
+		if l.Act != engine.ActLeakyReLU && seen.slope {
 			d.fail(n, where, ErrUnknown, "slope applies only to leaky-relu; remove it or write act: leaky-relu")
 		}
 	}
