@@ -435,6 +435,47 @@ func TestNewFile(t *testing.T) {
 	}
 }
 
+// TestPromptSuggestion: a prompt's suggested value is selected, as in any
+// text field with a default (common practice): enter keeps it, typing or
+// deleting replaces it, a cursor key keeps it for editing.
+func TestPromptSuggestion(t *testing.T) {
+	newModel := func() *Model {
+		m := New(Options{Path: filepath.Join(t.TempDir(), "new.yaml"), NewFile: true, Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles()})
+		m.Update(tea.WindowSizeMsg{Width: 100, Height: 30})
+		return m
+	}
+	tests := []struct {
+		name  string
+		keys  []string
+		typed string
+		want  engine.Shape
+	}{
+		{"enter keeps the suggestion", []string{"enter"}, "", engine.Shape{C: 3, H: 224, W: 224}},
+		{"typing replaces it", nil, "1x28x28", engine.Shape{C: 1, H: 28, W: 28}},
+		{"backspace clears it", []string{"backspace"}, "2x64x64", engine.Shape{C: 2, H: 64, W: 64}},
+		{"a cursor key keeps it for editing", []string{"end", "backspace", "backspace", "backspace"}, "100", engine.Shape{C: 3, H: 224, W: 100}},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			m := newModel()
+			screen := view(m)
+			for _, want := range []string{"first give the input shape", "enter keeps 3x224x224 · typing replaces it · esc cancels"} {
+				if !strings.Contains(screen, want) {
+					t.Fatalf("the screen lacks %q:\n%s", want, screen)
+				}
+			}
+			press(m, tt.keys...)
+			typeText(m, tt.typed)
+			if m.mode == modePrompt {
+				press(m, "enter")
+			}
+			if m.stack.Input != tt.want {
+				t.Errorf("input %v, want %v", m.stack.Input, tt.want)
+			}
+		})
+	}
+}
+
 // longStack builds an n-layer stack for the speed benchmarks.
 func longStack(n int) *engine.Stack {
 	s := &engine.Stack{Input: engine.Shape{C: 3, H: 224, W: 224}, Training: engine.Training{Batch: 32, Budget: 80 << 30}}

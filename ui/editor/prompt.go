@@ -32,6 +32,9 @@ type prompt struct {
 	input textinput.Model
 	hint  string // completion candidates or the parse error
 	bad   bool
+	// fresh: the line still holds the suggested value, shown selected;
+	// typing, pasting or deleting replaces it, other keys keep it.
+	fresh bool
 }
 
 func (m *Model) openPrompt(k promptKind, label, value string) {
@@ -41,7 +44,7 @@ func (m *Model) openPrompt(k promptKind, label, value string) {
 	in.SetValue(value)
 	in.CursorEnd()
 	in.Focus()
-	m.prompt = &prompt{kind: k, label: label, input: in}
+	m.prompt = &prompt{kind: k, label: label, input: in, fresh: value != ""}
 	m.mode = modePrompt
 	m.checkPrompt()
 }
@@ -73,6 +76,9 @@ func (m *Model) checkPrompt() {
 		if _, err := engine.ParseShape("input", v); err != nil {
 			p.hint, p.bad = err.Error(), true
 		}
+	}
+	if p.fresh && !p.bad && p.hint == "" {
+		p.hint = m.keys.Accept.Help().Key + " keeps " + v + " · typing replaces it · " + m.keys.Cancel.Help().Key + " cancels"
 	}
 }
 
@@ -109,6 +115,17 @@ func (m *Model) updatePrompt(msg tea.KeyMsg) tea.Cmd {
 		return nil
 	case key.Matches(msg, m.keys.Accept):
 		return m.acceptPrompt()
+	}
+	if p.fresh {
+		p.fresh = false
+		switch msg.Type {
+		case tea.KeyRunes, tea.KeySpace:
+			p.input.SetValue("") // the typed text replaces the suggestion
+		case tea.KeyBackspace, tea.KeyDelete, tea.KeyCtrlH:
+			p.input.SetValue("")
+			m.checkPrompt()
+			return nil
+		}
 	}
 	var cmd tea.Cmd
 	p.input, cmd = p.input.Update(msg)

@@ -151,6 +151,9 @@ func (m *Model) listView(lay layout) string {
 	var b strings.Builder
 	if len(m.items) == 0 {
 		msg := "empty stack — press a to add a layer, or : to type one (e.g. conv 32 k3 p1)"
+		if m.mode == modePrompt && m.prompt.kind == promptInput {
+			msg = "new stack — first give the input shape on the bottom line and press enter; then a adds a layer"
+		}
 		b.WriteString(lipgloss.Place(m.width, lay.listH, lipgloss.Center, lipgloss.Center, m.st.Dim.Render(msg)))
 		b.WriteByte('\n')
 		return b.String()
@@ -538,7 +541,11 @@ func (m *Model) bottomView() string {
 	switch m.mode {
 	case modePrompt:
 		p := m.prompt
-		line := m.st.Label.Render(p.label+": ") + p.input.View()
+		field := p.input.View()
+		if p.fresh {
+			field = m.st.Cursor.Render(p.input.Value()) // selected: typing replaces it
+		}
+		line := m.st.Label.Render(p.label+": ") + field
 		hint := p.hint
 		if p.bad {
 			hint = m.st.Error.Render(hint)
