@@ -269,6 +269,31 @@ func TestEditOperations(t *testing.T) {
 	}
 }
 
+// TestFormFieldSelection: a field's value is selected when the field gets
+// the cursor, so typing replaces it; a cursor key first keeps it.
+func TestFormFieldSelection(t *testing.T) {
+	m := newModel(t, example(t), 80, 24)
+	press(m, "enter")
+	if m.form == nil || m.form.fields[0].input.Value() != "32" || m.form.fields[1].key != "kernel" {
+		t.Fatalf("expected the conv 32 form with kernel second, got %+v", m.form)
+	}
+	typeText(m, "48")
+	press(m, "tab")
+	typeText(m, "5")
+	if got := m.form.values()[:2]; got[0] != "48" || got[1] != "5" {
+		t.Errorf("typing into selected fields gave %q, want [48 5]", got)
+	}
+	press(m, "shift+tab", "end")
+	typeText(m, "0")
+	if got := m.form.values()[0]; got != "480" {
+		t.Errorf("a cursor key should keep the value for editing: got %q, want 480", got)
+	}
+	press(m, "enter")
+	if l := m.stack.Layers[0]; l.Filters != 480 || l.Kernel != engine.Square(5) {
+		t.Errorf("applied filters %d kernel %v", l.Filters, l.Kernel)
+	}
+}
+
 // TestFormLive checks that the form previews each keystroke and never
 // applies an invalid value.
 func TestFormLive(t *testing.T) {

@@ -2,7 +2,6 @@ package editor
 
 import (
 	"github.com/charmbracelet/bubbles/key"
-	"github.com/charmbracelet/bubbles/textinput"
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
@@ -11,7 +10,7 @@ import (
 // formField is one labelled text input.
 type formField struct {
 	key, help string
-	input     textinput.Model
+	input     entry
 	err       string
 }
 
@@ -30,15 +29,10 @@ type form struct {
 func newForm(title string, keys, helps, values []string) *form {
 	f := &form{title: title}
 	for i := range keys {
-		in := textinput.New()
-		in.Prompt = ""
-		in.CharLimit = 256
-		in.SetValue(values[i])
-		in.CursorEnd()
-		f.fields = append(f.fields, formField{key: keys[i], help: helps[i], input: in})
+		f.fields = append(f.fields, formField{key: keys[i], help: helps[i], input: newEntry(values[i], 256)})
 	}
 	if len(f.fields) > 0 {
-		f.fields[0].input.Focus()
+		f.fields[0].input.focus()
 	}
 	return f
 }
@@ -73,7 +67,7 @@ func (f *form) setFocus(i int) {
 	}
 	f.fields[f.focus].input.Blur()
 	f.focus = (i%n + n) % n
-	f.fields[f.focus].input.Focus()
+	f.fields[f.focus].input.focus()
 }
 
 // updateForm handles a key in a form.
@@ -99,8 +93,7 @@ func (m *Model) updateForm(msg tea.KeyMsg) tea.Cmd {
 		f.setFocus(f.focus - 1)
 		return nil
 	}
-	var cmd tea.Cmd
-	f.fields[f.focus].input, cmd = f.fields[f.focus].input.Update(msg)
+	cmd := f.fields[f.focus].input.update(msg)
 	f.check()
 	return cmd
 }

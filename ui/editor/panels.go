@@ -26,7 +26,7 @@ func (m *Model) formView(lay layout) string {
 		if i == f.focus {
 			mark = "▸ "
 		}
-		in := fl.input.View()
+		in := fl.input.view(m.st.Cursor)
 		note := m.st.Dim.Render(fl.help)
 		if fl.err != "" {
 			note = m.st.Error.Render("✗ " + fl.err)

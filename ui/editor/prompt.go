@@ -7,7 +7,6 @@ import (
 	"strings"
 
 	"github.com/charmbracelet/bubbles/key"
-	"github.com/charmbracelet/bubbles/textinput"
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
@@ -29,22 +28,15 @@ const (
 type prompt struct {
 	kind  promptKind
 	label string
-	input textinput.Model
+	input entry
 	hint  string // completion candidates or the parse error
 	bad   bool
-	// fresh: the line still holds the suggested value, shown selected;
-	// typing, pasting or deleting replaces it, other keys keep it.
-	fresh bool
 }
 
 func (m *Model) openPrompt(k promptKind, label, value string) {
-	in := textinput.New()
-	in.Prompt = ""
-	in.CharLimit = 512
-	in.SetValue(value)
-	in.CursorEnd()
-	in.Focus()
-	m.prompt = &prompt{kind: k, label: label, input: in, fresh: value != ""}
+	in := newEntry(value, 512)
+	in.focus()
+	m.prompt = &prompt{kind: k, label: label, input: in}
 	m.mode = modePrompt
 	m.checkPrompt()
 }
@@ -77,7 +69,7 @@ func (m *Model) checkPrompt() {
 			p.hint, p.bad = err.Error(), true
 		}
 	}
-	if p.fresh && !p.bad && p.hint == "" {
+	if p.input.fresh && !p.bad && p.hint == "" {
 		p.hint = m.keys.Accept.Help().Key + " keeps " + v + " · typing replaces it · " + m.keys.Cancel.Help().Key + " cancels"
 	}
 }
@@ -116,19 +108,7 @@ func (m *Model) updatePrompt(msg tea.KeyMsg) tea.Cmd {
 	case key.Matches(msg, m.keys.Accept):
 		return m.acceptPrompt()
 	}
-	if p.fresh {
-		p.fresh = false
-		switch msg.Type {
-		case tea.KeyRunes, tea.KeySpace:
-			p.input.SetValue("") // the typed text replaces the suggestion
-		case tea.KeyBackspace, tea.KeyDelete, tea.KeyCtrlH:
-			p.input.SetValue("")
-			m.checkPrompt()
-			return nil
-		}
-	}
-	var cmd tea.Cmd
-	p.input, cmd = p.input.Update(msg)
+	cmd := p.input.update(msg)
 	m.checkPrompt()
 	return cmd
 }

@@ -541,11 +541,7 @@ func (m *Model) bottomView() string {
 	switch m.mode {
 	case modePrompt:
 		p := m.prompt
-		field := p.input.View()
-		if p.fresh {
-			field = m.st.Cursor.Render(p.input.Value()) // selected: typing replaces it
-		}
-		line := m.st.Label.Render(p.label+": ") + field
+		line := m.st.Label.Render(p.label+": ") + p.input.view(m.st.Cursor)
 		hint := p.hint
 		if p.bad {
 			hint = m.st.Error.Render(hint)
