@@ -20,15 +20,15 @@ const Version = 1
 // Limits on what a stack file may hold. They keep absurd values from
 // reaching the engine and bound the work a hostile file can cause.
 const (
-	MaxFileBytes = 8 << 20 // largest stack file accepted
-	MaxNameLen   = 32      // longest layer name
-	MaxNoteLen   = 4096    // longest note
-	maxErrors    = 20      // problems reported before giving up
-	maxSpatial   = 1 << 20 // input height/width, pool-to sizes
-	maxChannels  = 1 << 24 // input channels, filters, units, reshape dims
-	maxWindow    = 1 << 16 // kernel, stride, dilation, padding
-	maxFactor    = 1 << 10 // upsampling factor
-	maxBatch     = 1 << 24 // training batch
+	MaxFileBytes = 8 << 20           // largest stack file accepted
+	MaxNameLen   = engine.MaxNameLen // longest layer name
+	MaxNoteLen   = 4096              // longest note
+	maxErrors    = 20                // problems reported before giving up
+	maxSpatial   = 1 << 20           // input height/width, pool-to sizes
+	maxChannels  = 1 << 24           // input channels, filters, units, reshape dims
+	maxWindow    = 1 << 16           // kernel, stride, dilation, padding
+	maxFactor    = 1 << 10           // upsampling factor
+	maxBatch     = 1 << 24           // training batch
 )
 
 // Load parses a stack file from memory. The returned error is an ErrorList
