@@ -58,7 +58,39 @@ func put(m *yaml.Node, key string, v *yaml.Node) {
 }
 
 func strNode(s string) *yaml.Node {
-	return &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!str", Value: s}
+	n := &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!str", Value: s}
+	if !plainText(s) && !readsBack(n) {
+		// The YAML emitter's chosen style would change the text (a note
+		// opening with a blank line loses it, one opening with a tab does
+		// not even load back); double quotes with escapes keep any string.
+		n.Style = yaml.DoubleQuotedStyle
+	}
+	return n
+}
+
+// plainText reports whether s is printable ASCII with no leading or
+// trailing space: text every YAML style writes back unchanged.
+func plainText(s string) bool {
+	if s == "" || s[0] == ' ' || s[len(s)-1] == ' ' {
+		return s == ""
+	}
+	for i := 0; i < len(s); i++ {
+		if s[i] < 0x20 || s[i] > 0x7e {
+			return false
+		}
+	}
+	return true
+}
+
+// readsBack encodes a string node and reports whether decoding gives the
+// same string.
+func readsBack(n *yaml.Node) bool {
+	data, err := yaml.Marshal(n)
+	if err != nil {
+		return false
+	}
+	var back string
+	return yaml.Unmarshal(data, &back) == nil && back == n.Value
 }
 
 func intNode(v int64) *yaml.Node {

@@ -229,3 +229,41 @@ func TestAtomicWrite(t *testing.T) {
 		t.Error("write into a missing folder succeeded")
 	}
 }
+
+// TestFreeTextRoundTrip: stack names and notes (free text a user types in
+// the editor) save and reload unchanged, wherever they sit in the file.
+// The cases are the corners of YAML block scalars (YAML 1.2, section 8.1:
+// leading blank lines, indentation indicators, chomping) and characters
+// YAML treats as line breaks or forbids in indentation; the first was found
+// by FuzzLoad (a note opening with a blank line lost it on save).
+func TestFreeTextRoundTrip(t *testing.T) {
+	texts := []string{
+		"\n0\n", "\n\nx", "\n", "\n x", " x\ny", "x\n ", "x \ny", "\tx\n", "x\n\t", "x\ty\nz",
+		"x\n\n", "x\n\n\n", "x\r\ny", "a\u0085b", "\u2028x\ny", "x\u2029", "\x7f\nx", " ", " \n",
+		"x\n  y\n", "#x\ny", "x\n#y", "- x\ny", "key: value\nmore", "|\n>", "'\"", "null", "~", "3", "yes",
+		"plain", "Grades apples\non a belt\n",
+	}
+	for _, text := range texts {
+		inner := engine.Layer{Kind: engine.KindAct, Note: text}
+		s := &engine.Stack{Name: text, Note: text, Input: engine.Shape{C: 1, H: 8, W: 8}, Layers: []engine.Layer{
+			{Kind: engine.KindAct, Note: text},
+			{Kind: engine.KindBlock, Note: text, Body: []engine.Layer{{Kind: engine.KindBlock, Body: []engine.Layer{inner}}}},
+		}}
+		data, err := Save(s)
+		if err != nil {
+			t.Errorf("%q: save: %v", text, err)
+			continue
+		}
+		back, err := Load(data)
+		if err != nil {
+			t.Errorf("%q: the saved file does not load: %v\n%s", text, err, data)
+			continue
+		}
+		got := []string{back.Name, back.Note, back.Layers[0].Note, back.Layers[1].Note, back.Layers[1].Body[0].Body[0].Note}
+		for i, g := range got {
+			if g != text {
+				t.Errorf("%q came back as %q (place %d) from\n%s", text, g, i, data)
+			}
+		}
+	}
+}
