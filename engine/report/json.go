@@ -217,14 +217,13 @@ func WriteJSON(w io.Writer, an *engine.Analysis) error {
 	}
 	field("input", doc.Input, false)
 	b.WriteString("  \"layers\": [")
-	line := make([]byte, 0, 512)
 	for i := range an.Result.Rows {
 		if i > 0 {
 			b.WriteByte(',')
 		}
 		b.WriteString("\n    ")
-		var err error
-		if line, err = appendLayer(line[:0], an, i); err != nil {
+		line, err := appendLayer(b.AvailableBuffer(), an, i) // appends in place
+		if err != nil {
 			return err
 		}
 		b.Write(line)
