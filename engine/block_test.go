@@ -21,10 +21,14 @@ func lastOut(r *engine.Result, item int) engine.Shape {
 }
 
 // TestResNets checks residual networks written as blocks: parameter totals
-// equal torchvision's published num_params and MACs equal the values behind
-// its published GFLOPS (torchvision model documentation; exact MACs in
-// ../shared/reference/check-values.md), and stage outputs 112, 56, 28, 14, 7
-// for a 224 input (He et al. 2016, Table 1).
+// equal torchvision's published num_params and MACs round to its published
+// GFLOPS (torchvision model documentation, the weights metadata of
+// resnet18 … resnet152; its GFLOPS counts convolution and dense
+// multiply-accumulates at batch 1). The exact MACs are derived by counting
+// C_out·H_out·W_out·(C_in/groups)·k_h·k_w per convolution and in·out per
+// dense layer, and each rounds to the printed value. Stage outputs are 112,
+// 56, 28, 14, 7 for a 224 input (He et al. 2016, "Deep Residual Learning for
+// Image Recognition", Table 1).
 func TestResNets(t *testing.T) {
 	tests := []struct {
 		file   string
@@ -58,10 +62,12 @@ func TestResNets(t *testing.T) {
 
 // TestResNetPaperLayout checks the paper's own layout (stride on the first
 // 1×1 of each bottleneck) against He et al. 2016, Table 1, FLOPs row
-// (multiply-adds): 3.8, 7.6 and 11.3 ×10⁹. The exact count of that layout is
-// 3.858, 7.570 and 11.282 ×10⁹ (derived in check-values.md): ResNet-101 and
-// -152 are within 1% of the printed values; ResNet-50's printed 3.8 sits 1.5%
-// below the exact count of its own layout, so its tolerance is 1.6%.
+// (multiply-adds): 3.8, 7.6 and 11.3 ×10⁹. The exact count of that layout
+// is 3.858, 7.570 and 11.282 ×10⁹ (derived: convolution and dense
+// multiply-accumulates counted layer by layer, as in TestResNets):
+// ResNet-101 and -152 are within 1% of the printed values; ResNet-50's
+// printed 3.8 sits 1.5% below the exact count of its own layout, so its
+// tolerance is 1.6%.
 func TestResNetPaperLayout(t *testing.T) {
 	tests := []struct {
 		file      string

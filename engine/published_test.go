@@ -1,6 +1,7 @@
 package engine_test
 
 import (
+	"os"
 	"path/filepath"
 	"testing"
 
@@ -10,17 +11,25 @@ import (
 
 func loadTestdata(t testing.TB, name string) *engine.Stack {
 	t.Helper()
-	s, err := stackfile.LoadFile(filepath.Join("..", "testdata", name))
+	data, err := os.ReadFile(filepath.Join("..", "testdata", name))
 	if err != nil {
 		t.Fatal(err)
+	}
+	s, err := stackfile.Load(data)
+	if err != nil {
+		t.Fatalf("%s: %v", name, err)
 	}
 	return s
 }
 
 // TestPublishedTotals checks whole networks against published totals.
-// Parameters and GFLOPS (giga multiply-accumulates) are torchvision's model
-// documentation (weights metadata num_params and GFLOPS); the exact MACs are
-// the values behind its printed GFLOPS (../shared/reference/check-values.md).
+// Parameters and GFLOPS (giga multiply-accumulates of the convolution and
+// dense layers at batch 1) are torchvision's model documentation (weights
+// metadata num_params and GFLOPS); VGG's are also in Simonyan & Zisserman
+// 2015, "Very Deep Convolutional Networks for Large-Scale Image
+// Recognition", Table 2, in millions. The exact MACs are derived by counting
+// C_out·H_out·W_out·(C_in/groups)·k_h·k_w per convolution and in·out per
+// dense layer; each rounds to torchvision's printed GFLOPS.
 func TestPublishedTotals(t *testing.T) {
 	tests := []struct {
 		file   string

@@ -1,12 +1,15 @@
 package export
 
 import (
+	"bufio"
 	"bytes"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"os"
 	"os/exec"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -16,29 +19,129 @@ import (
 
 const python = "/usr/bin/python3"
 
-// needTorch skips the test unless Debian's python3-torch can be imported.
-func needTorch(t *testing.T) {
-	t.Helper()
-	if err := exec.Command(python, "-c", "import torch").Run(); err != nil {
-		t.Skip("PyTorch is not available to " + python + "; install Debian's python3-torch (.ci/run does)")
-	}
+// probeNoTorch is the status the probe exits with (its sys.exit(3)) when
+// PyTorch cannot be imported.
+const probeNoTorch = 3
+
+// probe builds exported modules with PyTorch in one process. Its stdin
+// holds one JSON object per module ({"name", "path", "cpu"}); for each it
+// prints one JSON line: the trainable parameter count and the output shape
+// (batch dimension dropped) of a zero input. Every module runs on PyTorch's
+// meta device, which works out shapes with PyTorch's own shape rules but
+// does no arithmetic, so ResNet-152 at 224×224 takes milliseconds; it is
+// built there too, skipping the weight initialisation. A module marked
+// "cpu" is instead built with real weights and also run on the CPU, and
+// that shape is reported as well. A module that fails gets an "error" line
+// and the others still run.
+const probe = `
+import importlib.util, json, sys, traceback
+try:
+    import torch
+except ImportError:
+    sys.exit(3)
+
+
+class MetaFactories(torch.overrides.TorchFunctionMode):
+    """New tensors on the meta device (what torch.device("meta") does as a
+    context manager from PyTorch 2.0 on), so building a module skips the
+    weight initialisation."""
+
+    FACTORIES = (torch.empty, torch.zeros, torch.ones, torch.full, torch.tensor,
+                 torch.rand, torch.randn, torch.arange)
+
+    def __torch_function__(self, func, types, args=(), kwargs=None):
+        kwargs = dict(kwargs or {})
+        if func in self.FACTORIES:
+            kwargs["device"] = "meta"
+        return func(*args, **kwargs)
+
+
+def on_meta():
+    if hasattr(torch.device, "__enter__"):
+        return torch.device("meta")
+    return MetaFactories()
+
+
+def run(net, shape, device):
+    with torch.no_grad():
+        return list(net.eval()(torch.zeros(1, *shape, device=device)).shape[1:])
+
+
+for line in sys.stdin:
+    case = json.loads(line)
+    res = {"name": case["name"]}
+    try:
+        spec = importlib.util.spec_from_file_location("m", case["path"])
+        mod = importlib.util.module_from_spec(spec)
+        spec.loader.exec_module(mod)
+        if case["cpu"]:
+            net = mod.MODEL()
+            res["cpu_out"] = run(net, mod.INPUT_SHAPE, "cpu")
+        else:
+            with on_meta():
+                net = mod.MODEL()
+        net = net.to("meta")
+        res["params"] = sum(p.numel() for p in net.parameters() if p.requires_grad)
+        res["out"] = run(net, mod.INPUT_SHAPE, "meta")
+    except Exception as e:
+        res["error"] = "".join(traceback.format_exception_only(type(e), e)).strip()
+    print(json.dumps(res), flush=True)
+`
+
+// probeCase is one module for the probe; probeResult is its answer.
+type probeCase struct {
+	Name string `json:"name"`
+	Path string `json:"path"`
+	CPU  bool   `json:"cpu"`
 }
 
-// probe builds each exported module with PyTorch and reports its
-// parameter count and the output shape of a dummy input.
-const probe = `
-import importlib.util, json, sys, torch
-out = {}
-for path in sys.argv[1:]:
-    spec = importlib.util.spec_from_file_location("m", path)
-    mod = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(mod)
-    net = mod.MODEL().eval()
-    with torch.no_grad():
-        y = net(torch.zeros(1, *mod.INPUT_SHAPE))
-    out[path] = {"params": sum(p.numel() for p in net.parameters() if p.requires_grad), "out": list(y.shape[1:])}
-print(json.dumps(out))
-`
+type probeResult struct {
+	Name   string  `json:"name"`
+	Params int64   `json:"params"`
+	Out    []int64 `json:"out"`
+	CPUOut []int64 `json:"cpu_out"`
+	Error  string  `json:"error"`
+}
+
+// runProbe runs the probe once over every case and returns its answers by
+// name. It skips the test when python3 or PyTorch is missing.
+func runProbe(t *testing.T, cases []probeCase) map[string]probeResult {
+	t.Helper()
+	var in bytes.Buffer
+	enc := json.NewEncoder(&in)
+	for _, c := range cases {
+		enc.Encode(c)
+	}
+	cmd := exec.Command(python, "-c", probe)
+	cmd.Stdin = &in
+	var stderr bytes.Buffer
+	cmd.Stderr = &stderr
+	out, err := cmd.Output()
+	var ee *exec.ExitError
+	switch {
+	case errors.Is(err, os.ErrNotExist) || errors.As(err, &ee) && ee.ExitCode() == probeNoTorch:
+		t.Skip("PyTorch is not available to " + python + "; install Debian's python3-torch (.ci/run does)")
+	case err != nil:
+		t.Fatalf("the PyTorch probe failed: %v\n%s", err, stderr.String())
+	}
+	got := map[string]probeResult{}
+	sc := bufio.NewScanner(bytes.NewReader(out))
+	for sc.Scan() {
+		var r probeResult
+		if err := json.Unmarshal(sc.Bytes(), &r); err != nil {
+			t.Fatalf("probe line %q: %v", sc.Text(), err)
+		}
+		got[r.Name] = r
+	}
+	return got
+}
+
+// cpuMACs is the most multiply-accumulates per sample for which a module is
+// also run on the CPU (milliseconds each): LeNet-5, the cap inspector and
+// most of the reference stacks, so real kernels check the meta device's
+// shapes on every construct those use. The big networks (up to VGG-19's
+// 19.6 G) run on the meta device only.
+const cpuMACs = 200_000_000
 
 func exportFile(t *testing.T, s *engine.Stack, dir, name string) (string, *engine.Analysis) {
 	t.Helper()
@@ -55,23 +158,33 @@ func exportFile(t *testing.T, s *engine.Stack, dir, name string) (string, *engin
 }
 
 // TestExportBuildsInPyTorch exports every stack in testdata/ (and the
-// reference stacks PyTorch ran whole), builds each module with PyTorch
-// (Debian python3-torch) and checks its parameter count and output shape
-// against the engine's.
+// reference stacks PyTorch ran whole), builds all the modules with PyTorch
+// (Debian python3-torch) in one process and checks each one's parameter
+// count and output shape (on the meta device, and for the small ones on
+// the CPU as well) against the engine's, in a subtest named after the
+// stack.
 func TestExportBuildsInPyTorch(t *testing.T) {
-	needTorch(t)
+	t.Parallel()
 	dir := t.TempDir()
-	files, _ := filepath.Glob("../../testdata/*/*.yaml")
+	var cases []probeCase
 	want := map[string]*engine.Analysis{}
-	var paths []string
+	add := func(name string, s *engine.Stack, source string) {
+		p, an := exportFile(t, s, dir, source)
+		cases = append(cases, probeCase{Name: name, Path: p, CPU: an.Result.Totals.MACs <= cpuMACs})
+		want[name] = an
+	}
+	files, _ := filepath.Glob("../../testdata/*/*.yaml")
 	for _, f := range files {
-		s, err := stackfile.LoadFile(f)
+		data, err := os.ReadFile(f)
 		if err != nil {
 			t.Fatal(err)
 		}
-		p, an := exportFile(t, s, dir, f)
-		want[p] = an
-		paths = append(paths, p)
+		s, err := stackfile.Load(data)
+		if err != nil {
+			t.Fatalf("%s: %v", f, err)
+		}
+		rel, _ := filepath.Rel("../../testdata", f)
+		add(strings.TrimSuffix(strings.ReplaceAll(rel, string(filepath.Separator), "-"), ".yaml"), s, f)
 	}
 	// The reference stacks cover every kind, odd sizes, same padding, crops.
 	var doc struct {
@@ -80,8 +193,13 @@ func TestExportBuildsInPyTorch(t *testing.T) {
 			ErrorAt *int            `json:"error_at"`
 		} `json:"cases"`
 	}
-	data, _ := os.ReadFile("../../testdata/reference/shapes.json")
-	json.Unmarshal(data, &doc)
+	data, err := os.ReadFile("../../testdata/reference/shapes.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(data, &doc); err != nil {
+		t.Fatal(err)
+	}
 	for i, c := range doc.Cases {
 		if c.ErrorAt != nil {
 			continue
@@ -90,41 +208,51 @@ func TestExportBuildsInPyTorch(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		p, an := exportFile(t, s, dir, fmt.Sprintf("reference-%02d", i))
-		want[p] = an
-		paths = append(paths, p)
+		name := fmt.Sprintf("reference-%02d", i)
+		add(name, s, name)
 	}
-	cmd := exec.Command(python, append([]string{"-c", probe}, paths...)...)
-	out, err := cmd.Output()
-	if err != nil {
-		var stderr string
-		if ee, ok := err.(*exec.ExitError); ok {
-			stderr = string(ee.Stderr)
-		}
-		t.Fatalf("PyTorch could not build the modules: %v\n%s", err, stderr)
+	if len(cases) < 50 {
+		t.Errorf("only %d modules to check", len(cases))
 	}
-	var got map[string]struct {
-		Params int64
-		Out    [3]int64
-	}
-	if err := json.Unmarshal(out, &got); err != nil {
-		t.Fatal(err)
-	}
-	for p, an := range want {
-		g := got[p]
-		r := an.Result
-		if g.Params != r.Totals.Params || g.Out != [3]int64{r.Output.C, r.Output.H, r.Output.W} {
-			t.Errorf("%s: PyTorch %d params, out %v; engine %d params, out %v", filepath.Base(p), g.Params, g.Out, r.Totals.Params, r.Output)
+	cpu := 0
+	for _, c := range cases {
+		if c.CPU {
+			cpu++
 		}
 	}
-	if len(want) < 50 {
-		t.Errorf("only %d modules checked", len(want))
+	if cpu < 40 {
+		t.Errorf("only %d modules run on the CPU", cpu)
+	}
+
+	got := runProbe(t, cases)
+	for _, c := range cases {
+		t.Run(c.Name, func(t *testing.T) {
+			g, ok := got[c.Name]
+			if !ok {
+				t.Fatal("the probe printed nothing for it")
+			}
+			if g.Error != "" {
+				t.Fatalf("PyTorch could not build or run %s: %s", filepath.Base(c.Path), g.Error)
+			}
+			r := want[c.Name].Result
+			out := []int64{r.Output.C, r.Output.H, r.Output.W}
+			if g.Params != r.Totals.Params {
+				t.Errorf("PyTorch counts %d parameters, the engine %d", g.Params, r.Totals.Params)
+			}
+			if !slices.Equal(g.Out, out) {
+				t.Errorf("PyTorch output %v, the engine's %v", g.Out, out)
+			}
+			if c.CPU && !slices.Equal(g.CPUOut, out) {
+				t.Errorf("PyTorch output on the CPU %v, the engine's %v", g.CPUOut, out)
+			}
+		})
 	}
 }
 
 // TestExportHostileText checks that names, notes and the stack name never
 // become code: a note with a newline and a statement stays a comment.
 func TestExportHostileText(t *testing.T) {
+	t.Parallel()
 	dir := t.TempDir()
 	marker := filepath.Join(dir, "pwned")
 	stmt := "open(" + `"` + marker + `"` + ", 'w').write('x')"
@@ -155,11 +283,13 @@ func TestExportHostileText(t *testing.T) {
 	if !strings.Contains(code, "class Evil") {
 		t.Errorf("class name not sanitised:\n%s", code)
 	}
-	needTorch(t)
 	p := filepath.Join(dir, "evil.py")
-	os.WriteFile(p, b.Bytes(), 0o644)
-	if out, err := exec.Command(python, "-c", probe, p).CombinedOutput(); err != nil {
-		t.Fatalf("the module does not run: %v\n%s\n%s", err, out, code)
+	if err := os.WriteFile(p, b.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	got := runProbe(t, []probeCase{{Name: "evil", Path: p, CPU: true}})
+	if g := got["evil"]; g.Error != "" || len(g.CPUOut) != 3 {
+		t.Fatalf("the module does not run: %+v\n%s", g, code)
 	}
 	if _, err := os.Stat(marker); err == nil {
 		t.Fatal("a statement from the stack ran")

@@ -3,39 +3,19 @@ package cli
 import (
 	"bytes"
 	"encoding/json"
-	"flag"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
-)
 
-var update = flag.Bool("update", false, "rewrite golden files")
+	"github.com/charmbracelet/x/exp/golden"
+)
 
 func run(t *testing.T, stdin string, args ...string) (string, string, int) {
 	t.Helper()
 	var out, errb bytes.Buffer
 	code := Run(args, IO{In: strings.NewReader(stdin), Out: &out, Err: &errb})
 	return out.String(), errb.String(), code
-}
-
-// golden compares got with testdata/name, rewriting it under -update.
-func golden(t *testing.T, name, got string) {
-	t.Helper()
-	p := filepath.Join("testdata", name)
-	if *update {
-		os.MkdirAll("testdata", 0o755)
-		if err := os.WriteFile(p, []byte(got), 0o644); err != nil {
-			t.Fatal(err)
-		}
-	}
-	want, err := os.ReadFile(p)
-	if err != nil {
-		t.Fatalf("%v (run go test ./ui/cli -update to create it)", err)
-	}
-	if got != string(want) {
-		t.Errorf("output differs from %s:\n%s", p, got)
-	}
 }
 
 const example = "../../engine/examples/fruit-grader.yaml"
@@ -45,7 +25,7 @@ func TestNoArgsShowsExample(t *testing.T) {
 	if code != ExitOK {
 		t.Fatalf("exit %d", code)
 	}
-	golden(t, "example.txt", out)
+	golden.RequireEqual(t, []byte(out)) // testdata/TestNoArgsShowsExample.golden
 }
 
 func TestReportJSON(t *testing.T) {
@@ -53,7 +33,7 @@ func TestReportJSON(t *testing.T) {
 	if code != ExitOK {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
-	golden(t, "example.json", out)
+	golden.RequireEqual(t, []byte(out)) // testdata/TestReportJSON.golden
 	var doc map[string]any
 	if err := json.Unmarshal([]byte(out), &doc); err != nil {
 		t.Fatal(err)
