@@ -106,20 +106,22 @@ type JSONTotals struct {
 	MACs    int64 `json:"macs"`
 }
 
-// BuildJSON converts an analysis into the JSON document. WriteJSON writes
-// the same document without building it; BuildJSON is its reference form
-// for programs that want the values rather than the bytes.
+// BuildJSON converts an analysis into the JSON document, for programs that
+// want the values rather than the bytes. WriteJSON writes the same
+// document a layer at a time, without holding every layer at once.
 func BuildJSON(an *engine.Analysis) *JSON {
 	doc := buildHead(an)
 	doc.Layers = make([]JSONLayer, len(an.Result.Rows))
+	outs := make([][3]int64, len(an.Result.Rows))
 	for i := range an.Result.Rows {
-		doc.Layers[i] = buildLayer(an, i)
+		doc.Layers[i] = buildLayer(an, i, &outs[i])
 	}
 	return doc
 }
 
-// buildLayer converts row i of an analysis into its JSON form.
-func buildLayer(an *engine.Analysis, i int) JSONLayer {
+// buildLayer converts row i of an analysis into its JSON form; the output
+// shape, when known, goes into out.
+func buildLayer(an *engine.Analysis, i int, out *[3]int64) JSONLayer {
 	r, m := an.Result, &an.Memory
 	row := &r.Rows[i]
 	jl := JSONLayer{
@@ -138,7 +140,8 @@ func buildLayer(an *engine.Analysis, i int) JSONLayer {
 		Notes:    []string{},
 	}
 	if row.Status == engine.StatusOK {
-		jl.Out = &[3]int64{row.Out.C, row.Out.H, row.Out.W}
+		*out = [3]int64{row.Out.C, row.Out.H, row.Out.W}
+		jl.Out = out
 	}
 	if i < len(m.Rows) {
 		jl.ActBytes = m.Rows[i]
@@ -217,16 +220,19 @@ func WriteJSON(w io.Writer, an *engine.Analysis) error {
 	}
 	field("input", doc.Input, false)
 	b.WriteString("  \"layers\": [")
+	enc := json.NewEncoder(&b)
+	var jl JSONLayer // one value and one shape for every line
+	var out [3]int64
 	for i := range an.Result.Rows {
 		if i > 0 {
 			b.WriteByte(',')
 		}
 		b.WriteString("\n    ")
-		line, err := appendLayer(b.AvailableBuffer(), an, i) // appends in place
-		if err != nil {
-			return err
+		jl = buildLayer(an, i, &out)
+		if err := enc.Encode(&jl); err != nil {
+			return fmt.Errorf("layer %s: %w", jl.Path, err)
 		}
-		b.Write(line)
+		b.Truncate(b.Len() - 1) // Encode ends the value with a newline
 	}
 	if len(an.Result.Rows) > 0 {
 		b.WriteString("\n  ")
