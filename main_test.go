@@ -10,6 +10,7 @@ import (
 
 	"stackfit/engine/examples"
 	"stackfit/engine/stackfile"
+	"stackfit/ui/store"
 )
 
 // term drives one tmux server for a test.
@@ -97,7 +98,7 @@ func TestCrashRecovery(t *testing.T) {
 		t.Fatal("the file changed without a save")
 	}
 	journal := filepath.Join(dir, ".grader.yaml.unsaved")
-	kept, err := stackfile.LoadFile(journal)
+	kept, err := store.LoadFile(journal)
 	if err != nil || len(kept.Layers) != 36 || kept.Layers[0].Filters != 64 {
 		t.Fatalf("journal: %v", err)
 	}
@@ -108,7 +109,7 @@ func TestCrashRecovery(t *testing.T) {
 	tm.keys("two", "w")
 	tm.waitFor("two", "saved grader.yaml")
 	tm.keys("two", "q")
-	saved, err := stackfile.LoadFile(file)
+	saved, err := store.LoadFile(file)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -152,7 +153,7 @@ func TestRealTerminal(t *testing.T) {
 		}
 	}
 	keys("q")
-	saved, err := stackfile.LoadFile(file)
+	saved, err := store.LoadFile(file)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -33,7 +33,7 @@ func (r *Result) setTap(l *Layer, f *flow) {
 type fixedLayers struct {
 	add  Layer
 	norm Layer
-	act  [len(actNames)]Layer
+	act  [len(activations)]Layer
 }
 
 func (x *fixedLayers) init() {
@@ -59,16 +59,6 @@ type synthPool struct {
 const synthChunk = 16
 
 func (p *synthPool) reset() { p.n = 0 }
-
-func (p *synthPool) get(l Layer) *Layer {
-	c, i := p.n/synthChunk, p.n%synthChunk
-	if c == len(p.chunks) {
-		p.chunks = append(p.chunks, make([]Layer, synthChunk))
-	}
-	p.n++
-	p.chunks[c][i] = l
-	return &p.chunks[c][i]
-}
 
 // projection hands out a 1×1 shortcut convolution.
 func (p *synthPool) projection(filters int64, stride Pair, noBias bool) *Layer {

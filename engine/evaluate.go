@@ -238,40 +238,6 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 		row.In, row.RF, row.Jump, row.OutStore = Shape{}, FPair{}, FPair{}, -1
 		return
 	}
-	switch k := l.Kind; {
-	case k == KindAct || k == KindDropout:
-		// Element-wise rows keep the shape and own nothing: the common
-		// case skips the calculator entirely.
-		row.Out, row.RF, row.Jump = f.shape, f.rf, f.jump
-		f.store = int32(idx)
-		row.OutStore = f.store
-		row.CumParams = r.Totals.Params
-		return
-	case k == KindNorm && l.Norm == NormBatch && f.shape.C < 1<<40:
-		// Batch norm: 2C parameters (unless affine is off) and 2C + 1 buffers.
-		row.Out, row.RF, row.Jump = f.shape, f.rf, f.jump
-		row.Buffers = 2*f.shape.C + 1
-		if l.Affine != Off {
-			row.Params = 2 * f.shape.C
-		}
-		f.store = int32(idx)
-		row.OutStore = f.store
-		f.grad = f.grad || row.Params > 0
-		r.count(idx, row, k, role)
-		return
-	case role == RoleResidual && r.shortcut.ok && r.shortcut.shape == f.shape && r.shortcut.jump == f.jump:
-		// The addition closing a residual repeat, shapes matching.
-		sc := &r.shortcut
-		row.Out, row.Jump = f.shape, f.jump
-		f.rf.H, f.rf.W = max(f.rf.H, sc.rf.H), max(f.rf.W, sc.rf.W)
-		row.RF = f.rf
-		row.OtherStore = sc.store
-		f.grad = f.grad || sc.grad
-		f.store = int32(idx)
-		row.OutStore = f.store
-		row.CumParams = r.Totals.Params
-		return
-	}
 	// The calculator lives in the Result and is set field by field: a
 	// composite literal here is built in a temporary and copied, which
 	// stalls on store forwarding once per row.
@@ -291,8 +257,8 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 	}
 	f.shape = row.Out
 	row.RF, row.Jump = f.rf, f.jump
-	if k := l.Kind; k != KindFlatten && k != KindReshape {
-		f.store = int32(idx) // every other kind writes a new tensor
+	if !SpecOf(l.Kind).View {
+		f.store = int32(idx) // every kind but a view writes a new tensor
 	}
 	row.OutStore = f.store
 	f.grad = f.grad || row.Params > 0
@@ -331,8 +297,8 @@ func (r *Result) checkWidth(i int) {
 		return
 	}
 	field := "filters"
-	if row.Layer.Kind == KindDense {
-		field = "units"
+	if m := SpecOf(row.Layer.Kind).Main; m != nil {
+		field = m.Key
 	}
 	r.diag(Diagnostic{Severity: SevWarning, Code: WarnChannels8, Row: i, Field: field, A: row.Out.C, B: RoundToMultiple(row.Out.C, 8)})
 }

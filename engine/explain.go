@@ -6,79 +6,18 @@ import (
 )
 
 // Explain returns the arithmetic behind row i's numbers, one line each:
-// the output size, the parameters, the multiply-accumulates and the
-// receptive field, written with the row's own numbers.
+// the output size, the parameters, the multiply-accumulates (each by its
+// kind's rule) and the receptive field, written with the row's own numbers.
 func (r *Result) Explain(i int) []string {
 	if i < 0 || i >= len(r.Rows) {
 		return nil
 	}
 	row := &r.Rows[i]
-	l := row.Layer
 	if row.Status != StatusOK {
 		return []string{fmt.Sprintf("numbers unknown: %s", row.Status)}
 	}
-	var out []string
-	in := row.In
-	s := l.stride()
-	if row.Unstrided {
-		s = Square(1)
-	}
-	d := l.dilation()
-	switch l.Kind {
-	case KindConv, KindPool:
-		if l.Kind == KindPool {
-			d = Square(1)
-		}
-		out = append(out, axisLines(l, in, row.Out, s, d)...)
-	case KindDeconv:
-		out = append(out, pairLine("out", row.Out,
-			fmt.Sprintf("(%d − 1)·%d − 2·%d + %s + %d + 1", in.H, s.H, l.Pad.Size.H, keffText(l.Kernel.H, d.H), l.OutPad.H),
-			fmt.Sprintf("(%d − 1)·%d − 2·%d + %s + %d + 1", in.W, s.W, l.Pad.Size.W, keffText(l.Kernel.W, d.W), l.OutPad.W)))
-	case KindUpsample:
-		out = append(out, fmt.Sprintf("out %d×%d = %d·%d × %d·%d", row.Out.H, row.Out.W, in.H, l.Factor.H, in.W, l.Factor.W))
-	case KindFlatten:
-		out = append(out, fmt.Sprintf("out %d = %d·%d·%d values", row.Out.C, in.C, in.H, in.W))
-	case KindConcat:
-		out = append(out, fmt.Sprintf("channels %d = %d here + %d from %q", row.Out.C, in.C, row.Out.C-in.C, l.From))
-	}
-	switch l.Kind {
-	case KindConv, KindDeconv:
-		g := l.Groups
-		if l.Depthwise {
-			g = in.C
-		}
-		g = max(g, 1)
-		w := l.Filters * (in.C / g) * l.Kernel.H * l.Kernel.W
-		bias := ""
-		if !l.NoBias {
-			bias = fmt.Sprintf(" + %d", l.Filters)
-		}
-		perGroup := strconv.FormatInt(in.C, 10)
-		if g > 1 {
-			perGroup = fmt.Sprintf("(%d/%d)", in.C, g)
-		}
-		out = append(out, fmt.Sprintf("params = %d·%d·%s·%d%s = %s", l.Kernel.H, l.Kernel.W, perGroup, l.Filters, bias, GroupDigits(row.Params)))
-		pos := fmt.Sprintf("%d·%d output positions", row.Out.H, row.Out.W)
-		if l.Kind == KindDeconv {
-			pos = fmt.Sprintf("%d·%d input positions", in.H, in.W)
-		}
-		out = append(out, fmt.Sprintf("MACs = %s weights × %s = %s", GroupDigits(w), pos, FormatCount(row.MACs)))
-	case KindDense:
-		bias := ""
-		if !l.NoBias {
-			bias = fmt.Sprintf(" + %d", l.Filters)
-		}
-		out = append(out, fmt.Sprintf("params = %d·%d%s = %s; MACs = %s", in.C, l.Filters, bias, GroupDigits(row.Params), GroupDigits(row.MACs)))
-	case KindNorm:
-		if row.Params > 0 {
-			out = append(out, fmt.Sprintf("params = 2·%d = %s (scale and shift per channel)", in.C, GroupDigits(row.Params)))
-		}
-		if row.Buffers > 0 {
-			out = append(out, fmt.Sprintf("buffers = 2·%d + 1 = %s (running mean, variance, step count)", in.C, GroupDigits(row.Buffers)))
-		}
-	}
-	out = append(out, fmt.Sprintf("sees %s input pixels, step %s between outputs", fpairText(row.RF), fpairText(row.Jump)))
-	return out
+	out := SpecOf(row.Layer.Kind).explainRow(row)
+	return append(out, fmt.Sprintf("sees %s input pixels, step %s between outputs", fpairText(row.RF), fpairText(row.Jump)))
 }
 
 // axisLines explains a sliding-window output size per axis.
@@ -121,8 +60,5 @@ func pairLine(label string, o Shape, fh, fw string) string {
 
 func fpairText(p FPair) string {
 	f := func(v float64) string { return strconv.FormatFloat(v, 'f', -1, 64) }
-	if p.H == p.W {
-		return f(p.H) + "×" + f(p.W)
-	}
 	return f(p.H) + "×" + f(p.W)
 }

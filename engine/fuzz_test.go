@@ -43,7 +43,7 @@ func FuzzFields(f *testing.F) {
 		kind := kinds[int(k)%len(kinds)]
 		fields := FieldsFor(kind)
 		fl := fields[int(i)%len(fields)]
-		l := NewLayer(kind, 16)
+		l := exampleLayer(t, kind)
 		err := fl.Set(&l, s)
 		if err != nil {
 			var fe *FieldError
@@ -190,4 +190,13 @@ func FuzzEvaluate(f *testing.F) {
 			t.Fatalf("re-evaluation differs: %+v vs %+v", again.Totals, r.Totals)
 		}
 	})
+}
+
+// exampleLayer is the layer of the kind's own quick-entry example.
+func exampleLayer(t testing.TB, k Kind) Layer {
+	l, err := ParseQuick(SpecOf(k).Example)
+	if err != nil {
+		t.Fatalf("%v: the example %q does not parse: %v", k, SpecOf(k).Example, err)
+	}
+	return l
 }

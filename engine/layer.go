@@ -24,32 +24,8 @@ const (
 	kindCount
 )
 
-var kindNames = [kindCount]string{
-	KindInvalid:    "invalid",
-	KindConv:       "conv",
-	KindDeconv:     "deconv",
-	KindPool:       "pool",
-	KindGlobalPool: "global-pool",
-	KindPoolTo:     "pool-to",
-	KindUpsample:   "upsample",
-	KindNorm:       "norm",
-	KindAct:        "act",
-	KindDropout:    "dropout",
-	KindFlatten:    "flatten",
-	KindDense:      "dense",
-	KindReshape:    "reshape",
-	KindBlock:      "block",
-	KindConcat:     "concat",
-	KindAdd:        "add",
-}
-
 // String returns the kind's stack-file key.
-func (k Kind) String() string {
-	if k < kindCount {
-		return kindNames[k]
-	}
-	return "invalid"
-}
+func (k Kind) String() string { return SpecOf(k).Key }
 
 // Kinds lists every layer kind a stack may hold, in display order.
 func Kinds() []Kind {
@@ -63,7 +39,7 @@ func Kinds() []Kind {
 // KindByName returns the kind whose stack-file key is name.
 func KindByName(name string) (Kind, bool) {
 	for k := KindConv; k < kindCount; k++ {
-		if kindNames[k] == name {
+		if specs[k] != nil && specs[k].Key == name {
 			return k, true
 		}
 	}
@@ -141,9 +117,6 @@ func (n NormKind) String() string {
 	return "invalid"
 }
 
-// NormKinds lists the normalisation flavours.
-func NormKinds() []NormKind { return []NormKind{NormBatch, NormGroup, NormInstance, NormLayer} }
-
 // Toggle is an optional boolean: unset means the kind's default.
 type Toggle uint8
 
@@ -163,34 +136,6 @@ func (t Toggle) Or(def bool) bool {
 		return false
 	}
 	return def
-}
-
-// ActKind is an element-wise activation function.
-type ActKind uint8
-
-// Activation functions.
-const (
-	ActReLU ActKind = iota
-	ActLeakyReLU
-	ActGELU
-	ActSiLU
-	ActSigmoid
-	ActTanh
-)
-
-var actNames = [...]string{"relu", "leaky-relu", "gelu", "silu", "sigmoid", "tanh"}
-
-// String returns the stack-file value.
-func (a ActKind) String() string {
-	if int(a) < len(actNames) {
-		return actNames[a]
-	}
-	return "invalid"
-}
-
-// ActKinds lists the activation functions.
-func ActKinds() []ActKind {
-	return []ActKind{ActReLU, ActLeakyReLU, ActGELU, ActSiLU, ActSigmoid, ActTanh}
 }
 
 // Layer is one item of a stack. Which fields matter depends on Kind; the
@@ -294,11 +239,11 @@ func (l *Layer) EffectiveStride() Pair { return l.stride() }
 func (l *Layer) EffectiveDilation() Pair { return l.dilation() }
 
 // IsMerge reports whether the kind combines the flow with a named output.
-func (k Kind) IsMerge() bool { return k == KindConcat || k == KindAdd }
+func (k Kind) IsMerge() bool { return SpecOf(k).Merge }
 
 // HasWeights reports whether the kind carries a weight matrix whose width
 // the user chooses (conv, deconv, dense).
-func (k Kind) HasWeights() bool { return k == KindConv || k == KindDeconv || k == KindDense }
+func (k Kind) HasWeights() bool { return SpecOf(k).Weighted }
 
 // Normalized returns the layer with every field that equals its kind's
 // default reset to the zero value, so that two layers that compute the same

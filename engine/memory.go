@@ -95,6 +95,7 @@ type Memory struct {
 	Rows             []int64 // activation bytes each row keeps, at the micro-batch
 
 	seen []int32 // scratch: storage → last epoch counted
+	sv   saving  // scratch: the saved-bytes counter
 }
 
 // Category names, in display order.
@@ -182,10 +183,11 @@ func (m *Memory) fill(r *Result, t Training) {
 // of activation elements alive at once in a forward pass without gradients
 // (per sample). It appends each row's kept bytes at the micro-batch to rows.
 //
-// What a row keeps follows what PyTorch's autograd saves (calibrated with
+// What a row keeps is its kind's rule (Spec.saved), following what
+// PyTorch's autograd saves (calibrated with
 // torch.autograd.graph.saved_tensors_hooks, testdata/reference):
-// convolutions, dense layers and norms keep their input; relu, sigmoid and
-// tanh their output; leaky-relu, gelu and silu their input; pooling its
+// convolutions, dense layers and norms keep their input; each activation
+// its output or its input, as its entry in activations says; pooling its
 // input, max pooling also int64 indices per output value; group, instance
 // and layer norm their per-sample statistics too; dropout its mask;
 // upsampling, flatten, reshape and merges nothing. A tensor kept by two rows
@@ -205,104 +207,90 @@ func (r *Result) activationProfile(t Training, a Assumptions, m *Memory, rows *[
 		seen[i] = -1
 	}
 	micro := m.MicroBatch
-	var ov bool
+	sv := &m.sv
+	sv.a, sv.e, sv.seen, sv.epoch, sv.ov = a, e, seen, 0, false
+	ov := &sv.ov
 	k := int64(t.Checkpoint)
 	var segment, segMax, kept int64
-	epoch := int32(0)
-	// keep counts a tensor (by storage) once per epoch; returns its bytes.
-	keep := func(store int32, elems int64) int64 {
-		if seen[store+1] == epoch {
-			return 0
-		}
-		seen[store+1] = epoch
-		return mul(&ov, elems, e)
-	}
 	var largest int64
 	for i := range r.Rows {
 		row := &r.Rows[i]
 		var b int64
 		if row.Status == StatusOK {
-			b = r.savedBytes(row, a, e, keep, &ov)
+			b = r.savedBytes(row, sv)
 			out, _ := row.Out.Elements()
 			largest = max(largest, out)
 		}
-		*rows = append(*rows, mul(&ov, b, micro))
+		*rows = append(*rows, mul(ov, b, micro))
 		if k <= 0 {
-			perSample = add(&ov, perSample, b)
+			perSample = add(ov, perSample, b)
 			continue
 		}
-		segment = add(&ov, segment, b)
+		segment = add(ov, segment, b)
 		if int64(i+1)%k == 0 || i == n-1 {
 			// Segment boundary: its output stays; its insides are recomputed.
 			segMax = max(segMax, segment)
 			if row.Status == StatusOK && i != n-1 {
 				out, _ := row.Out.Elements()
-				kept = add(&ov, kept, mul(&ov, out, e))
+				kept = add(ov, kept, mul(ov, out, e))
 			}
 			segment = 0
-			epoch++
+			sv.epoch++
 		}
 	}
 	if k > 0 {
-		perSample = add(&ov, kept, segMax)
+		perSample = add(ov, kept, segMax)
 	}
 	// Backward scratch: the gradient arriving at and leaving the widest row.
-	scratch = mul(&ov, mul(&ov, 2, largest), e)
+	scratch = mul(ov, mul(ov, 2, largest), e)
 	peakLive = r.peakLive(seen)
-	if ov {
+	if *ov {
 		return math.MaxInt64 / 8, 0, 0
 	}
 	return perSample, scratch, peakLive
 }
 
+// saving is what a kind's saved-bytes rule needs: the device facts, the
+// bytes per activation value and a way to count each tensor once.
+type saving struct {
+	a     Assumptions
+	e     int64
+	seen  []int32 // storage → last epoch counted
+	epoch int32   // checkpoint segment being counted
+	ov    bool    // a product overflowed
+}
+
+// keep counts a tensor (by storage) once per epoch and returns its bytes.
+func (s *saving) keep(store int32, elems int64) int64 {
+	if s.seen[store+1] == s.epoch {
+		return 0
+	}
+	s.seen[store+1] = s.epoch
+	return mul(&s.ov, elems, s.e)
+}
+
+// input counts the row's input tensor.
+func (s *saving) input(row *Row) int64 {
+	n, _ := row.In.Elements()
+	return s.keep(row.InStore, n)
+}
+
+// output counts the row's output tensor.
+func (s *saving) output(row *Row) int64 {
+	n, _ := row.Out.Elements()
+	return s.keep(row.OutStore, n)
+}
+
 // savedBytes returns the bytes per sample row keeps for the backward pass,
-// using keep to count each tensor once.
-func (r *Result) savedBytes(row *Row, a Assumptions, e int64, keep func(int32, int64) int64, ov *bool) int64 {
-	l := row.Layer
-	hasParams := row.Params > 0
-	if !row.Grad && !hasParams {
+// by its kind's rule.
+func (r *Result) savedBytes(row *Row, s *saving) int64 {
+	if !row.Grad && row.Params <= 0 {
 		return 0 // no gradient reaches here and nothing to learn
 	}
-	in, _ := row.In.Elements()
-	out, _ := row.Out.Elements()
-	var b int64
-	switch l.Kind {
-	case KindConv, KindDeconv, KindDense:
-		b = keep(row.InStore, in)
-	case KindNorm:
-		b = keep(row.InStore, in)
-		switch l.Norm {
-		case NormGroup:
-			b += mul(ov, 2*l.NormGroups, 4) // mean and reciprocal std per group, fp32
-		case NormInstance:
-			stats := int64(2)
-			if l.Affine == On {
-				stats = 3 // the scale is expanded per sample as well
-			}
-			b += mul(ov, mul(ov, stats, row.In.C), 4)
-		case NormLayer:
-			b += mul(ov, mul(ov, 2, mul(ov, row.In.H, row.In.W)), 4)
-		}
-	case KindAct:
-		switch l.Act {
-		case ActReLU, ActSigmoid, ActTanh:
-			b = keep(row.OutStore, out)
-		default:
-			b = keep(row.InStore, in)
-		}
-	case KindPool, KindGlobalPool:
-		b = keep(row.InStore, in)
-		if l.Pool == PoolMax {
-			b += mul(ov, out, a.IndexBytes)
-		}
-	case KindPoolTo:
-		b = keep(row.InStore, in)
-	case KindDropout:
-		if l.Rate > 0 {
-			b = mul(ov, out, a.MaskBytes)
-		}
+	if sp := SpecOf(row.Layer.Kind); sp.saved != nil {
+		return sp.saved(row, s)
 	}
-	return b
+	return 0
 }
 
 // peakLive returns the most activation elements (per sample) alive at once

@@ -46,14 +46,6 @@ func (p *Path) push(i int) {
 // Len returns the number of segments.
 func (p Path) Len() int { return int(p.n) }
 
-// pushSeg appends a raw segment (regular or special) in place.
-func (p *Path) pushSeg(v uint16) {
-	if int(p.n) < MaxDepth {
-		p.seg[p.n] = v
-		p.n++
-	}
-}
-
 // HasPrefix reports whether q is p itself or lies inside it.
 func (p Path) HasPrefix(q Path) bool {
 	if q.n > p.n {

@@ -3,28 +3,15 @@ package engine
 import (
 	"errors"
 	"fmt"
-	"sort"
-	"strconv"
 	"strings"
 )
 
 // ErrQuick is wrapped by every quick-entry parse error.
 var ErrQuick = errors.New("cannot read layer line")
 
-// QuickSyntax describes the quick-entry line, for help screens.
-const QuickSyntax = `kind, then its main value, then options, separated by spaces:
-  conv 64 k3 s2 p1        filters 64, kernel 3, stride 2, padding 1 (also: same, valid, d2 dilation, g4 groups, dw depthwise, nobias)
-  deconv 32 k4 s2 p1 op1  transposed convolution with output padding 1
-  pool max k3 s2 p1 ceil  max or avg pooling
-  global-pool avg         pool-to 7      upsample 2 bilinear
-  norm batch              norm group g32   norm instance affine   norm layer
-  act relu                act leaky-relu 0.2   (gelu, silu, sigmoid, tanh)
-  dropout 0.3   flatten   dense 10 nobias   reshape 1024x4x4
-  concat NAME crop        add NAME       block 2 residual then relu
-  @NAME names the layer; sizes take n or h×w (3x5)`
-
 // ParseQuick reads one quick-entry line such as "conv 64 k3 s2 p1" into a
-// layer: the syntax Summary writes, plus "@name".
+// layer: the syntax Summary writes, plus "@name". The kind's description
+// says which words and prefixes each field takes.
 func ParseQuick(line string) (Layer, error) {
 	toks := strings.Fields(strings.ToLower(strings.TrimSpace(line)))
 	if len(toks) == 0 {
@@ -34,25 +21,36 @@ func ParseQuick(line string) (Layer, error) {
 	orig := strings.Fields(strings.TrimSpace(line))
 	k, ok := KindByName(toks[0])
 	if !ok {
-		if c := CompleteKind(toks[0]); len(c) == 1 {
+		if c := kindsWithPrefix(toks[0]); len(c) == 1 {
 			return Layer{}, fmt.Errorf("%w: unknown kind %q; did you mean %q?", ErrQuick, toks[0], c[0])
 		}
 		return Layer{}, fmt.Errorf("%w: unknown kind %q; kinds: %s", ErrQuick, toks[0], strings.Join(names(Kinds()), ", "))
 	}
+	sp := SpecOf(k)
 	l := Layer{Kind: k}
-	rest, origRest := toks[1:], orig[1:]
-	rest, origRest = joinThen(rest), joinThen(origRest)
-	main := ""
-	if len(rest) > 0 && !strings.HasPrefix(rest[0], "@") && takesMain(k, rest[0]) {
-		main = rest[0]
-		if k.IsMerge() {
-			main = origRest[0] // names keep their case
+	rest, origRest := joinThen(toks[1:]), joinThen(orig[1:])
+	if m := sp.Main; m != nil {
+		if len(rest) > 0 && !strings.HasPrefix(rest[0], "@") && m.takesQuick(rest[0]) {
+			tok := rest[0]
+			if m.Type == TRef {
+				tok = origRest[0] // names keep their case
+				if !ValidName(tok) {
+					return Layer{}, fmt.Errorf("%w: %q is not a layer name", ErrQuick, tok)
+				}
+			}
+			v, err := m.Parse(strings.TrimPrefix(tok, m.Quick))
+			if err != nil {
+				return Layer{}, fmt.Errorf("%w: %v", ErrQuick, err)
+			}
+			m.set(&l, v)
+			rest, origRest = rest[1:], origRest[1:]
+		} else if m.Optional {
+			m.set(&l, m.Default)
+		} else {
+			return Layer{}, fmt.Errorf("%w: %s needs %s, e.g. %s", ErrQuick, sp.Key, m.Need, sp.Example)
 		}
-		rest, origRest = rest[1:], origRest[1:]
 	}
-	if err := setMain(&l, main); err != nil {
-		return Layer{}, err
-	}
+	given := make([]string, len(sp.Params)) // the token that set each field
 	for i, t := range rest {
 		if strings.HasPrefix(t, "@") {
 			name := strings.TrimPrefix(origRest[i], "@")
@@ -62,200 +60,110 @@ func ParseQuick(line string) (Layer, error) {
 			l.Name = name
 			continue
 		}
-		if err := quickOption(&l, t); err != nil {
+		j, err := sp.quickOption(&l, t)
+		if err != nil {
 			return Layer{}, err
 		}
+		given[j] = t
 	}
-	if (k == KindConv || k == KindDeconv || k == KindPool) && l.Kernel.IsZero() {
-		return Layer{}, fmt.Errorf("%w: %s needs a kernel; add k3 (or k3x5)", ErrQuick, k)
-	}
-	if k == KindBlock && l.HasPostAct && !l.Residual {
-		return Layer{}, fmt.Errorf("%w: \"then %s\" follows a residual addition; add residual", ErrQuick, l.PostAct)
-	}
-	if k == KindNorm && l.Norm == NormGroup && l.NormGroups == 0 {
-		return Layer{}, fmt.Errorf("%w: group norm needs groups; add g32", ErrQuick)
+	for i := range sp.Params {
+		p := &sp.Params[i]
+		switch {
+		case given[i] != "" && !p.Applies(&l):
+			if p.OnlyQuick != "" {
+				return Layer{}, fmt.Errorf("%w: %q %s", ErrQuick, given[i], p.OnlyQuick)
+			}
+			return Layer{}, fmt.Errorf("%w: %q does not apply to %s; see the help (?) for its options", ErrQuick, given[i], sp.Key)
+		case given[i] == "" && p.Required && p.Applies(&l):
+			msg := p.Need
+			if strings.HasPrefix(msg, "needs ") {
+				msg = sp.Key + " " + msg
+			}
+			return Layer{}, fmt.Errorf("%w: %s; add %s", ErrQuick, msg, p.QuickHint)
+		}
 	}
 	return l.Normalized(), nil
 }
 
-// takesMain reports whether tok is the kind's main value rather than an option.
-func takesMain(k Kind, tok string) bool {
-	switch k {
-	case KindFlatten:
-		return false
-	case KindAct:
-		_, err := ParseChoice("", tok, names(ActKinds()))
+// takesQuick reports whether tok is this main value rather than an option.
+func (p *Param) takesQuick(tok string) bool {
+	switch p.Type {
+	case TChoice:
+		_, err := ParseChoice("", tok, p.Choices)
 		return err == nil
-	case KindGlobalPool, KindPool:
-		return tok == "max" || tok == "avg"
-	case KindNorm:
-		_, err := ParseChoice("", tok, names(NormKinds()))
-		return err == nil
-	case KindBlock:
-		_, err := strconv.Atoi(strings.TrimPrefix(tok, "×"))
-		return err == nil
-	case KindConv, KindDeconv, KindDense, KindDropout, KindPoolTo, KindUpsample, KindReshape:
-		return tok[0] >= '0' && tok[0] <= '9' || tok[0] == '.'
+	case TRef:
+		return true
 	}
-	return true
+	tok = strings.TrimPrefix(tok, p.Quick)
+	return tok != "" && (tok[0] >= '0' && tok[0] <= '9' || tok[0] == '.')
 }
 
-// setMain applies the kind's main value (empty when left out).
-func setMain(l *Layer, v string) error {
-	need := func(what string) error {
-		if v == "" {
-			return fmt.Errorf("%w: %s needs %s", ErrQuick, l.Kind, what)
+// quickOption applies one option token such as "k3", "same" or "nobias"
+// and returns the index of the field it set. Words are tried before
+// prefixes, so that "same" is not read as a stride.
+func (s *Spec) quickOption(l *Layer, t string) (int, error) {
+	for i := range s.Params {
+		p := &s.Params[i]
+		if v, ok := p.quickWord(t); ok {
+			p.set(l, v)
+			return i, nil
 		}
-		return nil
 	}
-	wrap := func(err error) error {
-		if err != nil {
-			return fmt.Errorf("%w: %v", ErrQuick, err)
+	best := -1
+	for i := range s.Params {
+		p := &s.Params[i]
+		if p.Quick != "" && strings.HasPrefix(t, p.Quick) && (best < 0 || len(p.Quick) > len(s.Params[best].Quick)) {
+			best = i
 		}
-		return nil
 	}
-	var err error
-	switch l.Kind {
-	case KindConv, KindDeconv:
-		if err = need("a filter count, e.g. " + l.Kind.String() + " 64 k3"); err != nil {
-			return err
+	if best < 0 {
+		for i := range s.Params {
+			if p := &s.Params[i]; p.QuickBare && t != "" && (t[0] >= '0' && t[0] <= '9' || t[0] == '.') {
+				best = i
+				break
+			}
 		}
-		l.Filters, err = ParseInt("filters", v, 1, MaxChannels)
-	case KindDense:
-		if err = need("a unit count, e.g. dense 10"); err != nil {
-			return err
-		}
-		l.Filters, err = ParseInt("units", v, 1, MaxChannels)
-	case KindPool:
-		if err = need("max or avg, e.g. pool max k2"); err != nil {
-			return err
-		}
-		l.Pool = PoolMode(map[string]int{"max": 0, "avg": 1}[v])
-	case KindGlobalPool:
-		l.Pool = PoolAvg
-		if v == "max" {
-			l.Pool = PoolMax
-		}
-	case KindPoolTo:
-		if err = need("an output size, e.g. pool-to 7"); err != nil {
-			return err
-		}
-		l.Size, err = ParsePair("size", v, 1, MaxSpatial)
-	case KindUpsample:
-		if err = need("a factor, e.g. upsample 2"); err != nil {
-			return err
-		}
-		l.Factor, err = ParsePair("factor", v, 1, MaxFactor)
-	case KindNorm:
-		if err = need("a type: batch, group, instance or layer"); err != nil {
-			return err
-		}
-		i, _ := ParseChoice("type", v, names(NormKinds()))
-		l.Norm = NormKind(i)
-	case KindAct:
-		if err = need("a function: " + strings.Join(names(ActKinds()), ", ")); err != nil {
-			return err
-		}
-		i, _ := ParseChoice("function", v, names(ActKinds()))
-		l.Act = ActKind(i)
-	case KindDropout:
-		if err = need("a rate, e.g. dropout 0.3"); err != nil {
-			return err
-		}
-		l.Rate, err = ParseRate("rate", v)
-	case KindReshape:
-		if err = need("a target, e.g. reshape 1024x4x4"); err != nil {
-			return err
-		}
-		l.Target, err = ParseShape("target", v)
-	case KindBlock:
-		l.Repeat = 1
-		if v != "" {
-			l.Repeat, err = ParseInt("repeat", strings.TrimPrefix(v, "×"), 1, MaxRepeat)
-		}
-	case KindConcat, KindAdd:
-		if err = need("the name of an earlier layer, e.g. " + l.Kind.String() + " skip1"); err != nil {
-			return err
-		}
-		if !ValidName(v) {
-			return fmt.Errorf("%w: %q is not a layer name", ErrQuick, v)
-		}
-		l.From = v
 	}
-	return wrap(err)
+	if best < 0 {
+		return 0, fmt.Errorf("%w: %q does not apply to %s; see the help (?) for its options", ErrQuick, t, s.Key)
+	}
+	p := &s.Params[best]
+	v, err := p.Parse(strings.TrimPrefix(t, p.Quick))
+	if err != nil {
+		return 0, fmt.Errorf("%w: %v", ErrQuick, err)
+	}
+	if p.Type == TPad && v.Pad.Mode != PadExplicit {
+		return 0, fmt.Errorf("%w: %q does not apply to %s; write same or valid alone", ErrQuick, t, s.Key)
+	}
+	p.set(l, v)
+	return best, nil
 }
 
-// quickOption applies one option token such as "k3", "s2", "same", "nobias".
-func quickOption(l *Layer, t string) error {
-	bad := func() error {
-		return fmt.Errorf("%w: %q does not apply to %s; see the help (?) for its options", ErrQuick, t, l.Kind)
+// quickWord reads t when it is one of the field's words.
+func (p *Param) quickWord(t string) (Value, bool) {
+	for i, w := range p.Words {
+		if w == "" || w != t {
+			continue
+		}
+		switch p.Type {
+		case TBool:
+			return Value{Bool: i == 1}, true
+		case TToggle, TChoice:
+			return Value{Int: int64(i)}, true
+		case TPad:
+			return Value{Pad: Padding{Mode: PadMode(i + 1)}}, true
+		case TGroups:
+			return Value{Bool: true}, true
+		}
 	}
-	wrap := func(err error) error {
-		if err != nil {
-			return fmt.Errorf("%w: %v", ErrQuick, err)
+	if p.Type == TChoice && p.Words == nil && p.Quick == "" {
+		for i, c := range p.Choices {
+			if c == t {
+				return Value{Int: int64(i)}, true
+			}
 		}
-		return nil
 	}
-	spatial := l.Kind == KindConv || l.Kind == KindDeconv || l.Kind == KindPool
-	conv := l.Kind == KindConv || l.Kind == KindDeconv
-	var err error
-	switch {
-	case t == "nobias" && l.Kind.HasWeights():
-		l.NoBias = true
-	case (t == "same" || t == "valid") && conv:
-		l.Pad, err = ParsePadding("pad", t)
-	case t == "dw" && conv:
-		l.Depthwise = true
-	case t == "ceil" && l.Kind == KindPool:
-		l.Ceil = true
-	case (t == "bilinear" || t == "nearest") && l.Kind == KindUpsample:
-		l.Upsample = UpNearest
-		if t == "bilinear" {
-			l.Upsample = UpBilinear
-		}
-	case (t == "affine" || t == "noaffine") && l.Kind == KindNorm:
-		l.Affine = On
-		if t == "noaffine" {
-			l.Affine = Off
-		}
-	case t == "crop" && l.Kind.IsMerge():
-		l.Crop = true
-	case t == "residual" && l.Kind == KindBlock:
-		l.Residual = true
-	case t == "strides-all" && l.Kind == KindBlock:
-		l.AllStrides = true
-	case strings.HasPrefix(t, "then ") && l.Kind == KindBlock:
-		i, perr := ParseChoice("then", strings.TrimPrefix(t, "then "), names(ActKinds()))
-		if perr != nil {
-			return wrap(perr)
-		}
-		l.PostAct, l.HasPostAct = ActKind(i), true
-	case strings.HasPrefix(t, "op") && l.Kind == KindDeconv:
-		l.OutPad, err = ParsePair("out-pad", t[2:], 0, MaxWindow)
-	case strings.HasPrefix(t, "k") && spatial:
-		l.Kernel, err = ParsePair("kernel", t[1:], 1, MaxWindow)
-	case strings.HasPrefix(t, "s") && spatial:
-		l.Stride, err = ParsePair("stride", t[1:], 1, MaxWindow)
-	case strings.HasPrefix(t, "p") && spatial:
-		var p Pair
-		p, err = ParsePair("pad", t[1:], 0, MaxWindow)
-		l.Pad = Padding{Size: p}
-	case strings.HasPrefix(t, "d") && conv:
-		l.Dilation, err = ParsePair("dilation", t[1:], 1, MaxWindow)
-	case strings.HasPrefix(t, "g") && conv:
-		l.Groups, err = ParseInt("groups", t[1:], 1, MaxChannels)
-	case strings.HasPrefix(t, "g") && l.Kind == KindNorm:
-		l.NormGroups, err = ParseInt("groups", t[1:], 1, MaxChannels)
-	case l.Kind == KindAct && l.Act == ActLeakyReLU:
-		v, perr := strconv.ParseFloat(t, 64)
-		if perr != nil || v < 0 || v >= 1e6 {
-			return bad()
-		}
-		l.Slope = v
-	default:
-		return bad()
-	}
-	return wrap(err)
+	return Value{}, false
 }
 
 // joinThen joins "then" with the token after it ("then relu").
@@ -272,47 +180,13 @@ func joinThen(toks []string) []string {
 	return out
 }
 
-// CompleteKind returns the kind names that start with prefix, sorted.
-func CompleteKind(prefix string) []string {
+// kindsWithPrefix returns the kind keys that start with prefix.
+func kindsWithPrefix(prefix string) []string {
 	var out []string
 	for _, n := range names(Kinds()) {
 		if strings.HasPrefix(n, strings.ToLower(prefix)) {
 			out = append(out, n)
 		}
 	}
-	sort.Strings(out)
 	return out
-}
-
-// NewLayer returns a layer of kind k with the defaults the editor inserts,
-// sized for an input with c channels.
-func NewLayer(k Kind, c int64) Layer {
-	c = max(c, 1)
-	switch k {
-	case KindConv:
-		return Layer{Kind: k, Filters: c, Kernel: Square(3), Pad: Padding{Size: Square(1)}}
-	case KindDeconv:
-		return Layer{Kind: k, Filters: max(c/2, 1), Kernel: Square(4), Stride: Square(2), Pad: Padding{Size: Square(1)}}
-	case KindPool:
-		return Layer{Kind: k, Pool: PoolMax, Kernel: Square(2)}
-	case KindGlobalPool:
-		return Layer{Kind: k, Pool: PoolAvg}
-	case KindPoolTo:
-		return Layer{Kind: k, Size: Square(7)}
-	case KindUpsample:
-		return Layer{Kind: k, Factor: Square(2)}
-	case KindNorm:
-		return Layer{Kind: k, Norm: NormBatch}
-	case KindDropout:
-		return Layer{Kind: k, Rate: 0.2}
-	case KindDense:
-		return Layer{Kind: k, Filters: 10}
-	case KindReshape:
-		return Layer{Kind: k, Target: Shape{c, 1, 1}}
-	case KindBlock:
-		return Layer{Kind: k, Repeat: 1}
-	case KindConcat, KindAdd:
-		return Layer{Kind: k}
-	}
-	return Layer{Kind: k}
 }

@@ -6,101 +6,82 @@ import (
 )
 
 // Summary writes a layer as one short line, e.g. "conv 64 k3 s2 p1" or
-// "pool max k3 s2 ceil". Fields at their defaults are left out.
+// "pool max k3 s2 ceil": the kind, its main value, then the fields that
+// differ from their defaults in their quick-entry form. ParseQuick reads
+// it back.
 func Summary(l *Layer) string {
+	n := l.Normalized()
+	sp := SpecOf(n.Kind)
 	var b strings.Builder
-	b.WriteString(l.Kind.String())
-	word := func(s string) { b.WriteByte(' '); b.WriteString(s) }
-	num := func(prefix string, p Pair) { word(prefix + pairText(p)) }
-	switch l.Kind {
-	case KindConv, KindDeconv, KindDense:
-		word(strconv.FormatInt(l.Filters, 10))
-	case KindPool, KindGlobalPool:
-		word(l.Pool.String())
-	case KindPoolTo:
-		word(pairText(l.Size))
-	case KindUpsample:
-		word(pairText(l.Factor))
-		if l.Upsample == UpBilinear {
-			word("bilinear")
-		}
-	case KindNorm:
-		word(l.Norm.String())
-		if l.Norm == NormGroup {
-			word("g" + strconv.FormatInt(l.NormGroups, 10))
-		}
-		if l.Affine == On && l.Norm == NormInstance {
-			word("affine")
-		} else if l.Affine == Off && l.Norm != NormInstance {
-			word("noaffine")
-		}
-	case KindAct:
-		word(l.Act.String())
-		if l.Act == ActLeakyReLU && l.Slope != 0 {
-			word(strconv.FormatFloat(l.Slope, 'g', -1, 64))
-		}
-	case KindDropout:
-		word(strconv.FormatFloat(l.Rate, 'g', -1, 64))
-	case KindBlock:
-		word("×" + strconv.FormatInt(max(l.Repeat, 1), 10))
-		if l.Residual {
-			word("residual")
-			if l.HasPostAct {
-				word("then " + l.PostAct.String())
-			}
-		}
-		if l.AllStrides {
-			word("strides-all")
-		}
-	case KindConcat, KindAdd:
-		if l.From != "" {
-			word(l.From)
-		}
-		if l.Crop {
-			word("crop")
-		}
-	case KindReshape:
-		word(strconv.FormatInt(l.Target.C, 10) + "x" + strconv.FormatInt(l.Target.H, 10) + "x" + strconv.FormatInt(l.Target.W, 10))
-	}
-	switch l.Kind {
-	case KindConv, KindDeconv, KindPool:
-		num("k", l.Kernel)
-		if s := l.stride(); (l.Kind == KindPool && s != l.Kernel) || (l.Kind != KindPool && s != Square(1)) {
-			num("s", s)
-		}
-		switch l.Pad.Mode {
-		case PadSame:
-			word("same")
-		case PadValid:
-			word("valid")
-		default:
-			if !l.Pad.Size.IsZero() {
-				num("p", l.Pad.Size)
-			}
+	b.WriteString(sp.Key)
+	word := func(s string) {
+		if s != "" {
+			b.WriteByte(' ')
+			b.WriteString(s)
 		}
 	}
-	switch l.Kind {
-	case KindConv, KindDeconv:
-		if d := l.dilation(); d != Square(1) {
-			num("d", d)
-		}
-		if l.Depthwise {
-			word("dw")
-		} else if l.Groups > 1 {
-			word("g" + strconv.FormatInt(l.Groups, 10))
-		}
-		if l.Kind == KindDeconv && !l.OutPad.IsZero() {
-			num("op", l.OutPad)
-		}
-	case KindPool:
-		if l.Ceil {
-			word("ceil")
+	if m := sp.Main; m != nil {
+		if v := m.get(&n); m.Type != TRef || v.Text != "" {
+			word(m.Quick + m.Text(v))
 		}
 	}
-	if l.Kind.HasWeights() && l.NoBias {
-		word("nobias")
+	for i := range sp.Params {
+		p := &sp.Params[i]
+		if p.Applies(&n) && (p.Required || !p.IsDefault(&n)) {
+			word(p.quickText(p.get(&n)))
+		}
 	}
 	return b.String()
+}
+
+// quickText writes a field's value as quick entry reads it, or "" when the
+// field has no quick-entry form.
+func (p *Param) quickText(v Value) string {
+	switch p.Type {
+	case TBool:
+		return wordAt(p.Words, v.Bool)
+	case TToggle:
+		return wordOf(p.Words, int(v.Int))
+	case TChoice:
+		if p.Quick != "" {
+			return p.Quick + p.Text(v)
+		}
+		if p.Words == nil {
+			return p.Text(v)
+		}
+		return wordOf(p.Words, int(v.Int))
+	case TPad:
+		if v.Pad.Mode != PadExplicit {
+			return wordOf(p.Words, int(v.Pad.Mode)-1)
+		}
+		return p.Quick + pairText(v.Pad.Size)
+	case TGroups:
+		if v.Bool {
+			return wordOf(p.Words, 0)
+		}
+	case TFloat:
+		if p.QuickBare {
+			return p.Text(v)
+		}
+	}
+	if p.Quick == "" {
+		return ""
+	}
+	return p.Quick + p.Text(v)
+}
+
+func wordOf(words []string, i int) string {
+	if i < 0 || i >= len(words) {
+		return ""
+	}
+	return words[i]
+}
+
+func wordAt(words []string, b bool) string {
+	if b {
+		return wordOf(words, 1)
+	}
+	return wordOf(words, 0)
 }
 
 // RowSummary is Summary of the layer as the row computed it: in later

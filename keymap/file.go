@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"os"
-	"path/filepath"
 	"sort"
 	"strings"
 
@@ -15,24 +14,9 @@ import (
 // ErrKeys is wrapped by every error about a keys file.
 var ErrKeys = errors.New("bad keys file")
 
-// EnvPath names the environment variable that points at a keys file.
+// EnvPath names the environment variable that points at a keys file; the
+// command line reads it (ui/store.Locate works out the keys file's path).
 const EnvPath = "STACKFIT_KEYS"
-
-// DefaultPath returns where the keys file is looked for: $STACKFIT_KEYS,
-// else $XDG_CONFIG_HOME/stackfit/keys.yaml, else
-// ~/.config/stackfit/keys.yaml.
-func DefaultPath() string {
-	if p := os.Getenv(EnvPath); p != "" {
-		return p
-	}
-	if d := os.Getenv("XDG_CONFIG_HOME"); d != "" {
-		return filepath.Join(d, "stackfit", "keys.yaml")
-	}
-	if h, err := os.UserHomeDir(); err == nil {
-		return filepath.Join(h, ".config", "stackfit", "keys.yaml")
-	}
-	return ""
-}
 
 // LoadFile reads overrides from path into a copy of base. A missing file is
 // no error (base comes back unchanged).

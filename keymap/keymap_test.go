@@ -99,8 +99,4 @@ func TestLoadFile(t *testing.T) {
 	if _, err := LoadFile(p, DefaultKeyMap()); err == nil || !strings.HasPrefix(err.Error(), p+": ") {
 		t.Errorf("error does not name the file: %v", err)
 	}
-	t.Setenv(EnvPath, "/x/keys.yaml")
-	if DefaultPath() != "/x/keys.yaml" {
-		t.Error("STACKFIT_KEYS ignored")
-	}
 }

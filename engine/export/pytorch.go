@@ -151,15 +151,6 @@ func ident(p engine.Path) string {
 	return s
 }
 
-func tuple(p engine.Pair) string { return fmt.Sprintf("(%d, %d)", p.H, p.W) }
-
-func pyBool(b bool) string {
-	if b {
-		return "True"
-	}
-	return "False"
-}
-
 // tap returns the variable holding a named output, creating it.
 func (g *gen) tap(name string) string {
 	if v, ok := g.taps[name]; ok {
@@ -232,7 +223,8 @@ func (g *gen) residual(saved string) {
 	}
 }
 
-// row emits the next row: a module in __init__ and its call in forward.
+// row emits the next row by its kind's PyTorch form: a module in __init__
+// and its call in forward, or an expression of x in forward.
 func (g *gen) row() {
 	if g.next >= len(g.r.Rows) {
 		g.fail("more layers than rows")
@@ -240,135 +232,38 @@ func (g *gen) row() {
 	}
 	row := &g.r.Rows[g.next]
 	g.next++
-	l := row.Layer
+	t, ok := engine.SpecOf(row.Layer.Kind).Torch(row)
+	if !ok || t.Module == "" && t.Expr == "" {
+		g.fail("layer %s (%s) has no PyTorch form", row.Path, row.Layer.Kind)
+		return
+	}
 	id := ident(row.Path)
-	switch l.Kind {
-	case engine.KindFlatten:
-		g.fwd = append(g.fwd, "x = x.reshape(x.shape[0], -1, 1, 1)")
-		return
-	case engine.KindReshape:
-		g.fwd = append(g.fwd, fmt.Sprintf("x = x.reshape(x.shape[0], %d, %d, %d)", l.Target.C, l.Target.H, l.Target.W))
-		return
-	case engine.KindConcat, engine.KindAdd:
-		other, ok := g.taps[l.From]
-		if !ok {
-			g.fail("row %s merges an unknown output", row.Path)
-			return
+	if t.Expr != "" {
+		if strings.Contains(t.Expr, engine.OtherVar) {
+			other, ok := g.taps[row.Layer.From]
+			if !ok {
+				g.fail("row %s merges an unknown output", row.Path)
+				return
+			}
+			t.Expr = strings.ReplaceAll(t.Expr, engine.OtherVar, other)
 		}
-		a, b := "x", other
-		if l.Crop {
-			a = fmt.Sprintf("center_crop(x, %d, %d)", row.Out.H, row.Out.W)
-			b = fmt.Sprintf("center_crop(%s, %d, %d)", other, row.Out.H, row.Out.W)
-		}
-		if l.Kind == engine.KindConcat {
-			g.fwd = append(g.fwd, fmt.Sprintf("x = torch.cat([%s, %s], 1)", a, b))
-		} else {
-			g.fwd = append(g.fwd, fmt.Sprintf("x = %s + %s", a, b))
-		}
+		g.fwd = append(g.fwd, "x = "+t.Expr)
 		return
 	}
-	if l.Kind == engine.KindConv && l.Pad.Mode == engine.PadSame {
-		before, after := l.ResolvedPadding(row.In)
-		if row.Unstrided {
-			c := *l
-			c.Stride = engine.Pair{}
-			before, after = c.ResolvedPadding(row.In)
-		}
-		if before != after {
-			g.init = append(g.init, fmt.Sprintf("self.%s_pad = nn.ZeroPad2d((%d, %d, %d, %d))", id, before.W, after.W, before.H, after.H))
-			g.fwd = append(g.fwd, fmt.Sprintf("x = self.%s_pad(x)", id))
-		}
+	if t.Pad != "" {
+		g.init = append(g.init, fmt.Sprintf("self.%s_pad = %s", id, t.Pad))
+		g.fwd = append(g.fwd, fmt.Sprintf("x = self.%s_pad(x)", id))
 	}
-	g.init = append(g.init, fmt.Sprintf("self.%s = %s", id, g.module(row)))
+	g.init = append(g.init, fmt.Sprintf("self.%s = %s", id, t.Module))
 	g.fwd = append(g.fwd, fmt.Sprintf("x = self.%s(x)", id))
 }
 
-// module writes the constructor of a row's layer.
+// module writes the constructor of a row the residual block adds.
 func (g *gen) module(row *engine.Row) string {
-	l := row.Layer
-	in := row.In
-	stride := l.EffectiveStride()
-	if row.Unstrided {
-		stride = engine.Square(1)
+	t, ok := engine.SpecOf(row.Layer.Kind).Torch(row)
+	if !ok || t.Module == "" {
+		g.fail("layer %s (%s) has no PyTorch form", row.Path, row.Layer.Kind)
+		return "None"
 	}
-	switch l.Kind {
-	case engine.KindConv, engine.KindDeconv:
-		groups := max(l.Groups, 1)
-		if l.Depthwise {
-			groups = in.C
-		}
-		pad := "(0, 0)"
-		switch l.Pad.Mode {
-		case engine.PadExplicit:
-			pad = tuple(l.Pad.Size)
-		case engine.PadSame:
-			c := *l
-			if row.Unstrided {
-				c.Stride = engine.Pair{}
-			}
-			before, after := c.ResolvedPadding(in)
-			if before == after {
-				pad = tuple(before)
-			}
-		}
-		if l.Kind == engine.KindDeconv {
-			return fmt.Sprintf("nn.ConvTranspose2d(%d, %d, %s, stride=%s, padding=%s, output_padding=%s, groups=%d, bias=%s, dilation=%s)",
-				in.C, l.Filters, tuple(l.Kernel), tuple(stride), pad, tuple(l.OutPad), groups, pyBool(!l.NoBias), tuple(l.EffectiveDilation()))
-		}
-		return fmt.Sprintf("nn.Conv2d(%d, %d, %s, stride=%s, padding=%s, dilation=%s, groups=%d, bias=%s)",
-			in.C, l.Filters, tuple(l.Kernel), tuple(stride), pad, tuple(l.EffectiveDilation()), groups, pyBool(!l.NoBias))
-	case engine.KindPool:
-		kind := "MaxPool2d"
-		if l.Pool == engine.PoolAvg {
-			kind = "AvgPool2d"
-		}
-		return fmt.Sprintf("nn.%s(%s, stride=%s, padding=%s, ceil_mode=%s)", kind, tuple(l.Kernel), tuple(stride), tuple(l.Pad.Size), pyBool(l.Ceil))
-	case engine.KindGlobalPool:
-		if l.Pool == engine.PoolMax {
-			return "nn.AdaptiveMaxPool2d(1)"
-		}
-		return "nn.AdaptiveAvgPool2d(1)"
-	case engine.KindPoolTo:
-		return fmt.Sprintf("nn.AdaptiveAvgPool2d(%s)", tuple(l.Size))
-	case engine.KindUpsample:
-		if l.Upsample == engine.UpBilinear {
-			return fmt.Sprintf("nn.Upsample(scale_factor=(%d.0, %d.0), mode=\"bilinear\", align_corners=False)", l.Factor.H, l.Factor.W)
-		}
-		return fmt.Sprintf("nn.Upsample(scale_factor=(%d.0, %d.0), mode=\"nearest\")", l.Factor.H, l.Factor.W)
-	case engine.KindNorm:
-		affine := pyBool(l.Affine.Or(l.Norm != engine.NormInstance))
-		switch l.Norm {
-		case engine.NormGroup:
-			return fmt.Sprintf("nn.GroupNorm(%d, %d, affine=%s)", l.NormGroups, in.C, affine)
-		case engine.NormInstance:
-			return fmt.Sprintf("nn.InstanceNorm2d(%d, affine=%s)", in.C, affine)
-		case engine.NormLayer:
-			return fmt.Sprintf("ChannelLayerNorm(%d, affine=%s)", in.C, affine)
-		}
-		return fmt.Sprintf("nn.BatchNorm2d(%d, affine=%s)", in.C, affine)
-	case engine.KindAct:
-		switch l.Act {
-		case engine.ActLeakyReLU:
-			slope := l.Slope
-			if slope == 0 {
-				slope = 0.01
-			}
-			return fmt.Sprintf("nn.LeakyReLU(%s)", strconv.FormatFloat(slope, 'g', -1, 64))
-		case engine.ActGELU:
-			return "nn.GELU()"
-		case engine.ActSiLU:
-			return "nn.SiLU()"
-		case engine.ActSigmoid:
-			return "nn.Sigmoid()"
-		case engine.ActTanh:
-			return "nn.Tanh()"
-		}
-		return "nn.ReLU()"
-	case engine.KindDropout:
-		return fmt.Sprintf("nn.Dropout(%s)", strconv.FormatFloat(l.Rate, 'g', -1, 64))
-	case engine.KindDense:
-		return fmt.Sprintf("Dense(%d, %d, bias=%s)", in.C, l.Filters, pyBool(!l.NoBias))
-	}
-	g.fail("layer %s (%s) has no PyTorch form", row.Path, l.Kind)
-	return "None"
+	return t.Module
 }

@@ -4,6 +4,9 @@
 // its line and column, the field at fault and what the field accepts.
 // Saving writes one canonical form: loading a saved file and saving it again
 // gives the same bytes.
+//
+// The package works on bytes in memory and touches no file: reading a stack
+// file by path, atomic saves and the recovery journal are in ui/store.
 package stackfile
 
 import (

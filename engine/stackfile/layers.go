@@ -9,120 +9,8 @@ import (
 	"stackfit/engine"
 )
 
-// field is one key a layer kind accepts besides its kind key.
-type field struct {
-	key string
-	set func(d *decoder, n *yaml.Node, where string, l *engine.Layer)
-}
-
-// kindKeys lists the keys each kind accepts (after the kind key itself);
-// name and note are accepted everywhere.
-func kindKeys(k engine.Kind) []field {
-	switch k {
-	case engine.KindConv:
-		return []field{fKernel, fStride, fPad, fDilation, fGroups, fBias}
-	case engine.KindDeconv:
-		return []field{fKernel, fStride, fPad, fDilation, fGroups, fBias, fOutPad}
-	case engine.KindPool:
-		return []field{fKernel, fStride, fPad, fCeil}
-	case engine.KindUpsample:
-		return []field{fMode}
-	case engine.KindNorm:
-		return []field{fNormGroups, fAffine}
-	case engine.KindAct:
-		return []field{fSlope}
-	case engine.KindDense:
-		return []field{fBias}
-	case engine.KindBlock:
-		return []field{fResidual, fShortcutNorm, fPostAct, fStrides, {key: "layers"}}
-	case engine.KindConcat, engine.KindAdd:
-		return []field{fCrop}
-	}
-	return nil
-}
-
 // MaxBlockDepth is how deeply blocks may nest.
 const MaxBlockDepth = engine.MaxBlockDepth
-
-// maxRepeat bounds one block's repeat count.
-const maxRepeat = 1024
-
-var (
-	fKernel = field{"kernel", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		l.Kernel, _ = d.pair(n, w, 1, maxWindow)
-	}}
-	fStride = field{"stride", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		l.Stride, _ = d.pair(n, w, 1, maxWindow)
-	}}
-	fDilation = field{"dilation", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		l.Dilation, _ = d.pair(n, w, 1, maxWindow)
-	}}
-	fOutPad = field{"out-pad", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		l.OutPad, _ = d.pair(n, w, 0, maxWindow)
-	}}
-	fPad = field{"pad", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		if n.Kind == yaml.ScalarNode && n.Tag == "!!str" {
-			i, ok := d.choice(n, w, []string{"same", "valid"})
-			if ok {
-				l.Pad.Mode = engine.PadSame + engine.PadMode(i)
-			}
-			return
-		}
-		l.Pad.Size, _ = d.pair(n, w, 0, maxWindow)
-	}}
-	fGroups = field{"groups", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		if n.Kind == yaml.ScalarNode && n.Tag == "!!str" {
-			if _, ok := d.choice(n, w, []string{"depthwise"}); ok {
-				l.Depthwise = true
-			}
-			return
-		}
-		l.Groups, _ = d.int(n, w, 1, maxChannels)
-	}}
-	fBias = field{"bias", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		b, ok := d.bool(n, w)
-		l.NoBias = ok && !b
-	}}
-	fCeil = field{"ceil", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		l.Ceil, _ = d.bool(n, w)
-	}}
-	fMode = field{"mode", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		i, _ := d.choice(n, w, []string{"nearest", "bilinear"})
-		l.Upsample = engine.UpsampleMode(i)
-	}}
-	fNormGroups = field{"groups", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		l.NormGroups, _ = d.int(n, w, 1, maxChannels)
-	}}
-	fAffine = field{"affine", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		if b, ok := d.bool(n, w); ok {
-			l.Affine = engine.Off
-			if b {
-				l.Affine = engine.On
-			}
-		}
-	}}
-	fResidual = field{"residual", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		l.Residual, _ = d.bool(n, w)
-	}}
-	fShortcutNorm = field{"shortcut-norm", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		b, ok := d.bool(n, w)
-		l.NoShortcutNorm = ok && !b
-	}}
-	fPostAct = field{"after", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		i, ok := d.choice(n, w, names(engine.ActKinds()))
-		l.PostAct, l.HasPostAct = engine.ActKind(i), ok
-	}}
-	fStrides = field{"strides", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		i, _ := d.choice(n, w, []string{"first", "all"})
-		l.AllStrides = i == 1
-	}}
-	fCrop = field{"crop", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		l.Crop, _ = d.bool(n, w)
-	}}
-	fSlope = field{"slope", func(d *decoder, n *yaml.Node, w string, l *engine.Layer) {
-		l.Slope, _ = d.float(n, w, 0, 1e6)
-	}}
-)
 
 // kindNames lists every kind key.
 func kindNames() []string { return names(engine.Kinds()) }
@@ -168,15 +56,15 @@ func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
 		return l
 	}
 	if n.Kind == yaml.ScalarNode {
-		switch n.Value {
-		case "flatten":
-			l.Kind = engine.KindFlatten
-		case "global-pool":
-			l.Kind = engine.KindGlobalPool
-			l.Pool = engine.PoolAvg
-		default:
-			d.badKind(n, where, n.Value)
+		k, ok := engine.KindByName(n.Value)
+		if sp := engine.SpecOf(k); ok && sp.Bare {
+			l.Kind = k
+			if sp.Main != nil {
+				sp.Main.Set(&l, sp.Main.Default)
+			}
+			return l
 		}
+		d.badKind(n, where, n.Value)
 		return l
 	}
 	pairs := d.mapping(n, where, "a layer such as {conv: 32, kernel: 3}")
@@ -202,51 +90,76 @@ func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
 		return l
 	}
 	where = label + " (" + l.Kind.String() + ")"
-	d.kindValue(kindVal, where, &l)
-	fields := kindKeys(l.Kind)
-	var seen fieldsSeen
+	sp := engine.SpecOf(l.Kind)
+	d.kindValue(kindVal, where, sp, &l)
+	given := make([]bool, len(sp.Params))
+	var haveBody bool
 	for _, kv := range pairs {
 		k, v := kv[0], kv[1]
 		if k == kindNode {
 			continue
 		}
-		seen.mark(k.Value)
-		switch k.Value {
-		case "name":
+		switch {
+		case k.Value == "name":
 			d.layerName(v, where, &l)
 			continue
-		case "note":
+		case k.Value == "note":
 			l.Note, _ = d.text(v, where+" → note", MaxNoteLen)
 			continue
-		case "layers":
-			if l.Kind == engine.KindBlock {
-				if depth+1 >= MaxBlockDepth+1 {
-					d.fail(k, where, ErrNesting, "blocks nest %d deep here; the limit is %d — flatten an inner block", depth+1, MaxBlockDepth)
-					continue
-				}
-				l.Body = d.layerList(v, where+" → layers", label+" → ", depth+1)
+		case k.Value == "layers" && sp.Body:
+			haveBody = true
+			if depth+1 >= MaxBlockDepth+1 {
+				d.fail(k, where, ErrNesting, "blocks nest %d deep here; the limit is %d — flatten an inner block", depth+1, MaxBlockDepth)
 				continue
 			}
+			l.Body = d.layerList(v, where+" → layers", label+" → ", depth+1)
+			continue
 		}
-		known := false
-		for _, f := range fields {
-			if f.key == k.Value {
-				if v = d.deref(v, where); v != nil {
-					f.set(d, v, where+" → "+k.Value, &l)
-				}
-				known = true
-			}
+		i := paramIndex(sp, k.Value)
+		if i < 0 {
+			d.unknown(k, where, allowedKeys(sp))
+			continue
 		}
-		if !known {
-			allowed := []string{l.Kind.String()}
-			for _, f := range fields {
-				allowed = append(allowed, f.key)
-			}
-			d.unknown(k, where, append(allowed, "name", "note"))
+		given[i] = true
+		if v = d.deref(v, where); v != nil {
+			d.param(v, where+" → "+k.Value, &sp.Params[i], &l)
 		}
 	}
-	d.required(n, where, &l, seen)
+	if sp.Body && !haveBody {
+		d.fail(n, where, ErrMissing, "needs layers; add the block's layers under layers:")
+	}
+	for i := range sp.Params {
+		p := &sp.Params[i]
+		switch {
+		case given[i] && !p.Applies(&l):
+			d.fail(n, where, ErrUnknown, "%s", p.OnlyMsg)
+		case !given[i] && p.Required && p.Applies(&l):
+			d.fail(n, where, ErrMissing, "%s; add e.g. %s", p.Need, p.YAMLHint)
+		}
+	}
 	return l.Normalized()
+}
+
+// paramIndex returns the index of the kind's field with key, or −1.
+func paramIndex(sp *engine.Spec, key string) int {
+	for i := range sp.Params {
+		if sp.Params[i].Key == key {
+			return i
+		}
+	}
+	return -1
+}
+
+// allowedKeys lists the keys an item of the kind may hold, for messages.
+func allowedKeys(sp *engine.Spec) []string {
+	out := []string{sp.Key}
+	for i := range sp.Params {
+		out = append(out, sp.Params[i].Key)
+	}
+	if sp.Body {
+		out = append(out, "layers")
+	}
+	return append(out, "name", "note")
 }
 
 func (d *decoder) badKind(n *yaml.Node, where, got string) {
@@ -259,97 +172,76 @@ func (d *decoder) badKind(n *yaml.Node, where, got string) {
 }
 
 // kindValue reads the value of the kind key: the kind's main number or word.
-func (d *decoder) kindValue(v *yaml.Node, where string, l *engine.Layer) {
+func (d *decoder) kindValue(v *yaml.Node, where string, sp *engine.Spec, l *engine.Layer) {
 	v = d.deref(v, where)
 	if v == nil {
 		return
 	}
-	w := where + " → " + l.Kind.String()
-	switch l.Kind {
-	case engine.KindConv, engine.KindDeconv:
-		l.Filters, _ = d.int(v, w+" (filters)", 1, maxChannels)
-	case engine.KindDense:
-		l.Filters, _ = d.int(v, w+" (units)", 1, maxChannels)
-	case engine.KindPool, engine.KindGlobalPool:
-		i, _ := d.choice(v, w, []string{"max", "avg"})
-		l.Pool = engine.PoolMode(i)
-	case engine.KindPoolTo:
-		l.Size, _ = d.pair(v, w+" (output size)", 1, maxSpatial)
-	case engine.KindUpsample:
-		l.Factor, _ = d.pair(v, w+" (factor)", 1, maxFactor)
-	case engine.KindNorm:
-		i, _ := d.choice(v, w, names(engine.NormKinds()))
-		l.Norm = engine.NormKind(i)
-	case engine.KindAct:
-		i, _ := d.choice(v, w, names(engine.ActKinds()))
-		l.Act = engine.ActKind(i)
-	case engine.KindDropout:
-		l.Rate, _ = d.float(v, w+" (rate)", 0, 1)
-	case engine.KindFlatten:
+	w := where + " → " + sp.Key
+	m := sp.Main
+	if m == nil {
 		if !(v.Kind == yaml.ScalarNode && (v.Tag == "!!null" || v.Value == "true")) {
-			d.fail(v, w, ErrType, "takes no value; write just '- flatten'")
+			d.fail(v, w, ErrType, "takes no value; write just '- %s'", sp.Key)
 		}
-	case engine.KindReshape:
-		l.Target, _ = d.shape(v, w+" (target)")
-	case engine.KindBlock:
-		l.Repeat, _ = d.int(v, w+" (repeats)", 1, maxRepeat)
-	case engine.KindConcat, engine.KindAdd:
-		name, ok := d.text(v, w+" (layer name)", 1<<10)
-		if ok && !engine.ValidName(name) {
-			d.fail(v, w, ErrName, "%q is not a layer name; give the name of an earlier layer or block", name)
+		return
+	}
+	if m.Label != "" {
+		w += " (" + m.Label + ")"
+	}
+	d.param(v, w, m, l)
+}
+
+// param reads one field's value by its type and bounds.
+func (d *decoder) param(n *yaml.Node, w string, p *engine.Param, l *engine.Layer) {
+	var v engine.Value
+	ok := true
+	switch p.Type {
+	case engine.TInt:
+		v.Int, ok = d.int(n, w, p.Lo, p.Hi)
+	case engine.TPair:
+		v.Pair, ok = d.pair(n, w, p.Lo, p.Hi)
+	case engine.TFloat:
+		v.Float, ok = d.float(n, w, p.FLo, p.FHi)
+	case engine.TBool:
+		v.Bool, ok = d.bool(n, w)
+	case engine.TToggle:
+		var b bool
+		if b, ok = d.bool(n, w); b {
+			v.Int = int64(engine.On)
+		} else {
+			v.Int = int64(engine.Off)
+		}
+	case engine.TChoice:
+		var i int
+		i, ok = d.choice(n, w, p.Choices)
+		v.Int = int64(i)
+	case engine.TPad:
+		if n.Kind == yaml.ScalarNode && n.Tag == "!!str" {
+			var i int
+			if i, ok = d.choice(n, w, []string{"same", "valid"}); ok {
+				v.Pad.Mode = engine.PadSame + engine.PadMode(i)
+			}
+		} else {
+			v.Pad.Size, ok = d.pair(n, w, p.Lo, p.Hi)
+		}
+	case engine.TGroups:
+		if n.Kind == yaml.ScalarNode && n.Tag == "!!str" {
+			_, ok = d.choice(n, w, []string{"depthwise"})
+			v.Bool = ok
+		} else {
+			v.Int, ok = d.int(n, w, p.Lo, p.Hi)
+		}
+	case engine.TShape:
+		v.Shape, ok = d.shape(n, w)
+	case engine.TRef:
+		v.Text, ok = d.text(n, w, 1<<10)
+		if ok && !engine.ValidName(v.Text) {
+			d.fail(n, w, ErrName, "%q is not a layer name; give the name of an earlier layer or block", v.Text)
 			return
 		}
-		l.From = name
 	}
-}
-
-// fieldsSeen records which of the keys the checks in required look for
-// were given.
-type fieldsSeen struct{ kernel, groups, layers, shortcutNorm, slope bool }
-
-func (s *fieldsSeen) mark(key string) {
-	switch key {
-	case "kernel":
-		s.kernel = true
-	case "groups":
-		s.groups = true
-	case "layers":
-		s.layers = true
-	case "shortcut-norm":
-		s.shortcutNorm = true
-	case "slope":
-		s.slope = true
-	}
-}
-
-// required reports fields a kind cannot do without.
-func (d *decoder) required(n *yaml.Node, where string, l *engine.Layer, seen fieldsSeen) {
-	switch l.Kind {
-	case engine.KindConv, engine.KindDeconv, engine.KindPool:
-		if !seen.kernel {
-			d.fail(n, where, ErrMissing, "needs a kernel; add e.g. kernel: 3 or kernel: [3, 5]")
-		}
-	case engine.KindNorm:
-		if l.Norm == engine.NormGroup && !seen.groups {
-			d.fail(n, where, ErrMissing, "group norm needs groups; add e.g. groups: 32")
-		}
-		if l.Norm != engine.NormGroup && seen.groups {
-			d.fail(n, where, ErrUnknown, "groups applies only to group norm; remove it or write norm: group")
-		}
-	case engine.KindBlock:
-		if !seen.layers {
-			d.fail(n, where, ErrMissing, "needs layers; add the block's layers under layers:")
-		}
-		if l.HasPostAct && !l.Residual {
-			d.fail(n, where, ErrUnknown, "after (the activation after the addition) needs residual: true")
-		}
-		if seen.shortcutNorm && !l.Residual {
-			d.fail(n, where, ErrUnknown, "shortcut-norm needs residual: true")
-		}
-	case engine.KindAct:
-		if l.Act != engine.ActLeakyReLU && seen.slope {
-			d.fail(n, where, ErrUnknown, "slope applies only to leaky-relu; remove it or write act: leaky-relu")
-		}
+	if ok {
+		p.Set(l, v)
 	}
 }
 

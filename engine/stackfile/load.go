@@ -2,10 +2,8 @@ package stackfile
 
 import (
 	"bytes"
-	"errors"
 	"fmt"
 	"math"
-	"os"
 	"strconv"
 	"strings"
 
@@ -22,14 +20,13 @@ const Version = 1
 const (
 	MaxFileBytes = 8 << 20           // largest stack file accepted
 	MaxNameLen   = engine.MaxNameLen // longest layer name
-	MaxNoteLen   = 4096              // longest note
+	MaxNoteLen   = engine.MaxNoteLen // longest note
 	maxErrors    = 20                // problems reported before giving up
-	maxSpatial   = 1 << 20           // input height/width, pool-to sizes
-	maxChannels  = 1 << 24           // input channels, filters, units, reshape dims
-	maxWindow    = 1 << 16           // kernel, stride, dilation, padding
-	maxFactor    = 1 << 10           // upsampling factor
-	maxBatch     = 1 << 24           // training batch
 )
+
+// Layer fields are bounded by their kinds' descriptions in the engine;
+// shapes (the input, a reshape's target) by the engine's channel and
+// spatial limits.
 
 // Load parses a stack file from memory. The returned error is an ErrorList
 // (every problem found, each an *Error with line and column).
@@ -56,27 +53,6 @@ func Load(data []byte) (*engine.Stack, error) {
 		return nil, d.errs
 	}
 	return s, nil
-}
-
-// LoadFile reads and parses the stack file at path; errors carry the path.
-func LoadFile(path string) (*engine.Stack, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, fmt.Errorf("open stack file: %w", err)
-	}
-	defer f.Close()
-	data, err := readLimited(f, MaxFileBytes)
-	if err != nil {
-		return nil, fmt.Errorf("read %s: %w", path, err)
-	}
-	s, err := Load(data)
-	var list ErrorList
-	if errors.As(err, &list) {
-		for _, e := range list {
-			e.File = path
-		}
-	}
-	return s, err
 }
 
 // syntaxError converts a YAML parser error into an *Error with the line the
@@ -364,59 +340,65 @@ func (d *decoder) shape(n *yaml.Node, field string) (engine.Shape, bool) {
 		d.fail(n, field, ErrType, "expected [channels, height, width], e.g. [3, 224, 224]; found %s", describe(n))
 		return engine.Shape{}, false
 	}
-	c, ok1 := d.int(n.Content[0], field+" channels", 1, maxChannels)
-	h, ok2 := d.int(n.Content[1], field+" height", 1, maxSpatial)
-	w, ok3 := d.int(n.Content[2], field+" width", 1, maxSpatial)
+	c, ok1 := d.int(n.Content[0], field+" channels", 1, engine.MaxChannels)
+	h, ok2 := d.int(n.Content[1], field+" height", 1, engine.MaxSpatial)
+	w, ok3 := d.int(n.Content[2], field+" width", 1, engine.MaxSpatial)
 	return engine.Shape{C: c, H: h, W: w}, ok1 && ok2 && ok3
 }
 
 // TrainingKeys lists the keys of the training section.
-func TrainingKeys() []string {
-	return []string{"batch", "precision", "optimizer", "budget", "gpus", "shard", "accumulate", "checkpoint", "workspace", "overhead", "headroom"}
-}
+func TrainingKeys() []string { return engine.SettingKeys() }
 
+// training reads the training section. Keys, bounds and choices are those
+// of engine.Settings; the values are read as YAML scalars of their kind.
 func (d *decoder) training(n *yaml.Node) engine.Training {
 	var t engine.Training
+	settings := engine.Settings()
 	for _, kv := range d.mapping(n, "training", "training settings") {
 		k, v := kv[0], kv[1]
 		field := "training → " + k.Value
-		switch k.Value {
-		case "batch":
-			t.Batch, _ = d.int(v, field, 1, maxBatch)
-		case "precision":
-			i, _ := d.choice(v, field, names(engine.Precisions()))
-			t.Precision = engine.Precision(i)
-		case "optimizer":
-			i, _ := d.choice(v, field, names(engine.Optimizers()))
-			t.Optimizer = engine.Optimizer(i)
-		case "budget":
-			t.Budget = d.size(v, field)
-		case "workspace":
-			t.Workspace = d.size(v, field)
-		case "overhead":
-			t.Overhead = d.size(v, field)
-		case "gpus":
-			t.GPUs, _ = d.int(v, field, 1, 1<<16)
-		case "shard":
-			i, _ := d.choice(v, field, names(engine.Shards()))
-			t.Shard = engine.Shard(i)
-		case "accumulate":
-			t.Accumulate, _ = d.int(v, field, 1, 1<<16)
-		case "checkpoint":
-			t.Checkpoint, _ = d.int(v, field, 0, 1<<20)
-		case "headroom":
-			if s := d.scalar(v, field, "a share such as 10% or 0.1"); s != nil {
-				h, err := engine.ParseShare(s.Value)
-				if err != nil {
-					d.fail(s, field, ErrRange, "%v", err)
-				}
-				t.Headroom, t.HeadroomSet = h, err == nil
-			}
-		default:
+		s, ok := settingFor(settings, k.Value)
+		if !ok {
 			d.unknown(k, "training", TrainingKeys())
+			continue
+		}
+		var err error
+		switch s.Kind {
+		case engine.SettingCount:
+			if c, ok := d.int(v, field, s.Min, s.Max); ok {
+				err = s.SetNumber(&t, c)
+			}
+		case engine.SettingChoice:
+			if i, ok := d.choice(v, field, s.Options); ok {
+				err = s.SetOption(&t, i)
+			}
+		case engine.SettingSize:
+			err = s.SetNumber(&t, d.size(v, field))
+		case engine.SettingShare:
+			if sc := d.scalar(v, field, "a share such as 10% or 0.1"); sc != nil {
+				h, perr := engine.ParseShare(sc.Value)
+				if perr != nil {
+					d.fail(sc, field, ErrRange, "%v", perr)
+					break
+				}
+				err = s.SetShare(&t, h)
+			}
+		}
+		if err != nil { // the checks above are the setting's own, so this stays unreached
+			d.fail(v, field, ErrRange, "%v", err)
 		}
 	}
 	return t
+}
+
+// settingFor finds the setting named key in settings.
+func settingFor(settings []engine.Setting, key string) (engine.Setting, bool) {
+	for _, s := range settings {
+		if s.Key == key {
+			return s, true
+		}
+	}
+	return engine.Setting{}, false
 }
 
 // size reads a memory size such as 24GiB.

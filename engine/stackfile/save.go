@@ -3,7 +3,6 @@ package stackfile
 import (
 	"bytes"
 	"fmt"
-	"io"
 	"strconv"
 
 	"gopkg.in/yaml.v3"
@@ -121,40 +120,19 @@ func pairNode(p engine.Pair) *yaml.Node {
 	return flowSeq(intNode(p.H), intNode(p.W))
 }
 
+// training writes the training settings that are set, in the order of
+// engine.Settings; nil when none is.
 func training(t engine.Training) *yaml.Node {
 	m := &yaml.Node{Kind: yaml.MappingNode}
-	if t.Batch != 0 {
-		put(m, "batch", intNode(t.Batch))
-	}
-	if t.Precision != engine.FP32 {
-		put(m, "precision", strNode(t.Precision.String()))
-	}
-	if t.Optimizer != engine.SGD {
-		put(m, "optimizer", strNode(t.Optimizer.String()))
-	}
-	if t.Budget != 0 {
-		put(m, "budget", strNode(engine.FormatBytesExact(t.Budget)))
-	}
-	if t.GPUs > 1 {
-		put(m, "gpus", intNode(t.GPUs))
-	}
-	if t.Shard != engine.ShardNone {
-		put(m, "shard", strNode(t.Shard.String()))
-	}
-	if t.Accumulate > 1 {
-		put(m, "accumulate", intNode(t.Accumulate))
-	}
-	if t.Checkpoint > 0 {
-		put(m, "checkpoint", intNode(t.Checkpoint))
-	}
-	if t.Workspace != 0 {
-		put(m, "workspace", strNode(engine.FormatBytesExact(t.Workspace)))
-	}
-	if t.Overhead != 0 {
-		put(m, "overhead", strNode(engine.FormatBytesExact(t.Overhead)))
-	}
-	if t.HeadroomSet {
-		put(m, "headroom", strNode(engine.FormatShare(t.Headroom)))
+	for _, s := range engine.Settings() {
+		if s.IsDefault(t) {
+			continue
+		}
+		v := strNode(s.Format(t))
+		if s.Kind == engine.SettingCount {
+			v = &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!int", Value: s.Format(t)}
+		}
+		put(m, s.Key, v)
 	}
 	if len(m.Content) == 0 {
 		return nil
@@ -162,90 +140,31 @@ func training(t engine.Training) *yaml.Node {
 	return m
 }
 
-// layerNode writes one layer item, kind key first.
-func layerNode(l *engine.Layer) *yaml.Node {
-	if l.Kind == engine.KindFlatten && l.Name == "" && l.Note == "" {
-		return strNode("flatten")
+// layerNode writes one layer item, kind key first, then the fields that
+// differ from their defaults, name and note; a kind with a body writes its
+// fields after name and note so that the body comes last.
+func layerNode(orig *engine.Layer) *yaml.Node {
+	l := orig.Normalized()
+	sp := engine.SpecOf(l.Kind)
+	if sp.Bare && sp.Main == nil && l.Name == "" && l.Note == "" {
+		return strNode(sp.Key)
 	}
 	m := &yaml.Node{Kind: yaml.MappingNode}
-	k := l.Kind.String()
-	switch l.Kind {
-	case engine.KindConv, engine.KindDeconv, engine.KindDense:
-		put(m, k, intNode(l.Filters))
-	case engine.KindPool, engine.KindGlobalPool:
-		put(m, k, strNode(l.Pool.String()))
-	case engine.KindPoolTo:
-		put(m, k, pairNode(l.Size))
-	case engine.KindUpsample:
-		put(m, k, pairNode(l.Factor))
-	case engine.KindNorm:
-		put(m, k, strNode(l.Norm.String()))
-	case engine.KindAct:
-		put(m, k, strNode(l.Act.String()))
-	case engine.KindDropout:
-		put(m, k, floatNode(l.Rate))
-	case engine.KindFlatten:
-		put(m, k, &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!null", Value: ""})
-	case engine.KindReshape:
-		put(m, k, flowSeq(intNode(l.Target.C), intNode(l.Target.H), intNode(l.Target.W)))
-	case engine.KindBlock:
-		put(m, k, intNode(max(l.Repeat, 1)))
-	case engine.KindConcat, engine.KindAdd:
-		put(m, k, strNode(l.From))
+	if sp.Main != nil {
+		put(m, sp.Key, valueNode(sp.Main, sp.Main.Get(&l)))
+	} else {
+		put(m, sp.Key, &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!null", Value: ""})
 	}
-	switch l.Kind {
-	case engine.KindConv, engine.KindDeconv, engine.KindPool:
-		put(m, "kernel", pairNode(l.Kernel))
-		if !l.Stride.IsZero() && (l.Kind == engine.KindPool && l.Stride != l.Kernel || l.Kind != engine.KindPool && l.Stride != engine.Square(1)) {
-			put(m, "stride", pairNode(l.Stride))
-		}
-		switch {
-		case l.Pad.Mode == engine.PadSame:
-			put(m, "pad", strNode("same"))
-		case l.Pad.Mode == engine.PadValid:
-			put(m, "pad", strNode("valid"))
-		case !l.Pad.Size.IsZero():
-			put(m, "pad", pairNode(l.Pad.Size))
+	fields := func() {
+		for i := range sp.Params {
+			p := &sp.Params[i]
+			if p.Applies(&l) && (p.Required || !p.IsDefault(&l)) {
+				put(m, p.Key, valueNode(p, p.Get(&l)))
+			}
 		}
 	}
-	switch l.Kind {
-	case engine.KindConv, engine.KindDeconv:
-		if !l.Dilation.IsZero() && l.Dilation != engine.Square(1) {
-			put(m, "dilation", pairNode(l.Dilation))
-		}
-		if l.Depthwise {
-			put(m, "groups", strNode("depthwise"))
-		} else if l.Groups > 1 {
-			put(m, "groups", intNode(l.Groups))
-		}
-		if l.Kind == engine.KindDeconv && !l.OutPad.IsZero() {
-			put(m, "out-pad", pairNode(l.OutPad))
-		}
-	case engine.KindPool:
-		if l.Ceil {
-			put(m, "ceil", boolNode(true))
-		}
-	case engine.KindUpsample:
-		if l.Upsample != engine.UpNearest {
-			put(m, "mode", strNode(l.Upsample.String()))
-		}
-	case engine.KindNorm:
-		if l.Norm == engine.NormGroup {
-			put(m, "groups", intNode(l.NormGroups))
-		}
-		if l.Affine != engine.Unset {
-			put(m, "affine", boolNode(l.Affine == engine.On))
-		}
-	case engine.KindAct:
-		if l.Act == engine.ActLeakyReLU && l.Slope != 0 {
-			put(m, "slope", floatNode(l.Slope))
-		}
-	}
-	if l.Kind.HasWeights() && l.NoBias {
-		put(m, "bias", boolNode(false))
-	}
-	if l.Kind.IsMerge() && l.Crop {
-		put(m, "crop", boolNode(true))
+	if !sp.Body {
+		fields()
 	}
 	if l.Name != "" {
 		put(m, "name", strNode(l.Name))
@@ -253,19 +172,8 @@ func layerNode(l *engine.Layer) *yaml.Node {
 	if l.Note != "" {
 		put(m, "note", strNode(l.Note))
 	}
-	if l.Kind == engine.KindBlock {
-		if l.Residual {
-			put(m, "residual", boolNode(true))
-			if l.NoShortcutNorm {
-				put(m, "shortcut-norm", boolNode(false))
-			}
-			if l.HasPostAct {
-				put(m, "after", strNode(l.PostAct.String()))
-			}
-		}
-		if l.AllStrides {
-			put(m, "strides", strNode("all"))
-		}
+	if sp.Body {
+		fields()
 		put(m, "layers", layerSeq(l.Body))
 		return m
 	}
@@ -275,14 +183,34 @@ func layerNode(l *engine.Layer) *yaml.Node {
 	return m
 }
 
-// readLimited reads r to the end, failing once more than limit bytes come.
-func readLimited(r io.Reader, limit int64) ([]byte, error) {
-	data, err := io.ReadAll(io.LimitReader(r, limit+1))
-	if err != nil {
-		return nil, err
+// valueNode writes a field's value by its type.
+func valueNode(p *engine.Param, v engine.Value) *yaml.Node {
+	switch p.Type {
+	case engine.TInt:
+		return intNode(v.Int)
+	case engine.TPair:
+		return pairNode(v.Pair)
+	case engine.TFloat:
+		return floatNode(v.Float)
+	case engine.TBool:
+		return boolNode(v.Bool)
+	case engine.TToggle:
+		return boolNode(engine.Toggle(v.Int) == engine.On)
+	case engine.TPad:
+		switch v.Pad.Mode {
+		case engine.PadSame:
+			return strNode("same")
+		case engine.PadValid:
+			return strNode("valid")
+		}
+		return pairNode(v.Pad.Size)
+	case engine.TGroups:
+		if v.Bool {
+			return strNode("depthwise")
+		}
+		return intNode(v.Int)
+	case engine.TShape:
+		return flowSeq(intNode(v.Shape.C), intNode(v.Shape.H), intNode(v.Shape.W))
 	}
-	if int64(len(data)) > limit {
-		return nil, fmt.Errorf("%w: over %d bytes (8 MiB)", ErrTooLarge, limit)
-	}
-	return data, nil
+	return strNode(p.Text(v)) // TChoice, TRef
 }

@@ -191,45 +191,6 @@ func TestLoadErrors(t *testing.T) {
 	}
 }
 
-// TestLoadFileNamesFile checks that file errors carry the path.
-func TestLoadFileNamesFile(t *testing.T) {
-	p := filepath.Join(t.TempDir(), "bad.yaml")
-	os.WriteFile(p, []byte("stackfit: 1\ninput: [3, 8, 8]\nlayers: [{dense: x}]\n"), 0o644)
-	_, err := LoadFile(p)
-	if err == nil || !strings.HasPrefix(err.Error(), p+":3:18: layer 1 (dense)") {
-		t.Errorf("err = %v", err)
-	}
-	if _, err := LoadFile(filepath.Join(t.TempDir(), "missing.yaml")); err == nil || !strings.Contains(err.Error(), "no such file") {
-		t.Errorf("missing file: %v", err)
-	}
-}
-
-// TestAtomicWrite checks that a save replaces the file whole, keeps its
-// permissions, and leaves the old file alone when it cannot write.
-func TestAtomicWrite(t *testing.T) {
-	dir := t.TempDir()
-	p := filepath.Join(dir, "net.yaml")
-	if err := WriteFileAtomic(p, []byte("one"), 0o600); err != nil {
-		t.Fatal(err)
-	}
-	os.Chmod(p, 0o640)
-	if err := WriteFileAtomic(p, []byte("two"), 0o644); err != nil {
-		t.Fatal(err)
-	}
-	got, _ := os.ReadFile(p)
-	info, _ := os.Stat(p)
-	if string(got) != "two" || info.Mode().Perm() != 0o640 {
-		t.Errorf("content %q mode %v", got, info.Mode().Perm())
-	}
-	entries, _ := os.ReadDir(dir)
-	if len(entries) != 1 {
-		t.Errorf("temporary files left: %v", entries)
-	}
-	if err := WriteFileAtomic(filepath.Join(dir, "no-such-dir", "x.yaml"), []byte("x"), 0o644); err == nil {
-		t.Error("write into a missing folder succeeded")
-	}
-}
-
 // TestFreeTextRoundTrip: stack names and notes (free text a user types in
 // the editor) save and reload unchanged, wherever they sit in the file.
 // The cases are the corners of YAML block scalars (YAML 1.2, section 8.1:

@@ -15,6 +15,7 @@ import (
 	"stackfit/engine/examples"
 	"stackfit/engine/report"
 	"stackfit/engine/stackfile"
+	"stackfit/ui/store"
 )
 
 // Exit statuses.
@@ -73,7 +74,7 @@ func fileExists(p string) bool {
 	return err == nil
 }
 
-const usage = `stackfit — size a convolutional network before you write it
+var usage = `stackfit — size a convolutional network before you write it
 
 usage:
   stackfit                        edit the built-in example (fruit grader);
@@ -88,22 +89,7 @@ FILE may be '-' to read the stack from standard input (report, check, export).
 
 exit status: 0 clean · 1 the stack has errors or does not fit the budget
 (check --strict: or has warnings) · 2 bad usage or unreadable input
-` + trainingUsage
-
-const trainingUsage = `
-training flags (report, check, export; they override the file's training section):
-  --batch N            samples per optimizer step over all GPUs         e.g. --batch 256
-  --precision P        fp32, fp16-mixed, bf16-mixed or bf16             e.g. --precision bf16-mixed
-  --optimizer O        sgd, momentum, adam, adamw, adagrad or rmsprop  e.g. --optimizer adamw
-  --budget SIZE        GPU memory per device, or auto (nvidia-smi)      e.g. --budget 24GiB
-  --gpus N             data-parallel GPUs                               e.g. --gpus 8
-  --shard S            none, optimizer, gradients or parameters         e.g. --shard optimizer
-  --accumulate N       gradient-accumulation steps                      e.g. --accumulate 4
-  --checkpoint K       keep every K-th layer's output, recompute the rest  e.g. --checkpoint 6
-  --workspace SIZE     convolution workspace (default 256MiB)           e.g. --workspace 1GiB
-  --overhead SIZE      CUDA runtime overhead (default 512MiB)           e.g. --overhead 700MiB
-  --headroom SHARE     share of the budget kept free (default 10%)      e.g. --headroom 15%
-`
+` + trainingUsage()
 
 var commandUsage = map[string]string{
 	"report": `usage: stackfit report FILE [flags]
@@ -120,7 +106,7 @@ examples:
   stackfit report net.yaml
   stackfit report net.yaml --format json -o net.json
   cat net.yaml | stackfit report - --batch 512 --budget 80GiB
-` + trainingUsage,
+` + trainingUsage(),
 	"check": `usage: stackfit check FILE [flags]
 
 For the CI of a model repository: prints each error, each warning and the
@@ -133,7 +119,7 @@ an unreadable file.
 examples:
   stackfit check net.yaml --budget 24GiB
   stackfit check net.yaml --budget auto --strict
-` + trainingUsage,
+` + trainingUsage(),
 	"export": `usage: stackfit export FILE [flags]
 
 Writes a self-contained Python module with one nn.Module class for the
@@ -145,7 +131,7 @@ comment header with stackfit's totals.
 
 examples:
   stackfit export net.yaml --to pytorch -o net.py
-` + trainingUsage,
+` + trainingUsage(),
 }
 
 func showExample(std IO) int {
@@ -225,7 +211,7 @@ func (c *command) output(path string, write func(io.Writer) error) error {
 	if err := write(&buf); err != nil {
 		return err
 	}
-	return stackfile.WriteFileAtomic(path, []byte(buf.String()), 0o644)
+	return store.WriteFileAtomic(path, []byte(buf.String()), 0o644)
 }
 
 func runReport(args []string, std IO) int {
@@ -259,7 +245,7 @@ func runReport(args []string, std IO) int {
 // load reads a stack from a file, or from in when path is "-".
 func load(path string, in io.Reader) (*engine.Stack, error) {
 	if path != "-" {
-		return stackfile.LoadFile(path)
+		return store.LoadFile(path)
 	}
 	data, err := io.ReadAll(io.LimitReader(in, stackfile.MaxFileBytes+1))
 	if err != nil {

@@ -18,6 +18,7 @@ import (
 	"stackfit/engine/stackfile"
 	"stackfit/keymap"
 	"stackfit/ui/editor"
+	"stackfit/ui/store"
 	"stackfit/ui/styles"
 )
 
@@ -26,13 +27,37 @@ func interactive() bool {
 	return isatty.IsTerminal(os.Stdin.Fd()) && isatty.IsTerminal(os.Stdout.Fd())
 }
 
+// environment is what the editor needs from the process's environment,
+// read once, before it starts: the editor itself never reads it.
+type environment struct {
+	paths store.Paths
+	color termenv.Profile // the colours the terminal gets
+}
+
+// readEnvironment reads $STACKFIT_KEYS, $XDG_CONFIG_HOME, $XDG_STATE_HOME,
+// the home and temporary folders, and the terminal's colour support
+// (lipgloss's detection, which honours NO_COLOR; NO_COLOR also forces
+// plain text here).
+func readEnvironment() environment {
+	home, err := os.UserHomeDir()
+	if err != nil {
+		home = ""
+	}
+	env := environment{paths: store.Locate(os.Getenv, home, os.TempDir()), color: lipgloss.ColorProfile()}
+	if os.Getenv("NO_COLOR") != "" {
+		env.color = termenv.Ascii
+	}
+	return env
+}
+
 // runEditor opens the editor on path ("" for the built-in example).
 func runEditor(path string, std IO) int {
-	km, err := keymap.LoadFile(keymap.DefaultPath(), keymap.DefaultKeyMap())
+	env := readEnvironment()
+	km, err := keymap.LoadFile(env.paths.Keys, keymap.DefaultKeyMap())
 	if err != nil {
 		fmt.Fprintf(std.Err, "stackfit: %v\n(using the default keys; fix or remove the file)\n", err)
 	}
-	opt := editor.Options{Path: path, Keys: km, Styles: styles.DefaultStyles()}
+	opt := editor.Options{Path: path, Keys: km, Styles: styles.DefaultStyles(), KeysPath: env.paths.Keys, Files: store.Disk{}}
 	switch {
 	case path == "":
 		s, err := stackfile.Load(examples.FruitGrader())
@@ -42,7 +67,7 @@ func runEditor(path string, std IO) int {
 		}
 		opt.Stack = s
 	default:
-		s, err := stackfile.LoadFile(path)
+		s, err := store.LoadFile(path)
 		switch {
 		case err == nil:
 			opt.Stack = s
@@ -55,19 +80,17 @@ func runEditor(path string, std IO) int {
 			return ExitUsage
 		}
 	}
-	opt.JournalFor = func(p string) editor.Journal { return stackfile.JournalFor(p, stackfile.StateDir()) }
+	opt.JournalFor = func(p string) editor.Journal { return store.JournalFor(p, env.paths.State) }
 	current := opt.Stack
 	if opt.NewFile {
 		current = nil
 	}
-	if rec, err := stackfile.JournalFor(path, stackfile.StateDir()).Check(current); err != nil {
+	if rec, err := store.JournalFor(path, env.paths.State).Check(current); err != nil {
 		opt.Notice = err.Error()
 	} else if rec != nil {
 		opt.Recovered, opt.RecoveredAt = rec.Stack, rec.At
 	}
-	if os.Getenv("NO_COLOR") != "" {
-		lipgloss.SetColorProfile(termenv.Ascii)
-	}
+	lipgloss.SetColorProfile(env.color)
 	m := editor.New(opt)
 	p := tea.NewProgram(m, tea.WithAltScreen(), tea.WithInput(std.In), tea.WithOutput(std.Out))
 	if _, err := p.Run(); err != nil {

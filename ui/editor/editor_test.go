@@ -1,7 +1,6 @@
 package editor
 
 import (
-	"flag"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -11,20 +10,16 @@ import (
 	tea "github.com/charmbracelet/bubbletea"
 	"github.com/charmbracelet/lipgloss"
 	"github.com/charmbracelet/x/ansi"
+	"github.com/charmbracelet/x/exp/golden"
 	"github.com/muesli/termenv"
 
 	"stackfit/engine"
 	"stackfit/engine/examples"
 	"stackfit/engine/stackfile"
 	"stackfit/keymap"
+	"stackfit/ui/store"
 	"stackfit/ui/styles"
 )
-
-// updating reports -update (the flag the terminal-test helper defines).
-func updating() bool {
-	f := flag.Lookup("update")
-	return f != nil && f.Value.String() == "true"
-}
 
 func TestMain(m *testing.M) {
 	lipgloss.SetColorProfile(termenv.Ascii)
@@ -41,9 +36,13 @@ func example(t testing.TB) *engine.Stack {
 	return s
 }
 
+// testKeysPath is the keys file the help screen names in tests (its
+// golden file shows it); the command line passes the real one.
+const testKeysPath = "/root/.config/stackfit/keys.yaml"
+
 func newModel(t testing.TB, s *engine.Stack, w, h int) *Model {
 	t.Helper()
-	m := New(Options{Stack: s, Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles()})
+	m := New(Options{Stack: s, Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(), KeysPath: testKeysPath, Files: store.Disk{}})
 	m.Update(tea.WindowSizeMsg{Width: w, Height: h})
 	return m
 }
@@ -82,22 +81,6 @@ func typeText(m *Model, s string) {
 
 func view(m *Model) string { return ansi.Strip(m.View()) }
 
-func golden(t *testing.T, got string) {
-	t.Helper()
-	p := filepath.Join("testdata", t.Name()+".golden")
-	if updating() {
-		os.MkdirAll(filepath.Dir(p), 0o755)
-		os.WriteFile(p, []byte(got), 0o644)
-	}
-	want, err := os.ReadFile(p)
-	if err != nil {
-		t.Fatalf("%v (run go test ./ui/editor -update)", err)
-	}
-	if got != string(want) {
-		t.Errorf("view differs from %s:\n%s", p, got)
-	}
-}
-
 // TestGoldenViews renders the example at both standard sizes, including the
 // detail panel's arithmetic and the budget gauge.
 func TestGoldenViews(t *testing.T) {
@@ -109,7 +92,7 @@ func TestGoldenViews(t *testing.T) {
 			m := newModel(t, example(t), size.w, size.h)
 			press(m, "j", "j", "j", "j", "j", "j")         // the stride-2 convolution
 			m.fit.MaxWidth, m.fit.WidthExact = 23.62, true // the background search's answer
-			golden(t, view(m))
+			golden.RequireEqual(t, []byte(view(m)))
 		})
 	}
 }
@@ -131,7 +114,7 @@ func TestGoldenPanels(t *testing.T) {
 			m := newModel(t, example(t), 80, 24)
 			m.fit.MaxWidth, m.fit.WidthExact = 23.62, true
 			press(m, tc.keys...)
-			golden(t, view(m))
+			golden.RequireEqual(t, []byte(view(m)))
 		})
 	}
 }
@@ -403,7 +386,7 @@ func TestFilesAndQuit(t *testing.T) {
 	if m.dirty || m.path != p {
 		t.Fatalf("not saved: %s", m.status)
 	}
-	back, err := stackfile.LoadFile(p)
+	back, err := store.LoadFile(p)
 	if err != nil || back.Layers[0].Filters != 64 {
 		t.Fatalf("saved file: %v", err)
 	}
@@ -444,7 +427,7 @@ func TestFilesAndQuit(t *testing.T) {
 
 func TestNewFile(t *testing.T) {
 	p := filepath.Join(t.TempDir(), "new.yaml")
-	m := New(Options{Path: p, NewFile: true, Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles()})
+	m := New(Options{Path: p, NewFile: true, Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(), Files: store.Disk{}})
 	m.Update(tea.WindowSizeMsg{Width: 80, Height: 24})
 	if m.mode != modePrompt || m.prompt.kind != promptInput {
 		t.Fatal("a new file does not ask for the input")
@@ -454,7 +437,7 @@ func TestNewFile(t *testing.T) {
 	press(m, "enter", ":")
 	typeText(m, "conv 8 k3")
 	press(m, "enter", "w")
-	s, err := stackfile.LoadFile(p)
+	s, err := store.LoadFile(p)
 	if err != nil || s.Input != (engine.Shape{C: 1, H: 28, W: 28}) || len(s.Layers) != 1 {
 		t.Fatalf("%v %+v", err, s)
 	}

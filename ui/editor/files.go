@@ -8,7 +8,6 @@ import (
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
-	"stackfit/engine/stackfile"
 )
 
 // confirm asks a yes/no question; yes and no run their actions.
@@ -54,7 +53,11 @@ func (m *Model) save() tea.Cmd {
 // saveTo writes the stack to path atomically; the old file stays whole if
 // anything fails.
 func (m *Model) saveTo(path string) tea.Cmd {
-	if err := stackfile.SaveFile(path, m.stack); err != nil {
+	if m.files == nil {
+		m.setStatus("not saved: this editor was started without file access; run stackfit FILE to edit a file", statusError)
+		return nil
+	}
+	if err := m.files.Save(path, m.stack); err != nil {
 		m.setStatus("not saved: "+err.Error(), statusError)
 		return nil
 	}

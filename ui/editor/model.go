@@ -23,6 +23,13 @@ type Options struct {
 	NewFile bool          // Path does not exist yet: ask for the input shape first
 	Keys    keymap.KeyMap
 	Styles  styles.Styles
+	// KeysPath is the keys file the help screen names as the place for
+	// one's own keys ("" names $STACKFIT_KEYS instead). The command line
+	// works it out once, at start; the editor never reads the environment.
+	KeysPath string
+	// Files opens and saves stack files; nil leaves the editor without file
+	// access (open and save then say so).
+	Files Files
 	// JournalFor returns where the unsaved edits of the stack file at path
 	// are kept ("" for an untitled stack); nil keeps no journal.
 	JournalFor func(path string) Journal
@@ -32,6 +39,14 @@ type Options struct {
 	RecoveredAt time.Time
 	// Notice is shown on the status line at start.
 	Notice string
+}
+
+// Files is how the editor reaches stack files on disk.
+type Files interface {
+	// Load reads the stack file at path; its errors name the path.
+	Load(path string) (*engine.Stack, error)
+	// Save writes s to path so that a failed save leaves the old file whole.
+	Save(path string, s *engine.Stack) error
 }
 
 // Journal keeps unsaved edits so a crash loses nothing.
@@ -62,6 +77,8 @@ type Model struct {
 	dirty      bool
 	journal    Journal
 	journalFor func(string) Journal
+	files      Files
+	keysFile   string
 
 	// Numbers of the current stack, recomputed on every change.
 	res    engine.Result
@@ -106,6 +123,8 @@ func New(opt Options) *Model {
 		stack:      opt.Stack,
 		path:       opt.Path,
 		journalFor: opt.JournalFor,
+		files:      opt.Files,
+		keysFile:   opt.KeysPath,
 		anchor:     -1,
 		folded:     map[string]bool{},
 		assume:     engine.DefaultAssumptions(),

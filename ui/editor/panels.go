@@ -56,7 +56,7 @@ func (m *Model) pickerView(lay layout) string {
 	first := max(0, p.sel-(lay.listH-2))
 	for i := first; i < len(p.kinds) && len(lines) < lay.listH; i++ {
 		k := p.kinds[i]
-		line := fmt.Sprintf("  %-12s %s", k, kindHelp[k])
+		line := fmt.Sprintf("  %-12s %s", k, engine.SpecOf(k).Help)
 		if i == p.sel {
 			line = m.st.Cursor.Render(fit(line, m.width))
 		}
@@ -70,13 +70,13 @@ func (m *Model) pickerView(lay layout) string {
 func (m *Model) helpView() string {
 	h := &m.help
 	var b strings.Builder
-	b.WriteString(m.st.Title.Render("stackfit — keys") + m.st.Dim.Render("  (? or esc closes; override keys in "+keysPath()+")"))
+	b.WriteString(m.st.Title.Render("stackfit — keys") + m.st.Dim.Render("  (? or esc closes; override keys in "+m.keysPath()+")"))
 	b.WriteString("\n\n")
 	b.WriteString(h.FullHelpView(m.keys.FullHelp()))
 	b.WriteString("\n\n")
 	b.WriteString(m.st.Title.Render("the quick-entry line (:)"))
 	b.WriteByte('\n')
-	b.WriteString(engine.QuickSyntax)
+	b.WriteString(quickSyntax())
 	b.WriteString("\n\n")
 	b.WriteString(m.st.Dim.Render("Memory figures are estimates for one GPU; frameworks, kernels and fragmentation differ — keep headroom."))
 	lines := strings.Split(b.String(), "\n")
@@ -84,9 +84,10 @@ func (m *Model) helpView() string {
 	return strings.TrimSuffix(pad(lines, m.height, m.width), "\n")
 }
 
-func keysPath() string {
-	if p := keymap.DefaultPath(); p != "" {
-		return p
+// keysPath is where the help screen says one's own keys go.
+func (m *Model) keysPath() string {
+	if m.keysFile != "" {
+		return m.keysFile
 	}
 	return "$" + keymap.EnvPath
 }

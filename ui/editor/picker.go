@@ -13,25 +13,6 @@ type picker struct {
 	sel   int
 }
 
-// kindHelp says in a few words what each kind does.
-var kindHelp = map[engine.Kind]string{
-	engine.KindConv:       "convolution: filters over a sliding window",
-	engine.KindDeconv:     "transposed convolution: upsamples with learned filters",
-	engine.KindPool:       "max or average over a window",
-	engine.KindGlobalPool: "average or max over the whole map → C×1×1",
-	engine.KindPoolTo:     "average pooling to a fixed size",
-	engine.KindUpsample:   "repeat or interpolate by an integer factor",
-	engine.KindNorm:       "batch, group, instance or layer normalisation",
-	engine.KindAct:        "relu, leaky-relu, gelu, silu, sigmoid, tanh",
-	engine.KindDropout:    "zero a share of values while training",
-	engine.KindFlatten:    "C×H×W → one vector",
-	engine.KindDense:      "fully connected layer",
-	engine.KindReshape:    "reinterpret values as a new C×H×W",
-	engine.KindBlock:      "a group of layers, repeated, optionally residual",
-	engine.KindConcat:     "join a named earlier output along the channels",
-	engine.KindAdd:        "add a named earlier output",
-}
-
 func (m *Model) openPicker() {
 	m.picker = &picker{kinds: engine.Kinds()}
 	m.mode = modePicker
@@ -50,8 +31,8 @@ func (m *Model) updatePicker(msg tea.KeyMsg) tea.Cmd {
 	case key.Matches(msg, m.keys.Accept):
 		k := p.kinds[p.sel]
 		m.picker, m.mode = nil, modeNormal
-		cmd := m.insertAfter(engine.NewLayer(k, m.channelsAt()), "added "+k.String())
-		if k != engine.KindFlatten {
+		cmd := m.insertAfter(newLayer(k, m.channelsAt()), "added "+k.String())
+		if sp := engine.SpecOf(k); sp.Main != nil || len(sp.Params) > 0 {
 			m.editLayer()
 		}
 		return cmd

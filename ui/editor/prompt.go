@@ -2,7 +2,6 @@ package editor
 
 import (
 	"fmt"
-	"os"
 	"strconv"
 	"strings"
 
@@ -10,7 +9,6 @@ import (
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
-	"stackfit/engine/stackfile"
 )
 
 // promptKind says what a prompt's line is for.
@@ -55,7 +53,7 @@ func (m *Model) checkPrompt() {
 		if _, err := engine.ParseQuick(v); err != nil {
 			p.hint, p.bad = strings.TrimPrefix(err.Error(), engine.ErrQuick.Error()+": "), true
 			if f := strings.Fields(v); len(f) == 1 {
-				if c := engine.CompleteKind(f[0]); len(c) > 1 {
+				if c := completeKind(f[0]); len(c) > 1 {
 					p.hint, p.bad = "kinds: "+strings.Join(c, ", "), false
 				}
 			}
@@ -95,7 +93,7 @@ func (m *Model) updatePrompt(msg tea.KeyMsg) tea.Cmd {
 		v := p.input.Value()
 		f := strings.Fields(v)
 		if len(f) == 1 && !strings.HasSuffix(v, " ") {
-			if c := engine.CompleteKind(f[0]); len(c) == 1 {
+			if c := completeKind(f[0]); len(c) == 1 {
 				p.input.SetValue(c[0] + " ")
 				p.input.CursorEnd()
 			} else if len(c) > 1 {
@@ -164,7 +162,11 @@ func (m *Model) acceptPrompt() tea.Cmd {
 			p.hint, p.bad = "give a file name", true
 			return nil
 		}
-		s, err := stackfile.LoadFile(v)
+		if m.files == nil {
+			p.hint, p.bad = "this editor was started without file access; run stackfit FILE instead", true
+			return nil
+		}
+		s, err := m.files.Load(v)
 		if err != nil {
 			p.hint, p.bad = firstLine(err.Error()), true
 			return nil
@@ -181,10 +183,4 @@ func firstLine(s string) string {
 		return s[:i] + " (and more)"
 	}
 	return s
-}
-
-// fileExists reports whether path names an existing file.
-func fileExists(path string) bool {
-	_, err := os.Stat(path)
-	return err == nil
 }

@@ -10,6 +10,7 @@ import (
 	"stackfit/engine"
 	"stackfit/engine/stackfile"
 	"stackfit/keymap"
+	"stackfit/ui/store"
 	"stackfit/ui/styles"
 )
 
@@ -89,7 +90,7 @@ func (f *fakeJournal) Clear() error                 { f.cleared++; return nil }
 func TestJournalAndRecovery(t *testing.T) {
 	j := &fakeJournal{}
 	opts := Options{Stack: example(t), Path: t.TempDir() + "/g.yaml", Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(),
-		JournalFor: func(string) Journal { return j }}
+		Files: store.Disk{}, JournalFor: func(string) Journal { return j }}
 	m := New(opts)
 	press(m, "n", "home", ">")
 	if j.records != 2 || !sameStack(j.last, m.stack) {

@@ -88,9 +88,6 @@ type item struct {
 	last  int // last row index (blocks span all their repeats)
 }
 
-// span is the range of rows an item produced.
-type span struct{ first, last int }
-
 // buildItems lists the visible items (blocks folded hide their bodies) and
 // ties each to its rows in r. Items and rows come in the same order, so one
 // forward walk matches them without a lookup table.
@@ -141,10 +138,20 @@ func beyond(q, p engine.Path) bool {
 	return false
 }
 
-// prefix returns the first n segments of p.
-func prefix(p engine.Path, n int) engine.Path {
-	for p.Len() > n {
-		p = p.Parent()
+// itemTotals sums the rows of an item in res: the parameters and MACs of
+// the resolved rows, and the activation bytes mem keeps for each row.
+func itemTotals(it *item, res *engine.Result, mem *engine.Memory) (params, macs, act int64) {
+	if it.first < 0 {
+		return 0, 0, 0
 	}
-	return p
+	for i := it.first; i <= it.last && i < len(res.Rows); i++ {
+		if r := &res.Rows[i]; r.Status == engine.StatusOK {
+			params += r.Params
+			macs += r.MACs
+		}
+		if i < len(mem.Rows) {
+			act += mem.Rows[i]
+		}
+	}
+	return params, macs, act
 }

@@ -79,7 +79,7 @@ func (m *Model) rule(title string) string {
 	return m.st.Dim.Render(t + strings.Repeat("─", max(m.width-ansi.StringWidth(t), 0)))
 }
 
-// analysis returns the numbers to show: the form's preview while a form is
+// shown returns the numbers to show: the form's preview while a form is
 // open, else the stack's.
 func (m *Model) shown() (*engine.Result, *engine.Memory, engine.Fit, *engine.Stack) {
 	if m.preview != nil {
@@ -242,17 +242,7 @@ func (m *Model) sideCells(it *item, lay layout) string {
 		txt := right(last.Status.String(), colOut)
 		return txt + blank(lay.sideW-colOut)
 	}
-	var params, macs, act int64
-	for i := it.first; i <= it.last; i++ {
-		r := &m.res.Rows[i]
-		if r.Status == engine.StatusOK {
-			params += r.Params
-			macs += r.MACs
-		}
-		if i < len(m.mem.Rows) {
-			act += m.mem.Rows[i]
-		}
-	}
+	params, macs, act := itemTotals(it, &m.res, &m.mem)
 	cols := []string{
 		right(fmt.Sprintf("%d×%d", last.Out.H, last.Out.W), colOut),
 		right(fmt.Sprint(last.Out.C), colCh),
@@ -377,14 +367,7 @@ func (m *Model) blockLines(it *item, res *engine.Result, mem *engine.Memory) []s
 	if it.first < 0 {
 		return nil
 	}
-	var params, macs, act int64
-	for i := it.first; i <= it.last && i < len(res.Rows); i++ {
-		params += res.Rows[i].Params
-		macs += res.Rows[i].MACs
-		if i < len(mem.Rows) {
-			act += mem.Rows[i]
-		}
-	}
+	params, macs, act := itemTotals(it, res, mem)
 	l := it.layer
 	return []string{
 		fmt.Sprintf("%d repeat%s of %d layer%s → rows %s to %s; later repeats run with stride 1%s",

@@ -1,4 +1,4 @@
-package stackfile
+package store
 
 import (
 	"errors"
@@ -105,5 +105,31 @@ func TestReadOnlyFolder(t *testing.T) {
 	}
 	if got, _ := os.ReadFile(p); string(got) != "old" {
 		t.Errorf("old file changed: %q", got)
+	}
+}
+
+// TestAtomicWrite checks that a save replaces the file whole, keeps its
+// permissions, and leaves the old file alone when it cannot write.
+func TestAtomicWrite(t *testing.T) {
+	dir := t.TempDir()
+	p := filepath.Join(dir, "net.yaml")
+	if err := WriteFileAtomic(p, []byte("one"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	os.Chmod(p, 0o640)
+	if err := WriteFileAtomic(p, []byte("two"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	got, _ := os.ReadFile(p)
+	info, _ := os.Stat(p)
+	if string(got) != "two" || info.Mode().Perm() != 0o640 {
+		t.Errorf("content %q mode %v", got, info.Mode().Perm())
+	}
+	entries, _ := os.ReadDir(dir)
+	if len(entries) != 1 {
+		t.Errorf("temporary files left: %v", entries)
+	}
+	if err := WriteFileAtomic(filepath.Join(dir, "no-such-dir", "x.yaml"), []byte("x"), 0o644); err == nil {
+		t.Error("write into a missing folder succeeded")
 	}
 }

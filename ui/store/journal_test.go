@@ -1,4 +1,4 @@
-package stackfile
+package store
 
 import (
 	"os"
@@ -8,6 +8,7 @@ import (
 
 	"stackfit/engine"
 	"stackfit/engine/examples"
+	"stackfit/engine/stackfile"
 )
 
 func TestJournal(t *testing.T) {
@@ -17,7 +18,7 @@ func TestJournal(t *testing.T) {
 	if j.Path != filepath.Join(dir, ".net.yaml.unsaved") {
 		t.Errorf("journal path %s", j.Path)
 	}
-	s, _ := Load(examples.FruitGrader())
+	s, _ := stackfile.Load(examples.FruitGrader())
 	if r, err := j.Check(s); r != nil || err != nil {
 		t.Fatalf("no journal yet: %v %v", r, err)
 	}

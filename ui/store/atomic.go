@@ -1,4 +1,4 @@
-package stackfile
+package store
 
 import (
 	"errors"
@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 
 	"stackfit/engine"
+	"stackfit/engine/stackfile"
 )
 
 // fileSystem is what an atomic write needs from the operating system; the
@@ -92,7 +93,7 @@ func writeAtomic(fsys fileSystem, path string, data []byte, perm fs.FileMode) (e
 
 // SaveFile writes s to path in canonical form, atomically.
 func SaveFile(path string, s *engine.Stack) error {
-	data, err := Save(s)
+	data, err := stackfile.Save(s)
 	if err != nil {
 		return err
 	}

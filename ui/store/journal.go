@@ -1,4 +1,4 @@
-package stackfile
+package store
 
 import (
 	"bytes"
@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"stackfit/engine"
+	"stackfit/engine/stackfile"
 )
 
 // Journal keeps the unsaved state of a stack beside its file, so that a
@@ -22,7 +23,7 @@ type Journal struct {
 
 // JournalFor returns the journal of the stack file path: a hidden file
 // beside it, ".NAME.unsaved". An untitled stack (path "") is journaled in
-// stateDir as "untitled.unsaved".
+// stateDir (Paths.State) as "untitled.unsaved".
 func JournalFor(path, stateDir string) *Journal {
 	if path == "" {
 		return &Journal{Path: filepath.Join(stateDir, "untitled.unsaved")}
@@ -30,21 +31,9 @@ func JournalFor(path, stateDir string) *Journal {
 	return &Journal{Path: filepath.Join(filepath.Dir(path), "."+filepath.Base(path)+".unsaved"), For: path}
 }
 
-// StateDir returns where untitled stacks are journaled:
-// $XDG_STATE_HOME/stackfit, else ~/.local/state/stackfit.
-func StateDir() string {
-	if d := os.Getenv("XDG_STATE_HOME"); d != "" {
-		return filepath.Join(d, "stackfit")
-	}
-	if h, err := os.UserHomeDir(); err == nil {
-		return filepath.Join(h, ".local", "state", "stackfit")
-	}
-	return filepath.Join(os.TempDir(), "stackfit")
-}
-
 // Record writes s to the journal.
 func (j *Journal) Record(s *engine.Stack) error {
-	data, err := Save(s)
+	data, err := stackfile.Save(s)
 	if err != nil {
 		return err
 	}
@@ -91,8 +80,8 @@ func (j *Journal) Check(current *engine.Stack) (*Recovered, error) {
 		return nil, fmt.Errorf("recovery file %s is damaged and was left in place: %w", j.Path, err)
 	}
 	if current != nil {
-		a, _ := Save(s)
-		b, _ := Save(current)
+		a, _ := stackfile.Save(s)
+		b, _ := stackfile.Save(current)
 		if bytes.Equal(a, b) {
 			j.Clear() // nothing unsaved after all
 			return nil, nil

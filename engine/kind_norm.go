@@ -1,0 +1,96 @@
+package engine
+
+import "fmt"
+
+var normSpec = Spec{
+	Kind: KindNorm, Key: "norm", Help: "batch, group, instance or layer normalisation", Example: "norm batch",
+	Main: &Param{Key: "type", Help: "batch, group, instance or layer", Type: TChoice, Choices: normNames[:],
+		Need: "a type: batch, group, instance or layer",
+		get:  func(l *Layer) Value { return Value{Int: int64(l.Norm)} },
+		set:  func(l *Layer, v Value) { l.Norm = NormKind(v.Int) }},
+	Params: []Param{
+		{Key: "groups", Help: "channel groups (group norm)", Type: TInt, Lo: 0, Hi: MaxChannels, Quick: "g",
+			Required: true, Need: "group norm needs groups", YAMLHint: "groups: 32", QuickHint: "g32",
+			Only:    func(l *Layer) bool { return l.Norm == NormGroup },
+			OnlyMsg: "groups applies only to group norm; remove it or write norm: group",
+			get:     func(l *Layer) Value { return Value{Int: l.NormGroups} },
+			set:     func(l *Layer, v Value) { l.NormGroups = v.Int }},
+		{Key: "affine", Help: "yes, no or default", Type: TToggle, Words: []string{"", "affine", "noaffine"},
+			Want: "give yes, no or default",
+			get:  func(l *Layer) Value { return Value{Int: int64(l.Affine)} },
+			set:  func(l *Layer, v Value) { l.Affine = Toggle(v.Int) }},
+	},
+	eval: func(c *calc, f *flow) { c.norm() },
+	explain: func(row *Row) []string {
+		var out []string
+		if row.Params > 0 {
+			out = append(out, fmt.Sprintf("params = 2·%d = %s (scale and shift per channel)", row.In.C, GroupDigits(row.Params)))
+		}
+		if row.Buffers > 0 {
+			out = append(out, fmt.Sprintf("buffers = 2·%d + 1 = %s (running mean, variance, step count)", row.In.C, GroupDigits(row.Buffers)))
+		}
+		return out
+	},
+	saved: savedNorm,
+	torch: func(row *Row) Torch {
+		l, c := row.Layer, row.In.C
+		affine := pyBool(l.Affine.Or(l.Norm != NormInstance))
+		switch l.Norm {
+		case NormGroup:
+			return Torch{Module: fmt.Sprintf("nn.GroupNorm(%d, %d, affine=%s)", l.NormGroups, c, affine)}
+		case NormInstance:
+			return Torch{Module: fmt.Sprintf("nn.InstanceNorm2d(%d, affine=%s)", c, affine)}
+		case NormLayer:
+			return Torch{Module: fmt.Sprintf("ChannelLayerNorm(%d, affine=%s)", c, affine)}
+		}
+		return Torch{Module: fmt.Sprintf("nn.BatchNorm2d(%d, affine=%s)", c, affine)}
+	},
+}
+
+// savedNorm: a norm keeps its input, and group, instance and layer norm
+// their per-sample statistics (fp32) as well.
+func savedNorm(row *Row, s *saving) int64 {
+	l, ov := row.Layer, &s.ov
+	b := s.input(row)
+	switch l.Norm {
+	case NormGroup:
+		b += mul(ov, 2*l.NormGroups, 4) // mean and reciprocal std per group
+	case NormInstance:
+		stats := int64(2)
+		if l.Affine == On {
+			stats = 3 // the scale is expanded per sample as well
+		}
+		b += mul(ov, mul(ov, stats, row.In.C), 4)
+	case NormLayer:
+		b += mul(ov, mul(ov, 2, mul(ov, row.In.H, row.In.W)), 4)
+	}
+	return b
+}
+
+func (c *calc) norm() {
+	in := c.row.In
+	l := c.l
+	c.row.Out = in
+	switch l.Norm {
+	case NormGroup:
+		if !c.atLeast("groups", l.NormGroups, 1) {
+			return
+		}
+		if in.C%l.NormGroups != 0 {
+			c.fail(Diagnostic{Code: ErrNormGroups, Field: "groups", A: in.C, B: l.NormGroups})
+			return
+		}
+	case NormInstance:
+		if !in.Spatial() {
+			c.fail(Diagnostic{Code: ErrNormSingle, Field: "norm"})
+			return
+		}
+	case NormBatch:
+		// running mean, running variance and a step counter.
+		c.row.Buffers = add(&c.ov, mul(&c.ov, 2, in.C), 1)
+	}
+	if l.Affine.Or(l.Norm != NormInstance) {
+		c.row.Params = mul(&c.ov, 2, in.C)
+	}
+	c.checkOverflow("parameters")
+}
