@@ -18,6 +18,7 @@ const (
 	ActSiLU
 	ActSigmoid
 	ActTanh
+	ActReLU6
 )
 
 // activation describes one element-wise function.
@@ -45,6 +46,7 @@ var activations = [...]activation{
 	ActSiLU:    {"silu", false, module("nn.SiLU()")},
 	ActSigmoid: {"sigmoid", true, module("nn.Sigmoid()")},
 	ActTanh:    {"tanh", true, module("nn.Tanh()")},
+	ActReLU6:   {"relu6", false, module("nn.ReLU6()")}, // min(max(x, 0), 6); PyTorch saves the input
 }
 
 // String returns the stack-file value.

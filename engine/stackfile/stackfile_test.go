@@ -137,7 +137,7 @@ func TestLoadErrors(t *testing.T) {
 		{"missing kernel", head + "  - {conv: 8}\n",
 			ErrMissing, `4:5: layer 1 (conv): needs a kernel; add e.g. kernel: 3 or kernel: [3, 5]`},
 		{"bad choice", head + "  - {act: rleu}\n",
-			ErrRange, `4:11: layer 1 (act) → act: "rleu" is not one of relu, leaky-relu, gelu, silu, sigmoid, tanh; did you mean "relu"?`},
+			ErrRange, `4:11: layer 1 (act) → act: "rleu" is not one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6; did you mean "relu"?`},
 		{"bad pad word", head + "  - {conv: 8, kernel: 3, pad: half}\n",
 			ErrRange, `4:31: layer 1 (conv) → pad: "half" is not one of same, valid`},
 		{"input shape", "stackfit: 1\ninput: [3, 32]\nlayers: []\n",

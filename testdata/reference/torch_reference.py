@@ -124,6 +124,7 @@ def build(layer, c):
             "silu": nn.SiLU(),
             "sigmoid": nn.Sigmoid(),
             "tanh": nn.Tanh(),
+            "relu6": nn.ReLU6(),
         }[layer["act"]]
     if "dropout" in layer:
         return nn.Dropout(layer["dropout"])
@@ -380,7 +381,7 @@ def random_layer(rng, c, kind):
             l["affine"] = rng.random() < 0.5
         return l
     if kind == "act":
-        a = rng.choice(["relu", "leaky-relu", "gelu", "silu", "sigmoid", "tanh"])
+        a = rng.choice(["relu", "leaky-relu", "gelu", "silu", "sigmoid", "tanh", "relu6"])
         l = {"act": a}
         if a == "leaky-relu" and rng.random() < 0.5:
             l["slope"] = 0.2
