@@ -101,6 +101,7 @@ type Result struct {
 	taps  map[string]tap // named outputs seen so far
 	synth synthPool      // layers residual blocks add, reused between evaluations
 
+	top      flow        // the stack's own flow
 	shortcut flow        // the shortcut's output, for the residual addition row
 	fixed    fixedLayers // layers residual blocks add that never change
 	calc     calc        // the per-row calculator, reused
@@ -150,7 +151,10 @@ func (r *Result) Evaluate(s *Stack) {
 		clear(r.taps)
 	}
 	r.Output = Shape{}
-	f := flow{shape: s.Input, rf: FPair{1, 1}, jump: FPair{1, 1}, store: -1, ok: true}
+	// The flow lives in the Result: the kinds' rules take it through a
+	// function value, which would move a local one to the heap.
+	r.top = flow{shape: s.Input, rf: FPair{1, 1}, jump: FPair{1, 1}, store: -1, ok: true}
+	f := &r.top
 	if !s.Input.Valid() {
 		f.ok = false
 		r.inputError(s.Input)
@@ -163,7 +167,7 @@ func (r *Result) Evaluate(s *Stack) {
 	} else if int(n) > cap(r.Rows) {
 		r.Rows = make([]Row, 0, n) // one allocation instead of doubling
 	}
-	r.items(s.Layers, Path{}, &f, false)
+	r.items(s.Layers, Path{}, f, false)
 	if f.ok {
 		r.Output = f.shape
 	}
@@ -243,6 +247,8 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 	// stalls on store forwarding once per row.
 	c := &r.calc
 	c.r, c.idx, c.row, c.l, c.unstrided = r, idx, row, l, unstrided
+	sp := SpecOf(l.Kind)
+	c.sp = sp
 	c.failed, c.unresolved, c.ov = false, false, false
 	c.run(f)
 	if c.unresolved || c.failed {
@@ -257,7 +263,7 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 	}
 	f.shape = row.Out
 	row.RF, row.Jump = f.rf, f.jump
-	if !SpecOf(l.Kind).View {
+	if !sp.View {
 		f.store = int32(idx) // every kind but a view writes a new tensor
 	}
 	row.OutStore = f.store

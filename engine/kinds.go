@@ -6,7 +6,8 @@ type calc struct {
 	idx        int
 	row        *Row
 	l          *Layer
-	unstrided  bool // later repeat of a block: strides count as 1
+	sp         *Spec // the layer kind's description
+	unstrided  bool  // later repeat of a block: strides count as 1
 	failed     bool
 	unresolved bool // a merged input is unknown
 	ov         bool // an overflow-checked product overflowed
@@ -56,8 +57,8 @@ func (c *calc) checkOverflow(field string) bool {
 
 // run applies the layer kind's rules.
 func (c *calc) run(f *flow) {
-	if sp := SpecOf(c.l.Kind); sp.eval != nil {
-		sp.eval(c, f)
+	if c.sp.eval != nil {
+		c.sp.eval(c, f)
 		return
 	}
 	c.fail(Diagnostic{Code: ErrValue, Field: "kind", A: int64(c.l.Kind), B: 1})
