@@ -32,6 +32,7 @@ func (r *Result) setTap(l *Layer, f *flow) {
 // copy each per Result, shared by every row that uses them.
 type fixedLayers struct {
 	add  Layer
+	cat  Layer
 	norm Layer
 	act  [len(activations)]Layer
 }
@@ -41,6 +42,7 @@ func (x *fixedLayers) init() {
 		return
 	}
 	x.add = Layer{Kind: KindAdd}
+	x.cat = Layer{Kind: KindConcat}
 	x.norm = Layer{Kind: KindNorm, Norm: NormBatch}
 	for i := range x.act {
 		x.act[i] = Layer{Kind: KindAct, Act: ActKind(i)}
@@ -72,23 +74,57 @@ func (p *synthPool) projection(filters int64, stride Pair, noBias bool) *Layer {
 	return l
 }
 
+// dropPathAdd hands out the addition of a residual block with stochastic
+// depth: an add whose Rate is the drop probability of the body's branch.
+func (p *synthPool) dropPathAdd(rate float64) *Layer {
+	c, i := p.n/synthChunk, p.n%synthChunk
+	if c == len(p.chunks) {
+		p.chunks = append(p.chunks, make([]Layer, synthChunk))
+	}
+	p.n++
+	l := &p.chunks[c][i]
+	*l = Layer{Kind: KindAdd, Rate: rate}
+	return l
+}
+
+// gate evaluates a gate item: its body runs on a copy of the flow and
+// must end in a C×1×1 map, which a multiplication row then applies to the
+// flow channel by channel (squeeze-and-excitation, Hu et al. 2018). The
+// rows are numbered like a block's single repeat: 5.1.1 … 5.1.mul.
+func (r *Result) gate(l *Layer, parent Path, i int, f *flow, unstrided bool) {
+	gp := parent
+	gp.push(i)
+	gp.push(1)
+	g := &r.gates[min(gp.Len()/2, len(r.gates)-1)]
+	*g = *f
+	r.items(l.Body, gp, g, unstrided)
+	r.other = *g
+	r.layer(l, &gp, SegGateMul, f, false, RoleGate)
+}
+
 // countRows returns how many rows ls expands to, saturating past MaxRows.
 func countRows(ls []Layer, depth int) int64 {
 	var n int64
 	for i := range ls {
 		l := &ls[i]
-		if l.Kind != KindBlock {
-			n++
-		} else {
+		switch l.Kind {
+		case KindGate:
+			n += countRows(l.Body, depth+1) + 1 // the body and the multiplication
+		case KindBlock:
 			per := countRows(l.Body, depth+1)
 			if l.Residual {
 				per += 4 // shortcut, its norm, the addition, the activation
+			}
+			if l.DenseLinks {
+				per++ // the concatenation
 			}
 			reps := max(l.Repeat, 1)
 			if per > 0 && reps > (MaxRows+1)/per {
 				return MaxRows + 1
 			}
 			n += per * reps
+		default:
+			n++
 		}
 		if n > MaxRows {
 			return MaxRows + 1
@@ -109,12 +145,16 @@ func (r *Result) block(l *Layer, parent Path, i int, f *flow, unstrided bool) {
 		rp := bp
 		rp.push(int(rep))
 		var in flow
-		if l.Residual {
+		if l.Residual || l.DenseLinks {
 			in = *f
 		}
 		r.items(l.Body, rp, f, unstrided || (rep > 1 && !l.AllStrides))
 		if l.Residual {
 			r.residual(l, &rp, &in, f)
+		}
+		if l.DenseLinks {
+			r.shortcut = in
+			r.layer(&r.fixed.cat, &rp, SegDenseCat, f, false, RoleDenseCat)
 		}
 	}
 }
@@ -128,6 +168,13 @@ func (r *Result) residual(l *Layer, p *Path, in *flow, f *flow) {
 	// shortcut rows and the addition that could need a second one.
 	sc := &r.shortcut
 	*sc = *in
+	if in.ok && f.ok && in.shape != f.shape && l.IdentityOnly {
+		// An inverted residual adds its input only where the shapes match.
+		if l.HasPostAct && int(l.PostAct) < len(r.fixed.act) {
+			r.layer(&r.fixed.act[l.PostAct], p, SegPostAct, f, false, RolePostAct)
+		}
+		return
+	}
 	if in.ok && f.ok && in.shape != f.shape {
 		sh := math.Round(f.jump.H / in.jump.H)
 		sw := math.Round(f.jump.W / in.jump.W)
@@ -143,7 +190,11 @@ func (r *Result) residual(l *Layer, p *Path, in *flow, f *flow) {
 			r.layer(&r.fixed.norm, p, SegShortcutNorm, sc, false, RoleShortcut)
 		}
 	}
-	r.layer(&r.fixed.add, p, SegResidualAdd, f, false, RoleResidual)
+	add := &r.fixed.add
+	if l.DropPath > 0 {
+		add = r.synth.dropPathAdd(l.DropPath)
+	}
+	r.layer(add, p, SegResidualAdd, f, false, RoleResidual)
 	if l.HasPostAct && int(l.PostAct) < len(r.fixed.act) {
 		r.layer(&r.fixed.act[l.PostAct], p, SegPostAct, f, false, RolePostAct)
 	}
@@ -169,7 +220,7 @@ func (c *calc) merge(f *flow) {
 	l := c.l
 	var other flow
 	name := l.From
-	if c.row.Role == RoleResidual {
+	if c.row.Role == RoleResidual || c.row.Role == RoleDenseCat {
 		other, name = c.r.shortcut, ""
 	} else {
 		t, ok := c.r.taps[name]
@@ -190,6 +241,10 @@ func (c *calc) merge(f *flow) {
 	cur := f.shape
 	out := cur
 	if other.shape.H != cur.H || other.shape.W != cur.W {
+		if c.row.Role == RoleDenseCat {
+			c.fail(Diagnostic{Code: ErrDenseShape, Field: "dense-links", A: cur.H, B: cur.W, C: other.shape.H, D: other.shape.W})
+			return
+		}
 		if !l.Crop {
 			c.fail(Diagnostic{Code: ErrMergeShape, Field: "crop", Name: name, A: other.shape.H, B: other.shape.W, C: cur.H, D: cur.W})
 			return

@@ -62,6 +62,9 @@ const (
 	WarnChannels8                     // channel count not a multiple of 8
 	WarnMergeJump                     // merged maps have different effective strides
 	InfoCrop                          // a merge center-crops a map
+	ErrGateShape                      // a gate body does not end in C×1×1
+	ErrDenseShape                     // a densely linked repeat changes the map size
+	ErrShuffleGroups                  // channels not divisible by shuffle groups
 )
 
 // Diagnostic is one problem found in a stack, tied to a row of the result.
@@ -151,6 +154,12 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("center-crops %s from %d×%d to %d×%d (%d rows and %d columns removed, split between the two sides)", cropWhat(d.Field, d.Name), d.A, d.B, d.C, d.D, d.A-d.C, d.B-d.D)
 	case ErrNesting:
 		return fmt.Sprintf("blocks nest more than %d deep here; flatten an inner block", MaxBlockDepth)
+	case ErrDenseShape:
+		return fmt.Sprintf("the repeat's output is %d×%d but its input %d×%d; dense links join maps of one size — keep the strides in the block at 1 and downsample between dense blocks", d.A, d.B, d.C, d.D)
+	case ErrGateShape:
+		return fmt.Sprintf("the gate's layers end in %d×%d×%d, but a channel gate for this %d-channel map must end in %d×1×1; end them with global-pool and a 1×1 conv of %d filters", d.A, d.B, d.C, d.D, d.D, d.D)
+	case ErrShuffleGroups:
+		return fmt.Sprintf("channels %d are not divisible by shuffle groups %d; pick groups that divide %d, or make the layer before give a multiple of %d", d.A, d.B, d.A, d.B)
 	case ErrValue:
 		return fmt.Sprintf("%s is %d; it must be at least %d", d.Field, d.A, d.B)
 	case WarnStrideDrop:

@@ -36,9 +36,11 @@ const (
 	RoleShortcut             // a projection shortcut a residual block adds
 	RoleResidual             // the addition that closes a residual repeat
 	RolePostAct              // the activation after that addition
+	RoleGate                 // the multiplication that applies a gate
+	RoleDenseCat             // the concatenation that closes a densely linked repeat
 )
 
-var roleNames = [...]string{"layer", "shortcut", "residual-add", "after-add"}
+var roleNames = [...]string{"layer", "shortcut", "residual-add", "after-add", "gate-multiply", "dense-concat"}
 
 // String returns the role's report name.
 func (r Role) String() string {
@@ -74,8 +76,9 @@ type Row struct {
 	// and, for merges, reads as its second input (OtherStore). −1 is the
 	// network input.
 	InStore, OutStore, OtherStore int32
-	// Grad: the input carries a gradient (some earlier row has parameters).
-	Grad bool
+	// Grad: the input carries a gradient (some earlier row has parameters);
+	// OtherGrad: so does a merge's or a gate's second input.
+	Grad, OtherGrad bool
 }
 
 // Totals sums the rows of a result.
@@ -101,10 +104,12 @@ type Result struct {
 	taps  map[string]tap // named outputs seen so far
 	synth synthPool      // layers residual blocks add, reused between evaluations
 
-	top      flow        // the stack's own flow
-	shortcut flow        // the shortcut's output, for the residual addition row
-	fixed    fixedLayers // layers residual blocks add that never change
-	calc     calc        // the per-row calculator, reused
+	top      flow                    // the stack's own flow
+	gates    [MaxBlockDepth + 1]flow // each open gate's flow, by depth
+	other    flow                    // the gate a multiplication row applies
+	shortcut flow                    // the shortcut's output, for the residual addition row
+	fixed    fixedLayers             // layers residual blocks add that never change
+	calc     calc                    // the per-row calculator, reused
 }
 
 // MaxRows bounds how many rows a stack may expand to (repeats multiply).
@@ -206,9 +211,12 @@ func (r *Result) diag(d Diagnostic) {
 func (r *Result) items(ls []Layer, parent Path, f *flow, unstrided bool) {
 	for i := range ls {
 		l := &ls[i]
-		if l.Kind == KindBlock && parent.Len() < 2*MaxBlockDepth-1 {
+		switch {
+		case l.Kind == KindBlock && parent.Len() < 2*MaxBlockDepth-1:
 			r.block(l, parent, i+1, f, unstrided)
-		} else {
+		case l.Kind == KindGate && parent.Len() < 2*MaxBlockDepth-1:
+			r.gate(l, parent, i+1, f, unstrided)
+		default:
 			r.layer(l, &parent, seg(i+1), f, unstrided, RoleLayer)
 		}
 		if l.Name != "" {
@@ -235,7 +243,7 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 		row.Path.n = n + 1
 	}
 	row.Layer, row.In, row.Status, row.Role, row.Unstrided = l, f.shape, StatusOK, role, unstrided
-	row.InStore, row.OtherStore, row.Grad = f.store, -1, f.grad
+	row.InStore, row.OtherStore, row.Grad, row.OtherGrad = f.store, -1, f.grad, false
 	row.Out, row.Params, row.Buffers, row.MACs = Shape{}, 0, 0, 0
 	if !f.ok {
 		row.Status = StatusUnresolved

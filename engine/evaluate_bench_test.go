@@ -97,3 +97,57 @@ func BenchmarkEvaluate1000Fresh(b *testing.B) {
 		Evaluate(s)
 	}
 }
+
+// mobileStack builds a stack of about n rows the way the mobile families
+// are written: inverted residual stages (identity-only shortcuts, a
+// depthwise 3×3, a squeeze-and-excitation gate, stochastic depth) between
+// densely linked blocks.
+func mobileStack(n int) *Stack {
+	s := &Stack{Input: Shape{3, 224, 224}, Layers: []Layer{
+		{Kind: KindConv, Filters: 32, Kernel: Square(3), Stride: Square(2), Pad: Padding{Size: Square(1)}, NoBias: true},
+		{Kind: KindNorm}, {Kind: KindAct, Act: ActReLU6},
+	}}
+	rows, c := 0, int64(32)
+	for stage := 0; rows < n-2; stage++ {
+		rows = len(Evaluate(s).Rows)
+		stride := int64(1)
+		if stage%4 == 1 && stage < 16 {
+			stride = 2
+		}
+		out := min(c+8, 320)
+		gate := Layer{Kind: KindGate, Body: []Layer{
+			{Kind: KindGlobalPool, Pool: PoolAvg},
+			{Kind: KindConv, Filters: 8, Kernel: Square(1)}, {Kind: KindAct},
+			{Kind: KindConv, Filters: 6 * c, Kernel: Square(1)}, {Kind: KindAct, Act: ActSigmoid},
+		}}
+		body := []Layer{
+			{Kind: KindConv, Filters: 6 * c, Kernel: Square(1), NoBias: true}, {Kind: KindNorm}, {Kind: KindAct, Act: ActReLU6},
+			{Kind: KindConv, Filters: 6 * c, Kernel: Square(3), Stride: Square(stride), Pad: Padding{Size: Square(1)}, Depthwise: true, NoBias: true},
+			{Kind: KindNorm}, {Kind: KindAct, Act: ActReLU6},
+			gate,
+			{Kind: KindConv, Filters: out, Kernel: Square(1), NoBias: true}, {Kind: KindNorm},
+		}
+		dense := Layer{Kind: KindBlock, Repeat: 2, DenseLinks: true, Body: []Layer{
+			{Kind: KindNorm}, {Kind: KindAct}, {Kind: KindConv, Filters: 8, Kernel: Square(3), Pad: Padding{Size: Square(1)}, NoBias: true},
+		}}
+		s.Layers = append(s.Layers,
+			Layer{Kind: KindBlock, Repeat: 3, Residual: true, IdentityOnly: true, DropPath: 0.1, Body: body},
+			dense,
+			Layer{Kind: KindConv, Filters: out, Kernel: Square(1), NoBias: true})
+		c = out
+	}
+	s.Layers = append(s.Layers, Layer{Kind: KindGlobalPool}, Layer{Kind: KindDense, Filters: 1000})
+	return s
+}
+
+func TestMobileStackResolves(t *testing.T) {
+	r := Evaluate(mobileStack(1000))
+	if len(r.Rows) < 1000 || r.Errors != 0 {
+		t.Fatalf("%d rows, %d errors: %v", len(r.Rows), r.Errors, r.Diags)
+	}
+}
+
+// BenchmarkEvaluate1000Mobile recomputes about 1,000 rows of gates,
+// identity-only residuals with stochastic depth and dense links; compare
+// it with BenchmarkEvaluate1000Blocks in the same run.
+func BenchmarkEvaluate1000Mobile(b *testing.B) { benchRecompute(b, mobileStack(1000)) }

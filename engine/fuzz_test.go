@@ -63,7 +63,7 @@ func FuzzFields(f *testing.F) {
 // FuzzParseQuick reads arbitrary quick-entry lines: no panic, errors wrap
 // ErrQuick, and an accepted line's summary reads back as the same layer.
 func FuzzParseQuick(f *testing.F) {
-	for _, s := range []string{"conv 64 k3 s2 p1", "pool max k3 s2 ceil", "act leaky-relu 0.2", "block 2 residual then relu", "concat a crop", "dense", "reshape 1x1x1", "conv 1 k1 @x"} {
+	for _, s := range []string{"conv 64 k3 s2 p1", "pool max k3 s2 ceil", "act leaky-relu 0.2", "block 2 residual then relu", "concat a crop", "dense", "reshape 1x1x1", "conv 1 k1 @x", "block 3 residual identity dp0.1 then relu6", "gate channel", "act relu6", "scale 1e-6", "shuffle g3", "act hard-sigmoid"} {
 		f.Add(s)
 	}
 	f.Fuzz(func(t *testing.T, s string) {
@@ -119,13 +119,16 @@ func stackFromBytes(data []byte) *Stack {
 				Groups: wide(), Depthwise: next()%5 == 0, NoBias: next()%2 == 0, OutPad: Pair{wide(), wide()},
 				Pool: PoolMode(next() % 2), Ceil: next()%2 == 0, Size: Pair{wide(), wide()}, Factor: Pair{wide(), wide()},
 				Upsample: UpsampleMode(next() % 2), Norm: NormKind(next() % 4), NormGroups: wide(), Affine: Toggle(next() % 3),
-				Act: ActKind(next() % 6), Rate: float64(next()%10) / 10, Target: Shape{wide(), wide(), wide()},
+				Act: ActKind(next() % int64(len(activations))), Rate: float64(next()%10) / 10, Target: Shape{wide(), wide(), wide()},
 				Repeat: wide(), Residual: next()%2 == 0, HasPostAct: next()%2 == 0, Crop: next()%2 == 0,
-				From: names[next()%3]}
+				From: names[next()%3], IdentityOnly: next()%2 == 0, DropPath: float64(next()%3) / 10}
+			if k == KindScale {
+				l.ScaleInit = float64(wide()) / 8
+			}
 			if next()%3 == 0 {
 				l.Name = names[next()%3]
 			}
-			if k == KindBlock {
+			if SpecOf(k).Body {
 				if depth < 3 {
 					l.Body = layers(depth + 1)
 				}

@@ -19,6 +19,8 @@ const (
 	ActSigmoid
 	ActTanh
 	ActReLU6
+	ActHardSwish
+	ActHardSigmoid
 )
 
 // activation describes one element-wise function.
@@ -47,6 +49,11 @@ var activations = [...]activation{
 	ActSigmoid: {"sigmoid", true, module("nn.Sigmoid()")},
 	ActTanh:    {"tanh", true, module("nn.Tanh()")},
 	ActReLU6:   {"relu6", false, module("nn.ReLU6()")}, // min(max(x, 0), 6); PyTorch saves the input
+	// Howard et al. 2019 (Searching for MobileNetV3), its section on
+	// nonlinearities: x·relu6(x + 3)/6 and relu6(x + 3)/6. PyTorch's
+	// backward of each reads its input (checked with saved_tensors_hooks).
+	ActHardSwish:   {"hard-swish", false, module("nn.Hardswish()")},
+	ActHardSigmoid: {"hard-sigmoid", false, module("nn.Hardsigmoid()")},
 }
 
 // String returns the stack-file value.

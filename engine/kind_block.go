@@ -30,6 +30,30 @@ var blockSpec = Spec{
 				return Value{Int: int64(l.PostAct)}
 			},
 			set: func(l *Layer, v Value) { l.PostAct, l.HasPostAct = ActKind(max(v.Int, 0)), v.Int >= 0 }},
+		{Key: "shortcut", Help: "projection (a 1×1 conv where shapes differ) or identity (add only where they match)",
+			Type: TChoice, Choices: []string{"projection", "identity"}, Words: []string{"", "identity"},
+			Only:    func(l *Layer) bool { return l.Residual },
+			OnlyMsg: "shortcut needs residual: true",
+			get: func(l *Layer) Value {
+				if l.IdentityOnly {
+					return Value{Int: 1}
+				}
+				return Value{}
+			},
+			set: func(l *Layer, v Value) { l.IdentityOnly = v.Int == 1 }},
+		{Key: "drop-path", Help: "stochastic depth: chance a sample skips the body while training, 0 to below 1",
+			Type: TFloat, FLo: 0, FHi: 1, Quick: "dp", Want: "give a number at least 0 and below 1, e.g. 0.1",
+			Only:    func(l *Layer) bool { return l.Residual },
+			OnlyMsg: "drop-path needs residual: true",
+			get:     func(l *Layer) Value { return Value{Float: l.DropPath} },
+			set:     func(l *Layer, v Value) { l.DropPath = v.Float }},
+		{Key: "dense-links", Help: "yes or no: each repeat's output joins its input along the channels", Type: TBool,
+			Words:     []string{"", "dense-links"},
+			Only:      func(l *Layer) bool { return !l.Residual },
+			OnlyMsg:   "dense-links and residual exclude each other; keep one",
+			OnlyQuick: "excludes residual; keep one",
+			get:       func(l *Layer) Value { return Value{Bool: l.DenseLinks} },
+			set:       func(l *Layer, v Value) { l.DenseLinks = v.Bool }},
 		{Key: "strides", Help: "first (later repeats run with stride 1) or all", Type: TChoice, Choices: []string{"first", "all"},
 			Words: []string{"", "strides-all"},
 			get: func(l *Layer) Value {

@@ -29,6 +29,15 @@ var addSpec = Spec{
 	Kind: KindAdd, Key: "add", Help: "add a named earlier output", Example: "add skip2",
 	Main: &fromParam, Params: []Param{cropParam}, Merge: true,
 	eval: func(c *calc, f *flow) { c.merge(f) },
+	// A residual addition with stochastic depth keeps its per-sample keep
+	// mask (N×1×1×1, in the activation precision); any other addition
+	// keeps nothing.
+	saved: func(row *Row, s *saving) int64 {
+		if row.Role == RoleResidual && row.Layer.Rate > 0 {
+			return s.e
+		}
+		return 0
+	},
 	torch: func(row *Row) Torch {
 		a, b := cropped(row)
 		return Torch{Expr: a + " + " + b}

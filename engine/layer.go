@@ -21,6 +21,9 @@ const (
 	KindBlock           // a group of layers, repeated, optionally residual
 	KindConcat          // channel-wise concatenation with a named earlier output
 	KindAdd             // element-wise sum with a named earlier output
+	KindGate            // the map scaled per channel by a gate its body computes from it
+	KindScale           // a learnable factor per channel (layer scale)
+	KindShuffle         // channel shuffle across groups
 	kindCount
 )
 
@@ -200,11 +203,24 @@ type Layer struct {
 	// block: activation applied after the residual addition, if HasPostAct.
 	PostAct    ActKind
 	HasPostAct bool
+	// block: add the input only where the shapes match, never through a
+	// projection (inverted residuals).
+	IdentityOnly bool
+	// block: stochastic depth, the probability of dropping a sample's
+	// residual branch while training (Huang et al. 2016).
+	DropPath float64
+	// block: each repeat's output is concatenated to its input along the
+	// channels (dense connectivity, Huang et al. 2017).
+	DenseLinks bool
 
 	// concat, add: name of the earlier layer or block whose output is merged.
 	From string
 	// concat, add: center-crop the larger map to the smaller one's size.
 	Crop bool
+
+	// scale: the value every per-channel factor starts at (the stack file's
+	// value; 1 when it is left out).
+	ScaleInit float64
 
 	Name string // optional short identifier
 	Note string // optional free text

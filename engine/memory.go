@@ -284,7 +284,7 @@ func (s *saving) output(row *Row) int64 {
 // savedBytes returns the bytes per sample row keeps for the backward pass,
 // by its kind's rule.
 func (r *Result) savedBytes(row *Row, s *saving) int64 {
-	if !row.Grad && row.Params <= 0 {
+	if !row.Grad && !row.OtherGrad && row.Params <= 0 {
 		return 0 // no gradient reaches here and nothing to learn
 	}
 	if sp := SpecOf(row.Layer.Kind); sp.saved != nil {
@@ -314,7 +314,7 @@ func (r *Result) peakLive(lastUse []int32) int64 {
 			continue
 		}
 		use(row.InStore, i)
-		if row.OtherStore >= -1 && (row.Layer.Kind.IsMerge()) {
+		if row.OtherStore >= -1 && (row.Layer.Kind.IsMerge() || row.Role == RoleGate) {
 			use(row.OtherStore, i)
 		}
 		use(row.OutStore, i)

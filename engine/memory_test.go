@@ -207,3 +207,31 @@ func BenchmarkMemory1000(b *testing.B) {
 		r.Memory(tr, engine.DefaultAssumptions(), &m)
 	}
 }
+
+// TestMobileKindsKeep checks what the new element-wise kinds keep for the
+// backward pass, per row, fp32, batch 1, against PyTorch 1.13's autograd
+// (PyTorch as reference library, read with saved_tensors_hooks):
+// Hardswish and Hardsigmoid save their input; x · γ[:, None, None] saves x
+// (and γ, a parameter); the shuffle's reshape, transpose and copy save
+// nothing.
+func TestMobileKindsKeep(t *testing.T) {
+	s := &engine.Stack{Input: engine.Shape{C: 8, H: 4, W: 4}, Layers: []engine.Layer{
+		{Kind: engine.KindConv, Filters: 16, Kernel: engine.Square(1)},
+		{Kind: engine.KindAct, Act: engine.ActHardSwish},
+		{Kind: engine.KindScale, ScaleInit: 1e-6},
+		{Kind: engine.KindShuffle, Groups: 4},
+		{Kind: engine.KindAct, Act: engine.ActHardSigmoid},
+	}}
+	r := engine.Evaluate(s)
+	if r.Errors != 0 {
+		t.Fatal(r.Diags)
+	}
+	var m engine.Memory
+	r.Memory(engine.Training{Batch: 1}, engine.DefaultAssumptions(), &m)
+	want := []int64{8 * 16 * 4, 16 * 16 * 4, 16 * 16 * 4, 0, 16 * 16 * 4}
+	for i, w := range want {
+		if m.Rows[i] != w {
+			t.Errorf("row %d (%s) keeps %d bytes, want %d", i+1, engine.RowSummary(&r.Rows[i]), m.Rows[i], w)
+		}
+	}
+}

@@ -14,6 +14,8 @@ const (
 	SegShortcutNorm = 0xFFF2 // batch norm after it, shown "s2"
 	SegResidualAdd  = 0xFFFA // the addition, shown "add"
 	SegPostAct      = 0xFFFB // activation after the addition, shown "act"
+	SegGateMul      = 0xFFFC // the multiplication by a gate, shown "mul"
+	SegDenseCat     = 0xFFFD // a densely linked repeat's concatenation, shown "cat"
 )
 
 // seg clamps a 1-based item number into a regular segment.
@@ -93,6 +95,10 @@ func (p Path) AppendTo(b []byte) []byte {
 			b = append(b, "add"...)
 		case SegPostAct:
 			b = append(b, "act"...)
+		case SegGateMul:
+			b = append(b, "mul"...)
+		case SegDenseCat:
+			b = append(b, "cat"...)
 		default:
 			b = strconv.AppendUint(b, uint64(v), 10)
 		}

@@ -61,6 +61,12 @@ func TestQuickParse(t *testing.T) {
 		{"block 3 residual then relu", engine.Layer{Kind: engine.KindBlock, Repeat: 3, Residual: true, PostAct: engine.ActReLU, HasPostAct: true}},
 		{"concat Skip1 crop", engine.Layer{Kind: engine.KindConcat, From: "Skip1", Crop: true}},
 		{"  DENSE   10  ", engine.Layer{Kind: engine.KindDense, Filters: 10}},
+		{"act hard-swish", engine.Layer{Kind: engine.KindAct, Act: engine.ActHardSwish}},
+		{"scale 1e-6", engine.Layer{Kind: engine.KindScale, ScaleInit: 1e-6}},
+		{"scale", engine.Layer{Kind: engine.KindScale, ScaleInit: 1}},
+		{"shuffle g2", engine.Layer{Kind: engine.KindShuffle, Groups: 2}},
+		{"shuffle 3 @mix", engine.Layer{Kind: engine.KindShuffle, Groups: 3, Name: "mix"}},
+		{"shuffle g1", engine.Layer{Kind: engine.KindShuffle}},
 	}
 	for _, tt := range tests {
 		got, err := engine.ParseQuick(tt.line)
@@ -87,6 +93,9 @@ func TestQuickErrors(t *testing.T) {
 		{"conv 99999999999999999999 k3", "give a whole number from 1 to 16777216"},
 		{"conv 64 k3 @9bad", `"9bad" is not a layer name`},
 		{"block 2 then relu", `"then relu" follows a residual addition; add residual`},
+		{"shuffle", "shuffle needs a group count, e.g. shuffle g2"},
+		{"shuffle g0", "give a whole number from 1 to 16777216"},
+		{"scale 1e7", "give a number from 0 and below 1e6, e.g. 1e-6"},
 	}
 	for _, tt := range tests {
 		_, err := engine.ParseQuick(tt.line)

@@ -190,3 +190,53 @@ func TestUpsampleAndAdaptive(t *testing.T) {
 		t.Errorf("global pool out %v rf %v", row.Out, row.RF)
 	}
 }
+
+// TestMobileKinds checks the per-channel scale and the channel shuffle.
+// Widths are those of the papers' tables (values from memory): ShuffleNet
+// V1 with g = 3 has 240 channels at 28×28 in stage 2 (Zhang et al. 2018,
+// Table 1); ShuffleNet V2 1× has 116 there and shuffles 2 groups (Ma et al.
+// 2018, Table 5 and Fig. 3); ConvNeXt-T's first stage is 96 wide at 56×56
+// with one layer-scale factor per channel starting at 1e-6 (Liu et al.
+// 2022). A shuffle and a scale keep the shape (PyTorch's ChannelShuffle
+// documentation: output (N, C, H, W) from input (N, C, H, W)).
+func TestMobileKinds(t *testing.T) {
+	tests := []struct {
+		source string
+		in     Shape
+		l      Layer
+		params int64
+	}{
+		{"Zhang et al. 2018, Table 1: g = 3, stage 2", Shape{240, 28, 28}, Layer{Kind: KindShuffle, Groups: 3}, 0},
+		{"Ma et al. 2018, Table 5: 1×, stage 2", Shape{116, 28, 28}, Layer{Kind: KindShuffle, Groups: 2}, 0},
+		{"one group is the identity permutation (common practice)", Shape{7, 5, 3}, Layer{Kind: KindShuffle}, 0},
+		{"Liu et al. 2022: ConvNeXt-T stage 1, γ = 1e-6", Shape{96, 56, 56}, Layer{Kind: KindScale, ScaleInit: 1e-6}, 96},
+		{"the start value changes no count (PyTorch: one nn.Parameter of C values)", Shape{96, 56, 56}, Layer{Kind: KindScale, ScaleInit: 1}, 96},
+		{"Howard et al. 2019: hard-swish is element-wise", Shape{16, 112, 112}, Layer{Kind: KindAct, Act: ActHardSwish}, 0},
+		{"Howard et al. 2019: hard-sigmoid is element-wise", Shape{72, 1, 1}, Layer{Kind: KindAct, Act: ActHardSigmoid}, 0},
+	}
+	for _, tt := range tests {
+		t.Run(tt.source, func(t *testing.T) {
+			r, row := single(tt.in, tt.l)
+			if r.Errors != 0 {
+				t.Fatalf("unexpected errors: %v", r.Diags)
+			}
+			if row.Out != tt.in || row.Params != tt.params || row.Buffers != 0 || row.MACs != 0 || row.RF != (FPair{1, 1}) {
+				t.Errorf("out %v params %d buffers %d MACs %d rf %v; want %v, %d, 0, 0, 1×1", row.Out, row.Params, row.Buffers, row.MACs, row.RF, tt.in, tt.params)
+			}
+		})
+	}
+	// ShuffleNet V2's 116 channels do not split into 3 groups (116 = 4·29);
+	// PyTorch's reshape to (N, 3, 116/3, H, W) refuses it.
+	r, _ := single(Shape{116, 28, 28}, Layer{Kind: KindShuffle, Groups: 3})
+	if !hasCode(r, ErrShuffleGroups) || r.Diags[0].Field != "groups" {
+		t.Errorf("116 channels in 3 groups: %v, want ErrShuffleGroups on groups", r.Diags)
+	} else if msg := r.Diags[0].Message(); msg != "channels 116 are not divisible by shuffle groups 3; pick groups that divide 116, or make the layer before give a multiple of 3" {
+		t.Errorf("message %q", msg)
+	}
+	// The permutation of Zhang et al. 2018, section 3.1 (from memory):
+	// reshape the channels to (g, C/g), transpose, flatten.
+	r, _ = single(Shape{240, 28, 28}, Layer{Kind: KindShuffle, Groups: 3})
+	if got := r.Explain(0); len(got) < 2 || got[0] != "240 channels = 3 groups × 80" || got[1] != "output channel 3·i + j ← input channel 80·j + i (i < 80, j < 3); 0 params, 0 MACs" {
+		t.Errorf("explain %q", got)
+	}
+}

@@ -59,7 +59,8 @@ var specs [kindCount]*Spec
 func init() {
 	for _, s := range []*Spec{&convSpec, &deconvSpec, &poolSpec, &globalPoolSpec, &poolToSpec,
 		&upsampleSpec, &normSpec, &actSpec, &dropoutSpec, &flattenSpec, &denseSpec,
-		&reshapeSpec, &blockSpec, &concatSpec, &addSpec} {
+		&reshapeSpec, &blockSpec, &concatSpec, &addSpec, &gateSpec,
+		&scaleSpec, &shuffleSpec} {
 		specs[s.Kind] = s
 	}
 }

@@ -43,7 +43,7 @@ func (s *Stack) BlockAt(p Path) *Layer {
 	var l *Layer
 	for i := 0; i < p.Len(); i += 2 {
 		k := p.At(i) - 1
-		if k < 0 || k >= len(ls) || ls[k].Kind != KindBlock || p.At(i+1) > int(max(ls[k].Repeat, 1)) {
+		if k < 0 || k >= len(ls) || !SpecOf(ls[k].Kind).Body || p.At(i+1) > int(max(ls[k].Repeat, 1)) {
 			return nil
 		}
 		l = &ls[k]

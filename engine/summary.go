@@ -91,7 +91,16 @@ func RowSummary(r *Row) string {
 		return ""
 	}
 	if r.Role == RoleResidual {
+		if r.Layer.Rate > 0 {
+			return "add shortcut drop-path " + strconv.FormatFloat(r.Layer.Rate, 'g', -1, 64)
+		}
 		return "add shortcut"
+	}
+	if r.Role == RoleGate {
+		return "multiply by gate"
+	}
+	if r.Role == RoleDenseCat {
+		return "concat repeat input"
 	}
 	if !r.Unstrided {
 		return Summary(r.Layer)

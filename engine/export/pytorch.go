@@ -83,6 +83,33 @@ class Dense(nn.Module):
         return self.fc(x.flatten(1))[:, :, None, None]
 
 
+class ChannelScale(nn.Module):
+    """A learnable factor per channel (layer scale)."""
+
+    def __init__(self, channels, init=1.0):
+        super().__init__()
+        self.gamma = nn.Parameter(torch.full((channels,), float(init)))
+
+    def forward(self, x):
+        return x * self.gamma[:, None, None]
+
+
+class DropPath(nn.Module):
+    """Stochastic depth: zeroes a sample's residual branch with probability p
+    while training, scaling the kept ones by 1 / (1 - p)."""
+
+    def __init__(self, p):
+        super().__init__()
+        self.p = p
+
+    def forward(self, x):
+        if not self.training or self.p == 0.0:
+            return x
+        keep = 1.0 - self.p
+        noise = torch.empty([x.shape[0], 1, 1, 1], dtype=x.dtype, device=x.device).bernoulli_(keep)
+        return x * noise.div_(keep)
+
+
 def center_crop(x, h, w):
     top, left = (x.shape[2] - h) // 2, (x.shape[3] - w) // 2
     return x[:, :, top:top + h, left:left + w]`
@@ -172,11 +199,23 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 	for i := range ls {
 		l := &ls[i]
 		p := parent.Append(i + 1)
-		if l.Kind == engine.KindBlock {
+		switch l.Kind {
+		case engine.KindGate:
+			gp := p.Append(1)
+			saved := "g" + strings.TrimPrefix(ident(gp), "l")
+			g.fwd = append(g.fwd, saved+" = x")
+			g.walk(l.Body, gp) // x becomes the gate
+			if g.next >= len(g.r.Rows) || g.r.Rows[g.next].Role != engine.RoleGate {
+				g.fail("gate rows out of order near row %d", g.next+1)
+				return
+			}
+			g.next++
+			g.fwd = append(g.fwd, "x = "+saved+" * x")
+		case engine.KindBlock:
 			for rep := 1; rep <= int(max(l.Repeat, 1)); rep++ {
 				rp := p.Append(rep)
 				saved := ""
-				if l.Residual {
+				if l.Residual || l.DenseLinks {
 					saved = "r" + strings.TrimPrefix(ident(rp), "l")
 					g.fwd = append(g.fwd, saved+" = x")
 				}
@@ -184,8 +223,16 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 				if l.Residual {
 					g.residual(saved)
 				}
+				if l.DenseLinks {
+					if g.next >= len(g.r.Rows) || g.r.Rows[g.next].Role != engine.RoleDenseCat {
+						g.fail("dense-link rows out of order near row %d", g.next+1)
+						return
+					}
+					g.next++
+					g.fwd = append(g.fwd, "x = torch.cat(["+saved+", x], 1)") // the repeat's input first, as DenseNet orders them
+				}
 			}
-		} else {
+		default:
 			g.row()
 		}
 		if l.Name != "" {
@@ -208,12 +255,23 @@ func (g *gen) residual(saved string) {
 		g.fwd = append(g.fwd, fmt.Sprintf("sc = self.%s(%s)", id, sc))
 		sc = "sc"
 	}
-	if g.next >= len(g.r.Rows) || g.r.Rows[g.next].Role != engine.RoleResidual {
+	switch {
+	case g.next < len(g.r.Rows) && g.r.Rows[g.next].Role == engine.RoleResidual:
+		row := &g.r.Rows[g.next]
+		g.next++
+		body := "x"
+		if rate := row.Layer.Rate; rate > 0 {
+			id := ident(row.Path)
+			g.init = append(g.init, fmt.Sprintf("self.%s = DropPath(%s)", id, strconv.FormatFloat(rate, 'g', -1, 64)))
+			body = fmt.Sprintf("self.%s(x)", id)
+		}
+		g.fwd = append(g.fwd, "x = "+body+" + "+sc)
+	case sc == saved:
+		// An identity-only residual whose shapes differ: no addition.
+	default:
 		g.fail("residual rows out of order near row %d", g.next+1)
 		return
 	}
-	g.next++
-	g.fwd = append(g.fwd, "x = x + "+sc)
 	if g.next < len(g.r.Rows) && g.r.Rows[g.next].Role == engine.RolePostAct {
 		row := &g.r.Rows[g.next]
 		g.next++

@@ -35,7 +35,9 @@ func WriteText(w io.Writer, an *engine.Analysis) error {
 				if b.Name != "" {
 					label += " [" + b.Name + "]"
 				}
-				label += fmt.Sprintf(" — repeat %d of %d", head.At(d-1), max(b.Repeat, 1))
+				if b.Kind == engine.KindBlock {
+					label += fmt.Sprintf(" — repeat %d of %d", head.At(d-1), max(b.Repeat, 1))
+				}
 				t.add(head.String(), label, "", "", "", "", "")
 			}
 		}

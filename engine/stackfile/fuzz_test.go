@@ -27,6 +27,7 @@ func FuzzLoad(f *testing.F) {
 	}
 	f.Add([]byte("stackfit: 1\ninput: [3, 8, 8]\nlayers: [{conv: 8, kernel: [3, 5], pad: same, groups: depthwise}]\n"))
 	f.Add([]byte("a: &a [*a, *a]\n"))
+	f.Add([]byte("stackfit: 1\ninput: [8, 8, 8]\nlayers:\n  - block: 2\n    residual: true\n    shortcut: identity\n    drop-path: 0.1\n    layers:\n      - {conv: 16, kernel: 1}\n      - gate: channel\n        layers: [global-pool, {conv: 4, kernel: 1}, {act: relu}, {conv: 16, kernel: 1}, {act: sigmoid}]\n"))
 	f.Add([]byte("stackfit: 1\ninput: [3, 8, 8]\nlayers:\n  - block: 2\n    residual: true\n    layers: [{add: x}]\n"))
 	sentinels := []error{ErrSyntax, ErrUnknown, ErrType, ErrRange, ErrMissing, ErrVersion, ErrTooLarge, ErrAlias, ErrNesting, ErrName}
 	f.Fuzz(func(t *testing.T, data []byte) {

@@ -63,6 +63,13 @@ func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
 				sp.Main.Set(&l, sp.Main.Default)
 			}
 			return l
+		} else if ok {
+			what := "its value"
+			if sp.Main != nil {
+				what = "its " + sp.Main.Key
+			}
+			d.fail(n, where, ErrMissing, "%s needs %s; write it as {%s: …}", n.Value, what, n.Value)
+			return l
 		}
 		d.badKind(n, where, n.Value)
 		return l

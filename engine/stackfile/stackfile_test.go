@@ -73,6 +73,10 @@ layers:
   - {norm: instance, affine: true}
   - {norm: layer, affine: false}
   - {act: leaky-relu, slope: 0.2}
+  - {act: hard-swish}
+  - {scale: 1e-6}
+  - scale
+  - {shuffle: 2}
   - {dropout: 0.25}
   - {pool-to: [4, 5]}
   - flatten
@@ -98,6 +102,10 @@ layers:
 	if !s.Layers[1].Depthwise || s.Layers[1].Pad.Mode != engine.PadSame || s.Layers[2].Pad.Mode != engine.PadValid {
 		t.Errorf("depthwise/same/valid not read: %+v %+v", s.Layers[1], s.Layers[2])
 	}
+	// A bare scale starts its factors at 1 and saves the value written out.
+	if l := s.Layers[11]; l.Kind != engine.KindScale || l.ScaleInit != 1e-6 || s.Layers[12].ScaleInit != 1 || s.Layers[13].Groups != 2 {
+		t.Errorf("scale/shuffle not read: %+v %+v %+v", l, s.Layers[12], s.Layers[13])
+	}
 	out, _ := Save(s)
 	s2, err := Load(out)
 	if err != nil {
@@ -105,6 +113,11 @@ layers:
 	}
 	if !reflect.DeepEqual(s, s2) {
 		t.Errorf("round trip differs\n%s", out)
+	}
+	for _, line := range []string{"  - {act: hard-swish}\n", "  - {scale: 1e-06}\n  - {scale: 1.0}\n  - {shuffle: 2}\n"} {
+		if !strings.Contains(string(out), line) {
+			t.Errorf("saved form lacks %q:\n%s", line, out)
+		}
 	}
 }
 
@@ -121,7 +134,7 @@ func TestLoadErrors(t *testing.T) {
 		{"unknown key with hint", head + "  - {conv: 8, kernal: 3}\n",
 			ErrUnknown, `4:15: layer 1 (conv): unknown key "kernal"; did you mean "kernel"? (allowed: conv, kernel, stride, pad, dilation, groups, bias, name, note)`},
 		{"unknown kind with hint", head + "  - {convv: 8, kernel: 3}\n",
-			ErrUnknown, `4:5: layer 1: unknown layer kind "convv"; did you mean "conv"? (kinds: conv, deconv, pool, global-pool, pool-to, upsample, norm, act, dropout, flatten, dense, reshape, block, concat, add)`},
+			ErrUnknown, `4:5: layer 1: unknown layer kind "convv"; did you mean "conv"? (kinds: conv, deconv, pool, global-pool, pool-to, upsample, norm, act, dropout, flatten, dense, reshape, block, concat, add, gate, scale, shuffle)`},
 		{"unknown top-level key", "stackfit: 1\ninput: [3, 32, 32]\nlayer:\n  - flatten\n",
 			ErrUnknown, `3:1: file: unknown key "layer"; did you mean "layers"? (allowed: stackfit, name, note, input, training, layers)`},
 		{"wrong type", head + "  - {conv: eight, kernel: 3}\n",
@@ -137,7 +150,7 @@ func TestLoadErrors(t *testing.T) {
 		{"missing kernel", head + "  - {conv: 8}\n",
 			ErrMissing, `4:5: layer 1 (conv): needs a kernel; add e.g. kernel: 3 or kernel: [3, 5]`},
 		{"bad choice", head + "  - {act: rleu}\n",
-			ErrRange, `4:11: layer 1 (act) → act: "rleu" is not one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6; did you mean "relu"?`},
+			ErrRange, `4:11: layer 1 (act) → act: "rleu" is not one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid; did you mean "relu"?`},
 		{"bad pad word", head + "  - {conv: 8, kernel: 3, pad: half}\n",
 			ErrRange, `4:31: layer 1 (conv) → pad: "half" is not one of same, valid`},
 		{"input shape", "stackfit: 1\ninput: [3, 32]\nlayers: []\n",
@@ -168,6 +181,10 @@ func TestLoadErrors(t *testing.T) {
 		{"empty", "", ErrMissing, `the file is empty; a stack file needs at least input: and layers:`},
 		{"slope on relu", head + "  - {act: relu, slope: 0.1}\n",
 			ErrUnknown, `4:5: layer 1 (act): slope applies only to leaky-relu; remove it or write act: leaky-relu`},
+		{"shuffle without groups", head + "  - {shuffle: 0}\n",
+			ErrRange, `4:15: layer 1 (shuffle) → shuffle (groups): 0 is out of range; it must be between 1 and 16777216`},
+		{"negative scale start", head + "  - {scale: -1}\n",
+			ErrRange, `4:13: layer 1 (scale) → scale (initial factor): -1 is out of range; it must be at least 0 and below 1e+06`},
 		{"dropout rate", head + "  - {dropout: 1.5}\n",
 			ErrRange, `4:15: layer 1 (dropout) → dropout (rate): 1.5 is out of range; it must be at least 0 and below 1`},
 	}

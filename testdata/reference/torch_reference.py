@@ -72,6 +72,35 @@ class ChannelLayerNorm(nn.Module):
         return self.norm(x.permute(0, 2, 3, 1)).permute(0, 3, 1, 2)
 
 
+class ChannelScale(nn.Module):
+    """stackfit's scale: a learnable factor per channel, x · γ (layer scale,
+    Touvron et al. 2021; ConvNeXt, Liu et al. 2022), γ starting at init."""
+
+    def __init__(self, c, init):
+        super().__init__()
+        self.gamma = nn.Parameter(torch.full((c,), float(init)))
+
+    def forward(self, x):
+        return x * self.gamma[:, None, None]
+
+
+class ChannelShuffle(nn.Module):
+    """stackfit's shuffle (ShuffleNet, Zhang et al. 2018): channels as
+    (groups, C/groups), transposed, flattened. PyTorch 1.13's own
+    nn.ChannelShuffle gives the same values (checked in main) but has no
+    backward, so the training run uses this form."""
+
+    def __init__(self, groups):
+        super().__init__()
+        self.groups = groups
+
+    def forward(self, x):
+        n, c, h, w = x.shape
+        if c % self.groups:
+            raise ValueError(f"{c} channels do not split into {self.groups} groups")
+        return x.reshape(n, self.groups, c // self.groups, h, w).transpose(1, 2).reshape(n, c, h, w)
+
+
 def build(layer, c):
     """Returns the torch module for one stack-file layer on c input channels."""
     if "conv" in layer or "deconv" in layer:
@@ -125,7 +154,13 @@ def build(layer, c):
             "sigmoid": nn.Sigmoid(),
             "tanh": nn.Tanh(),
             "relu6": nn.ReLU6(),
+            "hard-swish": nn.Hardswish(),
+            "hard-sigmoid": nn.Hardsigmoid(),
         }[layer["act"]]
+    if layer == "scale" or "scale" in layer:
+        return ChannelScale(c, 1.0 if layer == "scale" else layer["scale"])
+    if "shuffle" in layer:
+        return ChannelShuffle(layer["shuffle"])
     if "dropout" in layer:
         return nn.Dropout(layer["dropout"])
     if layer == "flatten":
@@ -141,7 +176,7 @@ STRIDED = ("conv", "deconv", "pool")
 
 
 def kind_of(layer):
-    return "flatten" if layer == "flatten" else next(iter(layer))
+    return layer if isinstance(layer, str) else next(iter(layer))  # "flatten", "scale"
 
 
 def center_crop(x, h, w):
@@ -178,6 +213,8 @@ class Runner:
             path = prefix + [str(i + 1)]
             if isinstance(layer, dict) and "block" in layer:
                 x = self.block(layer, path, x, unstrided)
+            elif isinstance(layer, dict) and "gate" in layer:
+                x = self.gate(layer, path, x, unstrided)
             else:
                 x = self.one(layer, path, x, unstrided)
             if isinstance(layer, dict) and "name" in layer:
@@ -206,15 +243,48 @@ class Runner:
         self.row(path, y, m)
         return y
 
+    def gate(self, layer, path, x, unstrided):
+        """A channel gate: its layers compute a C×1×1 gate from the map, which
+        then multiplies the map (squeeze-and-excitation, Hu et al. 2018)."""
+        gp = path + ["1"]
+        g = self.items(layer["layers"], gp, x, unstrided)
+        if tuple(g.shape[1:]) != (x.shape[1], 1, 1):
+            raise ValueError("a channel gate must end in C×1×1")
+        y = x * g
+        self.row(gp + ["mul"], y, None)
+        return y
+
+    def drop_path(self, x, p):
+        """Stochastic depth on a residual branch (Huang et al. 2016), one
+        keep-or-drop draw per sample, kept samples scaled by 1 / (1 - p)."""
+        if not self.train or p == 0:
+            return x
+        noise = torch.empty([x.shape[0], 1, 1, 1], dtype=x.dtype).bernoulli_(1 - p)
+        return x * noise.div_(1 - p)
+
     def block(self, layer, path, x, unstrided):
         for rep in range(1, layer["block"] + 1):
             rp = path + [str(rep)]
             inp = x
             un = unstrided or (rep > 1 and layer.get("strides", "first") != "all")
             x = self.items(layer["layers"], rp, x, un)
+            if layer.get("dense-links"):
+                # Dense connectivity (Huang et al. 2017): the repeat's input,
+                # then its output, along the channels.
+                if x.shape[2:] != inp.shape[2:]:
+                    raise ValueError("a densely linked repeat changed the map size")
+                x = torch.cat([inp, x], 1)
+                self.row(rp + ["cat"], x, None)
             if not layer.get("residual"):
                 continue
             sc = inp
+            if sc.shape != x.shape and layer.get("shortcut") == "identity":
+                # An inverted residual adds its input only where shapes match.
+                if "after" in layer:
+                    act = build({"act": layer["after"]}, x.shape[1])
+                    x = act(x)
+                    self.row(rp + ["act"], x, act)
+                continue
             if sc.shape != x.shape:
                 # The repeat's total stride, from the strides written in its body.
                 sh = sw = 1
@@ -233,7 +303,7 @@ class Runner:
                     self.row(rp + ["s2"], sc, bn)
             if sc.shape != x.shape:
                 raise ValueError("shortcut shape differs")
-            x = x + sc
+            x = self.drop_path(x, layer.get("drop-path", 0)) + sc
             self.row(rp + ["add"], x, None)
             if "after" in layer:
                 act = build({"act": layer["after"]}, x.shape[1])
@@ -381,7 +451,7 @@ def random_layer(rng, c, kind):
             l["affine"] = rng.random() < 0.5
         return l
     if kind == "act":
-        a = rng.choice(["relu", "leaky-relu", "gelu", "silu", "sigmoid", "tanh", "relu6"])
+        a = rng.choice(["relu", "leaky-relu", "gelu", "silu", "sigmoid", "tanh", "relu6", "hard-swish", "hard-sigmoid"])
         l = {"act": a}
         if a == "leaky-relu" and rng.random() < 0.5:
             l["slope"] = 0.2
@@ -397,11 +467,20 @@ def random_layer(rng, c, kind):
         return l
     if kind == "reshape":
         return None  # filled in by the caller, which knows the element count
+    if kind == "scale":
+        return "scale" if rng.random() < 0.2 else {"scale": rng.choice([1e-6, 1e-5, 0.1, 1.0, 0.0])}
+    if kind == "shuffle":
+        fits = [g for g in range(2, 9) if c % g == 0]
+        misfits = [g for g in range(2, 9) if c % g]
+        if misfits and (not fits or rng.random() < 0.2):
+            return {"shuffle": rng.choice(misfits)}  # PyTorch refuses it
+        return {"shuffle": rng.choice(fits or [1])}
     raise ValueError(kind)
 
 
 KINDS = ["conv", "deconv", "pool", "global-pool", "pool-to", "upsample", "norm", "act",
-         "dropout", "flatten", "dense", "reshape", "block", "concat", "add"]
+         "dropout", "flatten", "dense", "reshape", "scale", "shuffle", "block", "concat", "add", "gate"]
+SINGLE = 14  # KINDS[:SINGLE] are the kinds random_layer writes
 
 
 def generated(rng, n):
@@ -410,9 +489,9 @@ def generated(rng, n):
         layers = []
         x = torch.zeros(1, c, h, w)
         # The first layers of each case favour one kind in turn, so every kind appears.
-        focus = KINDS[i % 12]
+        focus = KINDS[i % SINGLE]
         for j in range(rng.randint(4, 12)):
-            kind = focus if j in (1, 3) else rng.choice(KINDS[:12])
+            kind = focus if j in (1, 3) else rng.choice(KINDS[:SINGLE])
             if kind in ("dense", "reshape") and rng.random() < 0.85:
                 layers.append("flatten")
                 x = x.reshape(1, -1, 1, 1)
@@ -493,6 +572,29 @@ def block_cases(rng):
     yield "crop where the map here is the larger", [4, 30, 30], [
         dict(conv(8, 5), name="small"), {"upsample": 1}, {"pool-to": 20}, {"concat": "small", "crop": True}]
     yield "residual stage stack (two stages)", [32, 33, 33], [res(2, basic(32, 1), name="s1"), res(2, basic(64, 2), name="s2"), {"global-pool": "avg"}, {"dense": 10}]
+    se = lambda c, s: {"gate": "channel", "layers": [{"global-pool": "avg"}, conv(s, 1, bias=True), RELU, conv(c, 1, bias=True), {"act": "sigmoid"}]}
+
+    def inverted(cin, cout, s, t):
+        return [conv(cin * t, 1), BN, {"act": "relu6"}, dict(conv(cin * t, 3, s, 1), groups="depthwise"), BN, {"act": "relu6"},
+                conv(cout, 1), BN]
+    yield "squeeze-and-excitation gate", [16, 14, 14], [conv(32, 3, 1, 1), BN, RELU, se(32, 8), {"global-pool": "avg"}, {"dense": 5}]
+    yield "gate at the very start (only the gate learns)", [8, 9, 7], [se(8, 8), conv(8, 3, 1, 1)]
+    yield "inverted residual, identity only where shapes match", [16, 24, 24], [
+        {"block": 3, "residual": True, "shortcut": "identity", "layers": inverted(16, 24, 2, 6)}]
+    yield "inverted residual stages with gates", [16, 20, 20], [
+        {"block": 2, "residual": True, "shortcut": "identity", "layers": inverted(16, 16, 1, 4) + [se(16, 8)]},
+        {"block": 2, "residual": True, "shortcut": "identity", "layers": inverted(16, 24, 2, 4)}, {"global-pool": "avg"}]
+    yield "residual with stochastic depth", [16, 12, 12], [res(3, basic(16, 1), **{"drop-path": 0.2}), res(2, basic(32, 2), **{"drop-path": 0.1})]
+    yield "gate nested in a gate's block", [8, 16, 16], [
+        {"block": 2, "residual": True, "layers": [conv(8, 3, 1, 1), BN, RELU, se(8, 8)]}]
+    yield "dense block, 4 repeats growing by 12", [24, 16, 16], [
+        {"block": 4, "dense-links": True, "layers": [BN, RELU, conv(48, 1), BN, RELU, conv(12, 3, 1, 1)]}, BN]
+    yield "dense blocks with a transition between", [3, 32, 32], [
+        conv(16, 3, 1, 1), {"block": 3, "dense-links": True, "layers": [BN, RELU, conv(8, 3, 1, 1)]},
+        BN, RELU, conv(20, 1), {"pool": "avg", "kernel": 2}, {"block": 2, "dense-links": True, "layers": [BN, RELU, conv(8, 3, 1, 1)]}]
+    yield "error: a densely linked repeat that strides", [8, 16, 16], [{"block": 2, "dense-links": True, "layers": [conv(8, 3, 2, 1)]}]
+    yield "error: a gate that does not end in C×1×1", [8, 10, 10], [conv(16, 3, 1, 1), {"gate": "channel", "layers": [conv(16, 1)]}]
+    yield "error: a gate with the wrong channel count", [8, 10, 10], [conv(16, 3, 1, 1), se(8, 8)]
     yield "error: add with different channels", [8, 16, 16], [dict(conv(8, 1), name="a"), conv(16, 1), {"add": "a"}]
     yield "error: concat without crop on different sizes", [8, 16, 16], [dict(conv(8, 1), name="a"), {"pool": "max", "kernel": 2}, {"concat": "a"}]
     yield "error: merge with a name not yet seen", [8, 16, 16], [{"concat": "later"}, dict(conv(8, 1), name="later")]
@@ -509,7 +611,21 @@ def block_cases(rng):
         yield f"generated residual {i + 1:02d}", [rng.choice([3, 8]), rng.randint(9, 41), rng.randint(9, 41)], layers
 
 
+def check_forms():
+    """The script's own forms against PyTorch's: the shuffle equals
+    nn.ChannelShuffle, the hard activations their definitions (Howard et al.
+    2019: x·relu6(x + 3)/6 and relu6(x + 3)/6)."""
+    x = torch.randn(2, 12, 3, 5)
+    for g in (1, 2, 3, 4, 6):
+        if not torch.equal(ChannelShuffle(g)(x), nn.ChannelShuffle(g)(x)):
+            sys.exit(f"ChannelShuffle({g}) differs from nn.ChannelShuffle")
+    r6 = torch.clamp(x + 3, 0, 6) / 6
+    if not (torch.allclose(nn.Hardswish()(x), x * r6) and torch.allclose(nn.Hardsigmoid()(x), r6)):
+        sys.exit("hard-swish or hard-sigmoid differs from its definition")
+
+
 def main():
+    check_forms()
     torch.manual_seed(0)
     rng = random.Random(SEED)
     cases = []

@@ -80,6 +80,21 @@ func newLayer(k engine.Kind, c int64) engine.Layer {
 		return engine.Layer{Kind: k, Filters: 10}
 	case engine.KindReshape:
 		return engine.Layer{Kind: k, Target: engine.Shape{C: c, H: 1, W: 1}}
+	case engine.KindGate:
+		// A squeeze-and-excitation gate (Hu et al. 2018): pool, squeeze to a
+		// quarter of the channels (a multiple of 8, at least 8), expand back.
+		squeeze := engine.RoundToMultiple(max(c/4, 1), 8)
+		return engine.Layer{Kind: k, Body: []engine.Layer{
+			{Kind: engine.KindGlobalPool, Pool: engine.PoolAvg},
+			{Kind: engine.KindConv, Filters: squeeze, Kernel: engine.Square(1)},
+			{Kind: engine.KindAct, Act: engine.ActReLU},
+			{Kind: engine.KindConv, Filters: c, Kernel: engine.Square(1)},
+			{Kind: engine.KindAct, Act: engine.ActSigmoid},
+		}}
+	case engine.KindScale:
+		return engine.Layer{Kind: k, ScaleInit: 1e-6} // layer scale's usual start (Liu et al. 2022)
+	case engine.KindShuffle:
+		return engine.Layer{Kind: k, Groups: 2}
 	case engine.KindBlock:
 		return engine.Layer{Kind: k, Repeat: 1}
 	}

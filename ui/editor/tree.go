@@ -106,18 +106,18 @@ func buildItems(s *engine.Stack, r *engine.Result, folded map[string]bool, out [
 			}
 			if j < len(r.Rows) && r.Rows[j].Path.HasPrefix(p) {
 				it.first, it.last = j, j
-				if ls[i].Kind == engine.KindBlock {
+				if engine.SpecOf(ls[i].Kind).Body {
 					for k := j + 1; k < len(r.Rows) && r.Rows[k].Path.HasPrefix(p); k++ {
 						it.last = k
 					}
 				}
 				next = j
-				if ls[i].Kind != engine.KindBlock || folded[a.key()] {
+				if !engine.SpecOf(ls[i].Kind).Body || folded[a.key()] {
 					next = it.last + 1
 				}
 			}
 			out = append(out, it)
-			if ls[i].Kind == engine.KindBlock && !folded[a.key()] {
+			if engine.SpecOf(ls[i].Kind).Body && !folded[a.key()] {
 				walk(ls[i].Body, a, depth+1)
 				next = max(next, it.last+1)
 			}

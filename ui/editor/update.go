@@ -148,8 +148,8 @@ func (m *Model) normal(msg tea.KeyMsg) tea.Cmd {
 
 func (m *Model) toggleFold() {
 	it := m.current()
-	if it == nil || it.layer.Kind != engine.KindBlock {
-		m.setStatus("space folds blocks; this is a "+kindName(it), statusError)
+	if it == nil || !engine.SpecOf(it.layer.Kind).Body {
+		m.setStatus("space folds blocks and gates; this is a "+kindName(it), statusError)
 		return
 	}
 	k := it.addr.key()

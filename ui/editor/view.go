@@ -206,7 +206,7 @@ func (m *Model) mark(it *item) string {
 func (m *Model) itemLine(it *item, lay layout, selected bool) string {
 	l := it.layer
 	fold := "  "
-	if l.Kind == engine.KindBlock {
+	if engine.SpecOf(l.Kind).Body {
 		fold = "▾ "
 		if m.folded[it.addr.key()] {
 			fold = "▸ "
@@ -225,7 +225,7 @@ func (m *Model) itemLine(it *item, lay layout, selected bool) string {
 	// headers): lipgloss rendering is the costliest part of a frame.
 	left := cur + m.mark(it) + " " + strings.Repeat("  ", it.depth) + fold + num + " "
 	line := fit(left+label, lay.listW)
-	if l.Kind == engine.KindBlock && !selected {
+	if engine.SpecOf(l.Kind).Body && !selected {
 		line = m.st.Block.Render(line)
 	}
 	return line + " " + m.sideCells(it, lay)
@@ -320,7 +320,7 @@ func (m *Model) detailLines() []string {
 	r := &res.Rows[row]
 	var out []string
 	where := r.Path.String()
-	if it.layer.Kind == engine.KindBlock {
+	if engine.SpecOf(it.layer.Kind).Body {
 		where = it.addr.path().String()
 	}
 	head := fmt.Sprintf("%s · %s", where, engine.Summary(it.layer))
@@ -328,10 +328,16 @@ func (m *Model) detailLines() []string {
 		head = "preview · " + head
 	}
 	if r.Status == engine.StatusOK {
-		head += fmt.Sprintf(" · %s → %s", r.In, r.Out)
+		out := r.Out
+		if engine.SpecOf(it.layer.Kind).Body && it.last >= row && it.last < len(res.Rows) {
+			if lr := &res.Rows[it.last]; lr.Status == engine.StatusOK {
+				out = lr.Out // a block or gate: what its last row gives
+			}
+		}
+		head += fmt.Sprintf(" · %s → %s", r.In, out)
 	}
 	out = append(out, m.st.Label.Render(head))
-	if it.layer.Kind == engine.KindBlock {
+	if engine.SpecOf(it.layer.Kind).Body {
 		out = append(out, m.blockLines(it, res, mem)...)
 	} else {
 		out = append(out, res.Explain(row)...)
@@ -345,7 +351,7 @@ func (m *Model) detailLines() []string {
 		}
 	}
 	last := row
-	if it.layer.Kind == engine.KindBlock && m.preview == nil {
+	if engine.SpecOf(it.layer.Kind).Body && m.preview == nil {
 		last = it.last
 	}
 	for i := row; i <= last && i < len(res.Rows); i++ {
@@ -369,11 +375,19 @@ func (m *Model) blockLines(it *item, res *engine.Result, mem *engine.Memory) []s
 	}
 	params, macs, act := itemTotals(it, res, mem)
 	l := it.layer
+	totals := fmt.Sprintf("params %s · MACs %s per sample · keeps %s for backward", engine.GroupDigits(params), engine.FormatCount(macs), engine.FormatBytes(act))
+	if l.Kind == engine.KindGate {
+		return []string{
+			fmt.Sprintf("%d layer%s compute a C×1×1 gate from the map, then the map is multiplied by it channel by channel → rows %s to %s",
+				len(l.Body), plural(len(l.Body)), res.Rows[it.first].Path, res.Rows[it.last].Path),
+			totals,
+		}
+	}
 	return []string{
 		fmt.Sprintf("%d repeat%s of %d layer%s → rows %s to %s; later repeats run with stride 1%s",
 			max(l.Repeat, 1), plural(int(max(l.Repeat, 1))), len(l.Body), plural(len(l.Body)),
 			res.Rows[it.first].Path, res.Rows[it.last].Path, map[bool]string{true: " (strides: all keeps them)", false: ""}[l.AllStrides]),
-		fmt.Sprintf("params %s · MACs %s per sample · keeps %s for backward", engine.GroupDigits(params), engine.FormatCount(macs), engine.FormatBytes(act)),
+		totals,
 	}
 }
 
