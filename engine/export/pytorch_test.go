@@ -1,13 +1,10 @@
 package export
 
 import (
-	"bufio"
 	"bytes"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -41,26 +38,7 @@ except ImportError:
     sys.exit(3)
 
 
-class MetaFactories(torch.overrides.TorchFunctionMode):
-    """New tensors on the meta device (what torch.device("meta") does as a
-    context manager from PyTorch 2.0 on), so building a module skips the
-    weight initialisation."""
-
-    FACTORIES = (torch.empty, torch.zeros, torch.ones, torch.full, torch.tensor,
-                 torch.rand, torch.randn, torch.arange)
-
-    def __torch_function__(self, func, types, args=(), kwargs=None):
-        kwargs = dict(kwargs or {})
-        if func in self.FACTORIES:
-            kwargs["device"] = "meta"
-        return func(*args, **kwargs)
-
-
-def on_meta():
-    if hasattr(torch.device, "__enter__"):
-        return torch.device("meta")
-    return MetaFactories()
-
+` + metaPython + `
 
 def run(net, shape, device):
     with torch.no_grad():
@@ -107,33 +85,9 @@ type probeResult struct {
 // name. It skips the test when python3 or PyTorch is missing.
 func runProbe(t *testing.T, cases []probeCase) map[string]probeResult {
 	t.Helper()
-	var in bytes.Buffer
-	enc := json.NewEncoder(&in)
-	for _, c := range cases {
-		enc.Encode(c)
-	}
-	cmd := exec.Command(python, "-c", probe)
-	cmd.Stdin = &in
-	var stderr bytes.Buffer
-	cmd.Stderr = &stderr
-	out, err := cmd.Output()
-	var ee *exec.ExitError
-	switch {
-	case errors.Is(err, os.ErrNotExist) || errors.As(err, &ee) && ee.ExitCode() == probeNoTorch:
-		t.Skip("PyTorch is not available to " + python + "; install Debian's python3-torch (.ci/run does)")
-	case err != nil:
-		t.Fatalf("the PyTorch probe failed: %v\n%s", err, stderr.String())
-	}
-	got := map[string]probeResult{}
-	sc := bufio.NewScanner(bytes.NewReader(out))
-	for sc.Scan() {
-		var r probeResult
-		if err := json.Unmarshal(sc.Bytes(), &r); err != nil {
-			t.Fatalf("probe line %q: %v", sc.Text(), err)
-		}
-		got[r.Name] = r
-	}
-	return got
+	return runPython(t, probe, cases, map[int]string{
+		probeNoTorch: "PyTorch is not available to " + python + "; install Debian's python3-torch (.ci/run does)",
+	}, func(r probeResult) string { return r.Name })
 }
 
 // cpuMACs is the most multiply-accumulates per sample for which a module is

@@ -1,13 +1,8 @@
 package export
 
 import (
-	"bufio"
-	"bytes"
-	"encoding/json"
-	"errors"
 	"fmt"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"slices"
 	"testing"
@@ -67,26 +62,7 @@ class DCGANDiscriminator(nn.Module):
         return self.main(x)
 
 
-class MetaFactories(torch.overrides.TorchFunctionMode):
-    """New tensors on the meta device (what torch.device("meta") does as a
-    context manager from PyTorch 2.0 on): building a module allocates
-    nothing and skips the weight initialisation's arithmetic."""
-
-    FACTORIES = (torch.empty, torch.zeros, torch.ones, torch.full, torch.tensor,
-                 torch.rand, torch.randn, torch.arange)
-
-    def __torch_function__(self, func, types, args=(), kwargs=None):
-        kwargs = dict(kwargs or {})
-        if func in self.FACTORIES:
-            kwargs["device"] = "meta"
-        return func(*args, **kwargs)
-
-
-def on_meta():
-    if hasattr(torch.device, "__enter__"):
-        return torch.device("meta")
-    return MetaFactories()
-
+` + metaPython + `
 
 def reference(name):
     if name == "dcgan-discriminator":
@@ -277,41 +253,10 @@ type tvResult struct {
 // is missing.
 func runTorchvisionProbe(t *testing.T, cases []tvCase) map[string]tvResult {
 	t.Helper()
-	var in bytes.Buffer
-	enc := json.NewEncoder(&in)
-	for _, c := range cases {
-		if err := enc.Encode(c); err != nil {
-			t.Fatal(err)
-		}
-	}
-	cmd := exec.Command(python, "-c", torchvisionProbe)
-	cmd.Stdin = &in
-	var stderr bytes.Buffer
-	cmd.Stderr = &stderr
-	out, err := cmd.Output()
-	var ee *exec.ExitError
-	switch {
-	case errors.Is(err, os.ErrNotExist) || errors.As(err, &ee) && ee.ExitCode() == probeNoTorch:
-		t.Skip("PyTorch is not available to " + python + "; install Debian's python3-torch and python3-torchvision")
-	case errors.As(err, &ee) && ee.ExitCode() == probeNoTorchvision:
-		t.Skip("torchvision is not available to " + python + "; install Debian's python3-torchvision")
-	case err != nil:
-		t.Fatalf("the torchvision probe failed: %v\n%s", err, stderr.String())
-	}
-	got := map[string]tvResult{}
-	sc := bufio.NewScanner(bytes.NewReader(out))
-	sc.Buffer(nil, 1<<22)
-	for sc.Scan() {
-		var r tvResult
-		if err := json.Unmarshal(sc.Bytes(), &r); err != nil {
-			t.Fatalf("probe line %q: %v", sc.Text(), err)
-		}
-		got[r.Name] = r
-	}
-	if err := sc.Err(); err != nil {
-		t.Fatal(err)
-	}
-	return got
+	return runPython(t, torchvisionProbe, cases, map[int]string{
+		probeNoTorch:       "PyTorch is not available to " + python + "; install Debian's python3-torch and python3-torchvision",
+		probeNoTorchvision: "torchvision is not available to " + python + "; install Debian's python3-torchvision",
+	}, func(r tvResult) string { return r.Name })
 }
 
 // weightedRows lists the engine's convolution, transposed convolution and
