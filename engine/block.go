@@ -95,11 +95,28 @@ func (r *Result) gate(l *Layer, parent Path, i int, f *flow, unstrided bool) {
 	gp := parent
 	gp.push(i)
 	gp.push(1)
-	g := &r.gates[min(gp.Len()/2, len(r.gates)-1)]
+	lvl := min(gp.Len()/2, len(r.gates)-1)
+	g := &r.gates[lvl]
 	*g = *f
+	r.enter(lvl, f.shape.C, false)
 	r.items(l.Body, gp, g, unstrided)
 	r.other = *g
 	r.layer(l, &gp, SegGateMul, f, false, RoleGate)
+}
+
+// enter records the input channels of a body opened at level lvl, for the
+// relative widths inside it: a block repeat's input is also the block
+// reference; a gate or branch inherits the enclosing one.
+func (r *Result) enter(lvl int, c int64, block bool) {
+	if lvl <= 0 || lvl >= len(r.ref) {
+		return
+	}
+	r.ref[lvl] = c
+	if block {
+		r.blockRef[lvl] = c
+	} else {
+		r.blockRef[lvl] = r.blockRef[lvl-1]
+	}
 }
 
 // countRows returns how many rows ls expands to, saturating past MaxRows.
@@ -110,6 +127,18 @@ func countRows(ls []Layer, depth int) int64 {
 		switch l.Kind {
 		case KindGate:
 			n += countRows(l.Body, depth+1) + 1 // the body and the multiplication
+		case KindFork:
+			n++ // the join
+			for j := range l.Body {
+				if l.Body[j].Kind == KindBranch {
+					n += countRows(l.Body[j].Body, depth+1)
+				} else {
+					n++ // a misplaced item: one error row
+				}
+				if n > MaxRows {
+					return MaxRows + 1
+				}
+			}
 		case KindBlock:
 			per := countRows(l.Body, depth+1)
 			if l.Residual {
@@ -148,6 +177,7 @@ func (r *Result) block(l *Layer, parent Path, i int, f *flow, unstrided bool) {
 		if l.Residual || l.DenseLinks {
 			in = *f
 		}
+		r.enter(rp.Len()/2, f.shape.C, true)
 		r.items(l.Body, rp, f, unstrided || (rep > 1 && !l.AllStrides))
 		if l.Residual {
 			r.residual(l, &rp, &in, f)

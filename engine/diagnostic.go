@@ -65,6 +65,12 @@ const (
 	ErrGateShape                      // a gate body does not end in C×1×1
 	ErrDenseShape                     // a densely linked repeat changes the map size
 	ErrShuffleGroups                  // channels not divisible by shuffle groups
+	ErrWidthZero                      // a relative width resolves to no channels
+	ErrForkEmpty                      // a fork without branches
+	ErrSplitWidth                     // channels not divisible among a split fork's branches
+	ErrBranchShape                    // a fork's branches end in different map sizes
+	ErrBranchPlace                    // a branch outside a fork, or another item directly in one
+	WarnForkOne                       // a fork with a single branch joins nothing
 )
 
 // Diagnostic is one problem found in a stack, tied to a row of the result.
@@ -119,7 +125,7 @@ func (d Diagnostic) Message() string {
 	case ErrGroupsFilters:
 		return fmt.Sprintf("filters %d are not divisible by groups %d; use a multiple of %d", d.A, d.B, d.B)
 	case ErrDenseSpatial:
-		return fmt.Sprintf("dense layer reached by a spatial map %d×%d×%d; insert flatten or global-pool before it", d.A, d.B, d.C)
+		return fmt.Sprintf("dense layer reached by a spatial map %d×%d×%d; insert flatten or global-pool before it, or add per-position: true to apply it at every position", d.A, d.B, d.C)
 	case ErrReshapeCount:
 		return fmt.Sprintf("reshape target holds %d elements but the input holds %d; make C·H·W equal %d", d.A, d.B, d.B)
 	case ErrOverflow:
@@ -160,6 +166,21 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("the gate's layers end in %d×%d×%d, but a channel gate for this %d-channel map must end in %d×1×1; end them with global-pool and a 1×1 conv of %d filters", d.A, d.B, d.C, d.D, d.D, d.D)
 	case ErrShuffleGroups:
 		return fmt.Sprintf("channels %d are not divisible by shuffle groups %d; pick groups that divide %d, or make the layer before give a multiple of %d", d.A, d.B, d.A, d.B)
+	case ErrWidthZero:
+		return fmt.Sprintf("the relative %s gives %d from an input of %d channels; use a larger factor, a smaller divisor, round: 8, or an absolute width", d.Field, d.B, d.A)
+	case ErrForkEmpty:
+		return "the fork has no branches; add one under branches: (an empty one, [], passes the map on unchanged)"
+	case ErrSplitWidth:
+		return fmt.Sprintf("channels %d do not divide among %d branches; split needs a multiple of %d channels, or use input: copy", d.A, d.B, d.B)
+	case ErrBranchShape:
+		return fmt.Sprintf("branch %d ends in %d×%d but branch 1 in %d×%d; the branches are joined along the channels, so make their strides and padding agree", d.E, d.A, d.B, d.C, d.D)
+	case ErrBranchPlace:
+		if d.Field == "branch" {
+			return "a branch belongs directly inside a fork; wrap it in a fork, or take its layers out"
+		}
+		return "a fork holds branches only; put this item inside a branch (a list under branches:)"
+	case WarnForkOne:
+		return "the fork has one branch, so it joins nothing; add a branch (an empty one passes the map on), or drop the fork"
 	case ErrValue:
 		return fmt.Sprintf("%s is %d; it must be at least %d", d.Field, d.A, d.B)
 	case WarnStrideDrop:

@@ -38,9 +38,10 @@ const (
 	RolePostAct              // the activation after that addition
 	RoleGate                 // the multiplication that applies a gate
 	RoleDenseCat             // the concatenation that closes a densely linked repeat
+	RoleJoin                 // the concatenation of a fork's branches
 )
 
-var roleNames = [...]string{"layer", "shortcut", "residual-add", "after-add", "gate-multiply", "dense-concat"}
+var roleNames = [...]string{"layer", "shortcut", "residual-add", "after-add", "gate-multiply", "dense-concat", "branch-join"}
 
 // String returns the role's report name.
 func (r Role) String() string {
@@ -104,12 +105,18 @@ type Result struct {
 	taps  map[string]tap // named outputs seen so far
 	synth synthPool      // layers residual blocks add, reused between evaluations
 
-	top      flow                    // the stack's own flow
-	gates    [MaxBlockDepth + 1]flow // each open gate's flow, by depth
-	other    flow                    // the gate a multiplication row applies
-	shortcut flow                    // the shortcut's output, for the residual addition row
-	fixed    fixedLayers             // layers residual blocks add that never change
-	calc     calc                    // the per-row calculator, reused
+	top       flow                     // the stack's own flow
+	gates     [MaxBlockDepth + 1]flow  // each open gate's flow, by depth
+	other     flow                     // the gate a multiplication row applies
+	shortcut  flow                     // the shortcut's output, for the residual addition row
+	forkIn    [MaxBlockDepth + 1]flow  // each open fork's input, by depth
+	joined    [MaxBlockDepth + 1]flow  // each open fork's branches joined so far
+	branch    [MaxBlockDepth + 1]flow  // the flow of each open fork's current branch
+	ref       [MaxBlockDepth + 1]int64 // input channels of each open body (relative widths)
+	blockRef  [MaxBlockDepth + 1]int64 // input channels of each open block repeat
+	forkCheck forkCheck                // what the join row being computed reports
+	fixed     fixedLayers              // layers residual blocks add that never change
+	calc      calc                     // the per-row calculator, reused
 }
 
 // MaxRows bounds how many rows a stack may expand to (repeats multiply).
@@ -165,6 +172,7 @@ func (r *Result) Evaluate(s *Stack) {
 		r.inputError(s.Input)
 	}
 	r.tally = tally{biggest: -1, lastWeighted: -1}
+	r.ref[0], r.blockRef[0] = s.Input.C, s.Input.C
 	if n := countRows(s.Layers, 0); n > MaxRows {
 		r.diag(Diagnostic{Severity: SevError, Code: ErrTooManyRows, Row: -1, Field: "repeat", A: n, B: MaxRows})
 		r.finish()
@@ -216,6 +224,8 @@ func (r *Result) items(ls []Layer, parent Path, f *flow, unstrided bool) {
 			r.block(l, parent, i+1, f, unstrided)
 		case l.Kind == KindGate && parent.Len() < 2*MaxBlockDepth-1:
 			r.gate(l, parent, i+1, f, unstrided)
+		case l.Kind == KindFork && parent.Len() < 2*MaxBlockDepth-1:
+			r.fork(l, parent, i+1, f, unstrided)
 		default:
 			r.layer(l, &parent, seg(i+1), f, unstrided, RoleLayer)
 		}

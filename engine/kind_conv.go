@@ -37,15 +37,23 @@ var (
 )
 
 // filtersParam is the main value of both convolutions.
-var filtersParam = Param{Key: "filters", Help: "output channels, 1 to 16777216", Type: TInt, Lo: 1, Hi: MaxChannels,
-	Label: "filters", Need: "a filter count",
-	get: func(l *Layer) Value { return Value{Int: l.Filters} },
-	set: func(l *Layer, v Value) { l.Filters = v.Int }}
+var filtersParam = Param{Key: "filters", Help: "output channels: 1 to 16777216, xF (F times the input, e.g. x6) or /D (e.g. /4)",
+	Type: TWidth, Lo: 1, Hi: MaxChannels, Label: "filters", Need: "a filter count",
+	get: func(l *Layer) Value { return Value{Int: l.Filters, Rel: l.Rel} },
+	set: setWidth}
+
+// setWidth stores an absolute or a relative width.
+func setWidth(l *Layer, v Value) {
+	l.Filters, l.Rel = v.Int, v.Rel
+	if !v.Rel.IsZero() {
+		l.Filters = 0
+	}
+}
 
 var convSpec = Spec{
 	Kind: KindConv, Key: "conv", Help: "convolution: filters over a sliding window", Example: "conv 64 k3 s2 p1",
 	Main:     &filtersParam,
-	Params:   []Param{kernelParam, strideParam, padParam, dilationParam, groupsParam, biasParam},
+	Params:   append([]Param{kernelParam, strideParam, padParam, dilationParam, groupsParam, biasParam}, widthParams...),
 	Weighted: true,
 	eval:     func(c *calc, f *flow) { c.conv(f, false) },
 	explain:  explainConv,
@@ -60,7 +68,7 @@ var deconvSpec = Spec{
 		{Key: "out-pad", Help: "n or h×w, below the stride", Type: TPair, Lo: 0, Hi: MaxWindow, Quick: "op",
 			get: func(l *Layer) Value { return Value{Pair: l.OutPad} },
 			set: func(l *Layer, v Value) { l.OutPad = v.Pair }},
-		biasParam},
+		biasParam, widthParams[0], widthParams[1]},
 	Weighted: true,
 	eval:     func(c *calc, f *flow) { c.conv(f, true) },
 	explain:  explainConv,
@@ -101,16 +109,20 @@ func explainConv(row *Row) []string {
 		g = in.C
 	}
 	g = max(g, 1)
-	w := l.Filters * (in.C / g) * l.Kernel.H * l.Kernel.W
+	filters := row.Out.C
+	w := filters * (in.C / g) * l.Kernel.H * l.Kernel.W
 	bias := ""
 	if !l.NoBias {
-		bias = fmt.Sprintf(" + %d", l.Filters)
+		bias = fmt.Sprintf(" + %d", filters)
 	}
 	perGroup := strconv.FormatInt(in.C, 10)
 	if g > 1 {
 		perGroup = fmt.Sprintf("(%d/%d)", in.C, g)
 	}
-	out = append(out, fmt.Sprintf("params = %d·%d·%s·%d%s = %s", l.Kernel.H, l.Kernel.W, perGroup, l.Filters, bias, GroupDigits(row.Params)))
+	out = append(out, fmt.Sprintf("params = %d·%d·%s·%d%s = %s", l.Kernel.H, l.Kernel.W, perGroup, filters, bias, GroupDigits(row.Params)))
+	if !l.Rel.IsZero() {
+		out = append(out, widthLine(row))
+	}
 	pos := fmt.Sprintf("%d·%d output positions", row.Out.H, row.Out.W)
 	if l.Kind == KindDeconv {
 		pos = fmt.Sprintf("%d·%d input positions", in.H, in.W)
@@ -140,11 +152,11 @@ func torchConv(row *Row) Torch {
 	stride := rowStride(row)
 	if l.Kind == KindDeconv {
 		t.Module = fmt.Sprintf("nn.ConvTranspose2d(%d, %d, %s, stride=%s, padding=%s, output_padding=%s, groups=%d, bias=%s, dilation=%s)",
-			in.C, l.Filters, tuple(l.Kernel), tuple(stride), pad, tuple(l.OutPad), groups, pyBool(!l.NoBias), tuple(l.dilation()))
+			in.C, row.Out.C, tuple(l.Kernel), tuple(stride), pad, tuple(l.OutPad), groups, pyBool(!l.NoBias), tuple(l.dilation()))
 		return t
 	}
 	t.Module = fmt.Sprintf("nn.Conv2d(%d, %d, %s, stride=%s, padding=%s, dilation=%s, groups=%d, bias=%s)",
-		in.C, l.Filters, tuple(l.Kernel), tuple(stride), pad, tuple(l.dilation()), groups, pyBool(!l.NoBias))
+		in.C, row.Out.C, tuple(l.Kernel), tuple(stride), pad, tuple(l.dilation()), groups, pyBool(!l.NoBias))
 	return t
 }
 
@@ -159,8 +171,9 @@ func pyBool(b bool) string {
 	return "False"
 }
 
-// groups resolves and checks the channel groups of a (transposed) convolution.
-func (c *calc) groups(cin int64) (int64, bool) {
+// groups resolves and checks the channel groups of a (transposed)
+// convolution of filters outputs.
+func (c *calc) groups(cin, filters int64) (int64, bool) {
 	g := c.l.Groups
 	if c.l.Depthwise {
 		g = cin
@@ -174,8 +187,8 @@ func (c *calc) groups(cin int64) (int64, bool) {
 		c.fail(Diagnostic{Code: ErrGroupsChannels, Field: "groups", A: cin, B: g})
 		return 0, false
 	}
-	if c.l.Filters%g != 0 {
-		c.fail(Diagnostic{Code: ErrGroupsFilters, Field: "groups", A: c.l.Filters, B: g})
+	if filters%g != 0 {
+		c.fail(Diagnostic{Code: ErrGroupsFilters, Field: "groups", A: filters, B: g})
 		return 0, false
 	}
 	return g, true
@@ -185,22 +198,25 @@ func (c *calc) groups(cin int64) (int64, bool) {
 func (c *calc) conv(f *flow, transposed bool) {
 	l, in := c.l, c.row.In
 	k, s, d := l.Kernel, c.stride(), l.dilation()
-	if min(l.Filters, k.H, k.W, s.H, s.W, d.H, d.W) < 1 {
+	filters, ok := c.width("filters")
+	if !ok {
+		return
+	}
+	if min(k.H, k.W, s.H, s.W, d.H, d.W) < 1 {
 		// Name the first field at fault.
-		_ = c.atLeast("filters", l.Filters, 1) && c.atLeast("kernel", min(k.H, k.W), 1) &&
+		_ = c.atLeast("kernel", min(k.H, k.W), 1) &&
 			c.atLeast("stride", min(s.H, s.W), 1) && c.atLeast("dilation", min(d.H, d.W), 1)
 		return
 	}
 	g, cin := int64(1), in.C
-	var ok bool
 	if l.Groups > 1 || l.Depthwise || l.Groups < 0 {
-		if g, ok = c.groups(in.C); !ok {
+		if g, ok = c.groups(in.C, filters); !ok {
 			return
 		}
 		cin = in.C / g
 	}
 	var out Shape
-	out.C = l.Filters
+	out.C = filters
 	n0 := len(c.r.Diags)
 	if transposed {
 		out.H, ok = c.deconvAxis('h', in.H, k.H, s.H, d.H, l.Pad, l.Pad.Size.H, l.OutPad.H)
@@ -222,10 +238,10 @@ func (c *calc) conv(f *flow, transposed bool) {
 	// Weight tensor: filters × (in/groups) × kh × kw for both directions
 	// (PyTorch stores the transposed one as in × (filters/groups) × kh × kw,
 	// the same count).
-	w := mul(&c.ov, mul(&c.ov, mul(&c.ov, l.Filters, cin), k.H), k.W)
+	w := mul(&c.ov, mul(&c.ov, mul(&c.ov, filters, cin), k.H), k.W)
 	params := w
 	if !l.NoBias {
-		params = add(&c.ov, params, l.Filters)
+		params = add(&c.ov, params, filters)
 	}
 	// One MAC per weight use: each weight meets every output position of a
 	// convolution, and every input position of a transposed convolution.

@@ -19,6 +19,11 @@ var normSpec = Spec{
 			Want: "give yes, no or default",
 			get:  func(l *Layer) Value { return Value{Int: int64(l.Affine)} },
 			set:  func(l *Layer, v Value) { l.Affine = Toggle(v.Int) }},
+		{Key: "eps", Help: "the small number added to the variance, above 0 and below 1; PyTorch's 1e-5 when left out", Type: TFloat, FLo: 0, FHi: 1,
+			Quick: "eps", Want: "give a number above 0 and below 1, e.g. 0.001",
+			get:  func(l *Layer) Value { return Value{Float: l.Eps} },
+			set:  func(l *Layer, v Value) { l.Eps = v.Float },
+			show: func(l *Layer) Value { return Value{Float: normEps(l)} }},
 	},
 	eval: func(c *calc, f *flow) { c.norm() },
 	explain: func(row *Row) []string {
@@ -35,6 +40,9 @@ var normSpec = Spec{
 	torch: func(row *Row) Torch {
 		l, c := row.Layer, row.In.C
 		affine := pyBool(l.Affine.Or(l.Norm != NormInstance))
+		if l.Eps > 0 {
+			affine += ", eps=" + pyFloat(l.Eps)
+		}
 		switch l.Norm {
 		case NormGroup:
 			return Torch{Module: fmt.Sprintf("nn.GroupNorm(%d, %d, affine=%s)", l.NormGroups, c, affine)}
@@ -45,6 +53,14 @@ var normSpec = Spec{
 		}
 		return Torch{Module: fmt.Sprintf("nn.BatchNorm2d(%d, affine=%s)", c, affine)}
 	},
+}
+
+// normEps is the layer's ε with PyTorch's default applied.
+func normEps(l *Layer) float64 {
+	if l.Eps > 0 {
+		return l.Eps
+	}
+	return 1e-5
 }
 
 // savedNorm: a norm keeps its input, and group, instance and layer norm

@@ -24,6 +24,8 @@ const (
 	KindGate            // the map scaled per channel by a gate its body computes from it
 	KindScale           // a learnable factor per channel (layer scale)
 	KindShuffle         // channel shuffle across groups
+	KindFork            // parallel branches from one map, joined along the channels
+	KindBranch          // one branch of a fork: a list of layers (empty: the map itself)
 	kindCount
 )
 
@@ -163,6 +165,16 @@ type Layer struct {
 	Groups int64
 	// conv, deconv: one group per input channel (groups = input channels).
 	Depthwise bool
+	// conv, deconv, dense: a width relative to an enclosing input instead
+	// of Filters (the zero Rel means Filters is the width).
+	Rel Rel
+	// conv, deconv, dense: a relative width reads the input of the
+	// innermost enclosing block repeat, not of the innermost body (gate,
+	// branch or repeat).
+	RelBlock bool
+	// conv, deconv, dense: round a relative width to a multiple of this,
+	// never below it nor below 90% of the exact value; zero: no rounding.
+	RoundTo int64
 	// conv, deconv, dense: no additive bias.
 	NoBias bool
 	// deconv: extra rows/columns added at the bottom/right of the output.
@@ -182,6 +194,11 @@ type Layer struct {
 	Norm       NormKind
 	NormGroups int64
 	Affine     Toggle
+	// norm: the ε added to the variance; zero means PyTorch's 1e-5.
+	Eps float64
+	// dense: apply at every position of a map (over its channels), as a
+	// 1×1 convolution does, instead of needing a 1×1 map.
+	PerPosition bool
 	// act: function and negative slope (leaky-relu; zero means 0.01).
 	Act   ActKind
 	Slope float64
@@ -212,6 +229,10 @@ type Layer struct {
 	// block: each repeat's output is concatenated to its input along the
 	// channels (dense connectivity, Huang et al. 2017).
 	DenseLinks bool
+
+	// fork: each branch reads an equal share of the channels instead of
+	// the whole map (channel split).
+	Split bool
 
 	// concat, add: name of the earlier layer or block whose output is merged.
 	From string
@@ -279,6 +300,9 @@ func (l Layer) Normalized() Layer {
 	}
 	if l.Pad.Mode != PadExplicit {
 		l.Pad.Size = Pair{}
+	}
+	if l.Kind == KindNorm && l.Eps == 1e-5 {
+		l.Eps = 0
 	}
 	if l.Kind == KindBlock && l.Repeat < 1 {
 		l.Repeat = 1

@@ -209,6 +209,7 @@ func (r *Result) activationProfile(t Training, a Assumptions, m *Memory, rows *[
 	micro := m.MicroBatch
 	sv := &m.sv
 	sv.a, sv.e, sv.seen, sv.epoch, sv.ov = a, e, seen, 0, false
+	sv.rows, sv.in = r.Rows, r.Input
 	ov := &sv.ov
 	k := int64(t.Checkpoint)
 	var segment, segMax, kept int64
@@ -258,6 +259,8 @@ type saving struct {
 	seen  []int32 // storage → last epoch counted
 	epoch int32   // checkpoint segment being counted
 	ov    bool    // a product overflowed
+	rows  []Row   // the rows, for the size of a storage
+	in    Shape   // the network input
 }
 
 // keep counts a tensor (by storage) once per epoch and returns its bytes.
@@ -269,9 +272,17 @@ func (s *saving) keep(store int32, elems int64) int64 {
 	return mul(&s.ov, elems, s.e)
 }
 
-// input counts the row's input tensor.
+// input counts the row's input tensor: its whole storage, which is larger
+// than the input where a split fork's branch reads a view of its share.
 func (s *saving) input(row *Row) int64 {
 	n, _ := row.In.Elements()
+	st := s.in
+	if row.InStore >= 0 && int(row.InStore) < len(s.rows) {
+		st = s.rows[row.InStore].Out
+	}
+	if m, _ := st.Elements(); m > n {
+		n = m
+	}
 	return s.keep(row.InStore, n)
 }
 

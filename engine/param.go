@@ -21,6 +21,7 @@ const (
 	TShape                   // C×H×W; [C, H, W] in stack files
 	TRef                     // the name of an earlier layer or block
 	TToggle                  // yes, no or default (an optional boolean)
+	TWidth                   // a width: n in [Lo, Hi], xF (F times an input) or /D (an input divided by D)
 )
 
 // Value is a field's value; which part is used depends on the ParamType:
@@ -35,6 +36,7 @@ type Value struct {
 	Text  string
 	Pad   Padding
 	Shape Shape
+	Rel   Rel // TWidth: a relative width (zero: Int is the width)
 }
 
 // Param describes one field of a layer kind.
@@ -147,6 +149,8 @@ func (p *Param) Text(v Value) string {
 		return shapeText(v.Shape)
 	case TRef:
 		return v.Text
+	case TWidth:
+		return widthText(v)
 	case TToggle:
 		switch Toggle(v.Int) {
 		case On:
@@ -192,6 +196,8 @@ func (p *Param) Parse(s string) (Value, error) {
 		v.Int, err = ParseInt(p.Key, s, p.Lo, p.Hi)
 	case TShape:
 		v.Shape, err = ParseShape(p.Key, s)
+	case TWidth:
+		v, err = parseWidth(p.Key, s, p.Hi)
 	case TRef:
 		if !ValidName(t) {
 			err = &FieldError{p.Key, s, ""}
@@ -233,11 +239,14 @@ type Field struct {
 	Help string // what it accepts, e.g. "n or h×w, e.g. 3 or 3x5"
 	Get  func(*Layer) string
 	Set  func(*Layer, string) error
+	// Applies, when set, says whether the field means something for a
+	// layer (forms hide it otherwise).
+	Applies func(*Layer) bool
 }
 
 // Field turns the parameter into a form field.
 func (p *Param) Field() Field {
-	return Field{Key: p.Key, Help: p.Help,
+	return Field{Key: p.Key, Help: p.Help, Applies: p.Only,
 		Get: func(l *Layer) string {
 			if p.show != nil {
 				return p.Text(p.show(l))
@@ -278,7 +287,7 @@ var nameField = Field{"name", "short identifier (letters, digits, _ and -), or e
 		}
 		l.Name = t
 		return nil
-	}}
+	}, nil}
 
 // noteField is the free-text note every kind takes.
 var noteField = Field{"note", "free text",
@@ -289,7 +298,7 @@ var noteField = Field{"note", "free text",
 		}
 		l.Note = s
 		return nil
-	}}
+	}, nil}
 
 // MaxNoteLen is the longest note a layer or stack may carry.
 const MaxNoteLen = 4096

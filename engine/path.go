@@ -16,6 +16,7 @@ const (
 	SegPostAct      = 0xFFFB // activation after the addition, shown "act"
 	SegGateMul      = 0xFFFC // the multiplication by a gate, shown "mul"
 	SegDenseCat     = 0xFFFD // a densely linked repeat's concatenation, shown "cat"
+	SegJoin         = 0xFFFE // a fork's concatenation of its branches, shown "join"
 )
 
 // seg clamps a 1-based item number into a regular segment.
@@ -99,6 +100,8 @@ func (p Path) AppendTo(b []byte) []byte {
 			b = append(b, "mul"...)
 		case SegDenseCat:
 			b = append(b, "cat"...)
+		case SegJoin:
+			b = append(b, "join"...)
 		default:
 			b = strconv.AppendUint(b, uint64(v), 10)
 		}

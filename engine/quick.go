@@ -93,6 +93,8 @@ func (p *Param) takesQuick(tok string) bool {
 		return err == nil
 	case TRef:
 		return true
+	case TWidth:
+		return tok != "" && strings.ContainsRune("0123456789x×/", []rune(tok)[0])
 	}
 	tok = strings.TrimPrefix(tok, p.Quick)
 	return tok != "" && (tok[0] >= '0' && tok[0] <= '9' || tok[0] == '.')

@@ -24,6 +24,9 @@ type Spec struct {
 	Bare bool
 	// Body kinds hold a list of layers under "layers:" (blocks).
 	Body bool
+	// Branches kinds (forks) hold their body under "branches:", one list
+	// of layers per branch; each is a KindBranch item.
+	Branches bool
 	// Weighted kinds carry a weight matrix whose width the user picks.
 	Weighted bool
 	// Merge kinds combine the flow with a named earlier output.
@@ -60,7 +63,7 @@ func init() {
 	for _, s := range []*Spec{&convSpec, &deconvSpec, &poolSpec, &globalPoolSpec, &poolToSpec,
 		&upsampleSpec, &normSpec, &actSpec, &dropoutSpec, &flattenSpec, &denseSpec,
 		&reshapeSpec, &blockSpec, &concatSpec, &addSpec, &gateSpec,
-		&scaleSpec, &shuffleSpec} {
+		&scaleSpec, &shuffleSpec, &forkSpec, &branchSpec} {
 		specs[s.Kind] = s
 	}
 }

@@ -32,22 +32,33 @@ func CloneLayers(ls []Layer) []Layer {
 	return out
 }
 
-// BlockAt returns the block whose repeat the path prefix p (ending in a
-// repeat number) names, e.g. "4.2" → the block at item 4; nil if p does not
-// name a block repeat.
-func (s *Stack) BlockAt(p Path) *Layer {
+// BodyAt returns the item whose body path p (an even number of segments,
+// item and repeat or branch number per level) opens: the block, gate or
+// fork, and for a fork the branch too. Both are nil when p opens nothing.
+func (s *Stack) BodyAt(p Path) (item, branch *Layer) {
 	if p.Len() < 2 || p.Len()%2 != 0 {
-		return nil
+		return nil, nil
 	}
 	ls := s.Layers
-	var l *Layer
 	for i := 0; i < p.Len(); i += 2 {
 		k := p.At(i) - 1
-		if k < 0 || k >= len(ls) || !SpecOf(ls[k].Kind).Body || p.At(i+1) > int(max(ls[k].Repeat, 1)) {
-			return nil
+		if k < 0 || k >= len(ls) || !SpecOf(ls[k].Kind).Body {
+			return nil, nil
 		}
-		l = &ls[k]
-		ls = l.Body
+		item, branch = &ls[k], nil
+		n := p.At(i + 1)
+		if item.Kind == KindFork {
+			if n < 1 || n > len(item.Body) {
+				return nil, nil
+			}
+			branch = &item.Body[n-1]
+			ls = branch.Body
+			continue
+		}
+		if n > int(max(item.Repeat, 1)) {
+			return nil, nil
+		}
+		ls = item.Body
 	}
-	return l
+	return item, branch
 }

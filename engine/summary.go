@@ -102,6 +102,9 @@ func RowSummary(r *Row) string {
 	if r.Role == RoleDenseCat {
 		return "concat repeat input"
 	}
+	if r.Role == RoleJoin {
+		return "join " + strconv.Itoa(len(r.Layer.Body)) + " branches"
+	}
 	if !r.Unstrided {
 		return Summary(r.Layer)
 	}

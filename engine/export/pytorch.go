@@ -64,9 +64,9 @@ import torch.nn as nn
 class ChannelLayerNorm(nn.Module):
     """Layer norm over the channels at each position."""
 
-    def __init__(self, channels, affine=True):
+    def __init__(self, channels, affine=True, eps=1e-5):
         super().__init__()
-        self.norm = nn.LayerNorm(channels, elementwise_affine=affine)
+        self.norm = nn.LayerNorm(channels, eps=eps, elementwise_affine=affine)
 
     def forward(self, x):
         return self.norm(x.permute(0, 2, 3, 1)).permute(0, 3, 1, 2)
@@ -83,15 +83,27 @@ class Dense(nn.Module):
         return self.fc(x.flatten(1))[:, :, None, None]
 
 
+class PositionDense(nn.Module):
+    """A fully connected layer applied at every position of an N×C×H×W map,
+    over its channels."""
+
+    def __init__(self, features, units, bias=True):
+        super().__init__()
+        self.fc = nn.Linear(features, units, bias=bias)
+
+    def forward(self, x):
+        return self.fc(x.permute(0, 2, 3, 1)).permute(0, 3, 1, 2)
+
+
 class ChannelScale(nn.Module):
     """A learnable factor per channel (layer scale)."""
 
     def __init__(self, channels, init=1.0):
         super().__init__()
-        self.gamma = nn.Parameter(torch.full((channels,), float(init)))
+        self.gamma = nn.Parameter(torch.full((channels, 1, 1), float(init)))
 
     def forward(self, x):
-        return x * self.gamma[:, None, None]
+        return x * self.gamma
 
 
 class DropPath(nn.Module):
@@ -211,6 +223,8 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 			}
 			g.next++
 			g.fwd = append(g.fwd, "x = "+saved+" * x")
+		case engine.KindFork:
+			g.fork(l, p)
 		case engine.KindBlock:
 			for rep := 1; rep <= int(max(l.Repeat, 1)); rep++ {
 				rp := p.Append(rep)
@@ -241,6 +255,42 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 			g.fwd = append(g.fwd, strings.TrimSuffix(c.String(), "\n"), g.tap(l.Name)+" = x")
 		}
 	}
+}
+
+// fork emits a fork: each branch from the saved input (or its share of the
+// channels), then the concatenation of the branches' outputs.
+func (g *gen) fork(l *engine.Layer, p engine.Path) {
+	base := strings.TrimPrefix(ident(p), "l")
+	in := "f" + base
+	g.fwd = append(g.fwd, in+" = x")
+	outs := make([]string, 0, len(l.Body))
+	for b := range l.Body {
+		br := &l.Body[b]
+		if br.Kind != engine.KindBranch {
+			g.fail("layer %s is not a branch", p.Append(b+1))
+			return
+		}
+		src := in
+		if l.Split {
+			src = fmt.Sprintf("%s.chunk(%d, 1)[%d]", in, len(l.Body), b)
+		}
+		g.fwd = append(g.fwd, "x = "+src)
+		g.walk(br.Body, p.Append(b+1))
+		out := fmt.Sprintf("b%s_%d", base, b+1)
+		g.fwd = append(g.fwd, out+" = x")
+		if br.Name != "" {
+			var c strings.Builder
+			comment(&c, "", "output of "+strconv.Quote(br.Name))
+			g.fwd = append(g.fwd, strings.TrimSuffix(c.String(), "\n"), g.tap(br.Name)+" = x")
+		}
+		outs = append(outs, out)
+	}
+	if g.next >= len(g.r.Rows) || g.r.Rows[g.next].Role != engine.RoleJoin {
+		g.fail("fork rows out of order near row %d", g.next+1)
+		return
+	}
+	g.next++
+	g.fwd = append(g.fwd, "x = torch.cat(["+strings.Join(outs, ", ")+"], 1)")
 }
 
 // residual emits the shortcut rows, the addition and the activation that

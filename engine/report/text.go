@@ -30,13 +30,19 @@ func WriteText(w io.Writer, an *engine.Analysis) error {
 			if prev.Len() >= d && prefix(prev, d) == head {
 				continue
 			}
-			if b := s.BlockAt(head); b != nil {
+			if b, br := s.BodyAt(head); b != nil {
 				label := strings.Repeat("  ", d/2-1) + engine.Summary(b)
 				if b.Name != "" {
 					label += " [" + b.Name + "]"
 				}
-				if b.Kind == engine.KindBlock {
+				switch {
+				case b.Kind == engine.KindBlock:
 					label += fmt.Sprintf(" — repeat %d of %d", head.At(d-1), max(b.Repeat, 1))
+				case br != nil:
+					label += fmt.Sprintf(" — branch %d of %d", head.At(d-1), len(b.Body))
+					if br.Name != "" {
+						label += " [" + br.Name + "]"
+					}
 				}
 				t.add(head.String(), label, "", "", "", "", "")
 			}

@@ -1,6 +1,7 @@
 package stackfile
 
 import (
+	"errors"
 	"strconv"
 	"strings"
 
@@ -113,7 +114,15 @@ func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
 		case k.Value == "note":
 			l.Note, _ = d.text(v, where+" → note", MaxNoteLen)
 			continue
-		case k.Value == "layers" && sp.Body:
+		case k.Value == "branches" && sp.Branches:
+			haveBody = true
+			if depth+1 >= MaxBlockDepth+1 {
+				d.fail(k, where, ErrNesting, "blocks nest %d deep here; the limit is %d — flatten an inner block", depth+1, MaxBlockDepth)
+				continue
+			}
+			l.Body = d.branchList(v, where+" → branches", label+" → branch ", depth+1)
+			continue
+		case k.Value == "layers" && sp.Body && !sp.Branches:
 			haveBody = true
 			if depth+1 >= MaxBlockDepth+1 {
 				d.fail(k, where, ErrNesting, "blocks nest %d deep here; the limit is %d — flatten an inner block", depth+1, MaxBlockDepth)
@@ -132,7 +141,10 @@ func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
 			d.param(v, where+" → "+k.Value, &sp.Params[i], &l)
 		}
 	}
-	if sp.Body && !haveBody {
+	switch {
+	case sp.Branches && !haveBody:
+		d.fail(n, where, ErrMissing, "needs branches; add them under branches:, one list of layers each ([] passes the map on)")
+	case sp.Body && !haveBody && !sp.Bare:
 		d.fail(n, where, ErrMissing, "needs layers; add the block's layers under layers:")
 	}
 	for i := range sp.Params {
@@ -145,6 +157,48 @@ func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
 		}
 	}
 	return l.Normalized()
+}
+
+// branchList reads a fork's branches: each a list of layers, or a mapping
+// with layers (and optionally name and note).
+func (d *decoder) branchList(n *yaml.Node, field, prefix string, depth int) []engine.Layer {
+	n = d.deref(n, field)
+	if n == nil {
+		return nil
+	}
+	if n.Kind != yaml.SequenceNode {
+		d.fail(n, field, ErrType, "expected a list of branches, each a list of layers (e.g. - [{conv: 64, kernel: 1}]), found %s", describe(n))
+		return nil
+	}
+	if len(n.Content) > engine.MaxSegment {
+		d.fail(n, field, ErrRange, "holds %d branches; the limit is %d", len(n.Content), engine.MaxSegment)
+		return nil
+	}
+	out := make([]engine.Layer, 0, len(n.Content))
+	for i, item := range n.Content {
+		label := prefix + strconv.Itoa(i+1)
+		item = d.deref(item, label)
+		b := engine.Layer{Kind: engine.KindBranch}
+		switch {
+		case item == nil:
+		case item.Kind == yaml.SequenceNode || item.Kind == yaml.ScalarNode && item.Tag == "!!null":
+			b.Body = d.layerList(item, label, label+" → layer ", depth)
+		case item.Kind == yaml.MappingNode:
+			// {layers: [...], name: ..., note: ...}: read as a branch item.
+			key := &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!str", Value: "branch"}
+			null := &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!null"}
+			wrapped := *item
+			wrapped.Content = append([]*yaml.Node{key, null}, item.Content...)
+			b = d.layer(&wrapped, label, depth-1)
+			if b.Kind != engine.KindBranch {
+				continue
+			}
+		default:
+			d.fail(item, label, ErrType, "expected a list of layers for the branch (or [] for the map itself), found %s", describe(item))
+		}
+		out = append(out, b)
+	}
+	return out
 }
 
 // paramIndex returns the index of the kind's field with key, or −1.
@@ -163,7 +217,10 @@ func allowedKeys(sp *engine.Spec) []string {
 	for i := range sp.Params {
 		out = append(out, sp.Params[i].Key)
 	}
-	if sp.Body {
+	switch {
+	case sp.Branches:
+		out = append(out, "branches")
+	case sp.Body:
 		out = append(out, "layers")
 	}
 	return append(out, "name", "note")
@@ -240,6 +297,16 @@ func (d *decoder) param(n *yaml.Node, w string, p *engine.Param, l *engine.Layer
 		}
 	case engine.TShape:
 		v.Shape, ok = d.shape(n, w)
+	case engine.TWidth:
+		if n.Kind == yaml.ScalarNode && n.Tag == "!!str" && strings.ContainsAny(n.Value[:min(len(n.Value), 2)], "x×X/") {
+			var err error
+			if v, err = p.Parse(n.Value); err != nil {
+				d.fail(n, w, ErrRange, "%q: %s", n.Value, fieldWant(err))
+				return
+			}
+		} else {
+			v.Int, ok = d.int(n, w, p.Lo, p.Hi)
+		}
 	case engine.TRef:
 		v.Text, ok = d.text(n, w, 1<<10)
 		if ok && !engine.ValidName(v.Text) {
@@ -267,4 +334,13 @@ func (d *decoder) layerName(v *yaml.Node, where string, l *engine.Layer) {
 	}
 	d.names[name] = v.Line
 	l.Name = name
+}
+
+// fieldWant is what a refused value should have been.
+func fieldWant(err error) string {
+	var fe *engine.FieldError
+	if errors.As(err, &fe) && fe.Want != "" {
+		return fe.Want
+	}
+	return err.Error()
 }

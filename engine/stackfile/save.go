@@ -172,6 +172,18 @@ func layerNode(orig *engine.Layer) *yaml.Node {
 	if l.Note != "" {
 		put(m, "note", strNode(l.Note))
 	}
+	if sp.Branches {
+		fields()
+		seq := &yaml.Node{Kind: yaml.SequenceNode}
+		for i := range l.Body {
+			seq.Content = append(seq.Content, branchNode(&l.Body[i]))
+		}
+		if len(l.Body) == 0 {
+			seq.Style = yaml.FlowStyle
+		}
+		put(m, "branches", seq)
+		return m
+	}
 	if sp.Body {
 		fields()
 		put(m, "layers", layerSeq(l.Body))
@@ -180,6 +192,27 @@ func layerNode(orig *engine.Layer) *yaml.Node {
 	if l.Note == "" {
 		m.Style = yaml.FlowStyle
 	}
+	return m
+}
+
+// branchNode writes one branch of a fork: its list of layers, or a mapping
+// with layers, name and note when it is named or has a note. An item that
+// is not a branch is written as itself (the engine reports it).
+func branchNode(b *engine.Layer) *yaml.Node {
+	if b.Kind != engine.KindBranch {
+		return layerNode(b)
+	}
+	if b.Name == "" && b.Note == "" {
+		return layerSeq(b.Body)
+	}
+	m := &yaml.Node{Kind: yaml.MappingNode}
+	if b.Name != "" {
+		put(m, "name", strNode(b.Name))
+	}
+	if b.Note != "" {
+		put(m, "note", strNode(b.Note))
+	}
+	put(m, "layers", layerSeq(b.Body))
 	return m
 }
 
@@ -211,6 +244,10 @@ func valueNode(p *engine.Param, v engine.Value) *yaml.Node {
 		return intNode(v.Int)
 	case engine.TShape:
 		return flowSeq(intNode(v.Shape.C), intNode(v.Shape.H), intNode(v.Shape.W))
+	case engine.TWidth:
+		if v.Rel.IsZero() {
+			return intNode(v.Int)
+		}
 	}
 	return strNode(p.Text(v)) // TChoice, TRef
 }

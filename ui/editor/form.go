@@ -12,6 +12,7 @@ type formField struct {
 	key, help string
 	input     entry
 	err       string
+	hidden    bool // does not apply to the values as they stand
 }
 
 // form edits a list of text fields. After every keystroke it hands all
@@ -24,6 +25,10 @@ type form struct {
 	focus  int
 	try    func(values []string) []string
 	commit func(values []string) tea.Cmd
+	// hide, when set, says which fields do not apply to the values as
+	// they stand (a layer's round needs a relative width); they are not
+	// shown and focus skips them.
+	hide func(values []string) []bool
 }
 
 func newForm(title string, keys, helps, values []string) *form {
@@ -48,11 +53,17 @@ func (f *form) values() []string {
 // check runs try and stores the per-field messages; it reports whether all
 // values are valid.
 func (f *form) check() bool {
-	errs := f.try(f.values())
+	vals := f.values()
+	errs := f.try(vals)
+	var hidden []bool
+	if f.hide != nil {
+		hidden = f.hide(vals)
+	}
 	ok := true
 	for i := range f.fields {
 		f.fields[i].err = ""
-		if i < len(errs) && errs[i] != "" {
+		f.fields[i].hidden = i < len(hidden) && hidden[i] && i != f.focus
+		if i < len(errs) && errs[i] != "" && !f.fields[i].hidden {
 			f.fields[i].err = errs[i]
 			ok = false
 		}
@@ -66,7 +77,15 @@ func (f *form) setFocus(i int) {
 		return
 	}
 	f.fields[f.focus].input.Blur()
-	f.focus = (i%n + n) % n
+	step := 1
+	if i < f.focus {
+		step = -1
+	}
+	i = (i%n + n) % n
+	for k := 0; k < n && f.fields[i].hidden; k++ {
+		i = ((i+step)%n + n) % n
+	}
+	f.focus = i
 	f.fields[f.focus].input.focus()
 }
 
@@ -139,6 +158,14 @@ func (m *Model) editLayer() {
 		return l.Normalized(), errs
 	}
 	f := newForm("edit "+engine.Summary(&orig), keys, helps, vals)
+	f.hide = func(values []string) []bool {
+		l, _ := build(values)
+		out := make([]bool, len(fields))
+		for i, fl := range fields {
+			out[i] = fl.Applies != nil && !fl.Applies(&l)
+		}
+		return out
+	}
 	f.try = func(values []string) []string {
 		l, errs := build(values)
 		s := m.stack.Clone()

@@ -14,13 +14,28 @@ func (m *Model) formView(lay layout) string {
 	lines := []string{m.st.Label.Render(f.title) + m.st.Dim.Render("  — numbers below follow as you type")}
 	labelW := 0
 	for _, fl := range f.fields {
-		labelW = max(labelW, len(fl.key))
+		if !fl.hidden {
+			labelW = max(labelW, len(fl.key))
+		}
+	}
+	var shown []int // the fields that apply, in order
+	at := 0
+	for i := range f.fields {
+		if !f.fields[i].hidden {
+			if i == f.focus {
+				at = len(shown)
+			}
+			shown = append(shown, i)
+		}
 	}
 	first := 0
-	if per := lay.listH - 1; f.focus >= per {
-		first = f.focus - per + 1
+	if per := lay.listH - 1; at >= per {
+		first = at - per + 1
 	}
-	for i := first; i < len(f.fields) && len(lines) < lay.listH; i++ {
+	for _, i := range shown[min(first, len(shown)):] {
+		if len(lines) >= lay.listH {
+			break
+		}
 		fl := f.fields[i]
 		mark := "  "
 		if i == f.focus {
