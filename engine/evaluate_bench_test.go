@@ -100,8 +100,9 @@ func BenchmarkEvaluate1000Fresh(b *testing.B) {
 
 // mobileStack builds a stack of about n rows the way the mobile families
 // are written: inverted residual stages (identity-only shortcuts, a
-// depthwise 3×3, a squeeze-and-excitation gate, stochastic depth) between
-// densely linked blocks.
+// depthwise 3×3, a squeeze-and-excitation gate, stochastic depth, widths
+// relative to the repeat's input with the MobileNet rounding) between
+// densely linked blocks and Inception-style forks.
 func mobileStack(n int) *Stack {
 	s := &Stack{Input: Shape{3, 224, 224}, Layers: []Layer{
 		{Kind: KindConv, Filters: 32, Kernel: Square(3), Stride: Square(2), Pad: Padding{Size: Square(1)}, NoBias: true},
@@ -117,12 +118,12 @@ func mobileStack(n int) *Stack {
 		out := min(c+8, 320)
 		gate := Layer{Kind: KindGate, Body: []Layer{
 			{Kind: KindGlobalPool, Pool: PoolAvg},
-			{Kind: KindConv, Filters: 8, Kernel: Square(1)}, {Kind: KindAct},
-			{Kind: KindConv, Filters: 6 * c, Kernel: Square(1)}, {Kind: KindAct, Act: ActSigmoid},
+			{Kind: KindConv, Rel: Rel{Div: 4}, RoundTo: 8, Kernel: Square(1)}, {Kind: KindAct},
+			{Kind: KindConv, Rel: Rel{Mul: 1}, Kernel: Square(1)}, {Kind: KindAct, Act: ActSigmoid},
 		}}
 		body := []Layer{
-			{Kind: KindConv, Filters: 6 * c, Kernel: Square(1), NoBias: true}, {Kind: KindNorm}, {Kind: KindAct, Act: ActReLU6},
-			{Kind: KindConv, Filters: 6 * c, Kernel: Square(3), Stride: Square(stride), Pad: Padding{Size: Square(1)}, Depthwise: true, NoBias: true},
+			{Kind: KindConv, Rel: Rel{Mul: 6}, Kernel: Square(1), NoBias: true}, {Kind: KindNorm}, {Kind: KindAct, Act: ActReLU6},
+			{Kind: KindConv, Rel: Rel{Mul: 6}, Kernel: Square(3), Stride: Square(stride), Pad: Padding{Size: Square(1)}, Depthwise: true, NoBias: true},
 			{Kind: KindNorm}, {Kind: KindAct, Act: ActReLU6},
 			gate,
 			{Kind: KindConv, Filters: out, Kernel: Square(1), NoBias: true}, {Kind: KindNorm},
@@ -130,10 +131,20 @@ func mobileStack(n int) *Stack {
 		dense := Layer{Kind: KindBlock, Repeat: 2, DenseLinks: true, Body: []Layer{
 			{Kind: KindNorm}, {Kind: KindAct}, {Kind: KindConv, Filters: 8, Kernel: Square(3), Pad: Padding{Size: Square(1)}, NoBias: true},
 		}}
+		fork := Layer{Kind: KindFork, Body: []Layer{
+			{Kind: KindBranch, Body: []Layer{{Kind: KindConv, Rel: Rel{Div: 2}, Kernel: Square(1), NoBias: true}}},
+			{Kind: KindBranch, Body: []Layer{
+				{Kind: KindConv, Rel: Rel{Div: 4}, Kernel: Square(1), NoBias: true}, {Kind: KindAct},
+				{Kind: KindConv, Filters: out / 4, Kernel: Square(3), Pad: Padding{Size: Square(1)}, NoBias: true}}},
+			{Kind: KindBranch, Body: []Layer{
+				{Kind: KindPool, Kernel: Square(3), Stride: Square(1), Pad: Padding{Size: Square(1)}},
+				{Kind: KindConv, Rel: Rel{Div: 4}, Kernel: Square(1), NoBias: true}}},
+		}}
 		s.Layers = append(s.Layers,
 			Layer{Kind: KindBlock, Repeat: 3, Residual: true, IdentityOnly: true, DropPath: 0.1, Body: body},
 			dense,
-			Layer{Kind: KindConv, Filters: out, Kernel: Square(1), NoBias: true})
+			Layer{Kind: KindConv, Filters: out, Kernel: Square(1), NoBias: true},
+			fork)
 		c = out
 	}
 	s.Layers = append(s.Layers, Layer{Kind: KindGlobalPool}, Layer{Kind: KindDense, Filters: 1000})
@@ -148,6 +159,7 @@ func TestMobileStackResolves(t *testing.T) {
 }
 
 // BenchmarkEvaluate1000Mobile recomputes about 1,000 rows of gates,
-// identity-only residuals with stochastic depth and dense links; compare
-// it with BenchmarkEvaluate1000Blocks in the same run.
+// identity-only residuals with stochastic depth, relative widths, dense
+// links and forks; compare it with BenchmarkEvaluate1000Blocks in the same
+// run.
 func BenchmarkEvaluate1000Mobile(b *testing.B) { benchRecompute(b, mobileStack(1000)) }

@@ -35,7 +35,7 @@ func FuzzParseBytes(f *testing.F) {
 // editor's forms do: no panic; a refusal is a *FieldError naming the field;
 // an accepted value reads back as text the field accepts again.
 func FuzzFields(f *testing.F) {
-	for _, s := range []string{"3", "3x5", "same", "valid", "depthwise", "yes", "0.5", "1024x4x4", "-1", "99999999999999999999", "×", "", "name_1", "x\nimport os"} {
+	for _, s := range []string{"3", "3x5", "same", "valid", "depthwise", "yes", "0.5", "1024x4x4", "-1", "99999999999999999999", "×", "", "name_1", "x\nimport os", "x6", "/4", "x0", "/0", "×1.5", "split"} {
 		f.Add(uint8(0), uint8(0), s)
 	}
 	kinds := Kinds()
@@ -63,7 +63,7 @@ func FuzzFields(f *testing.F) {
 // FuzzParseQuick reads arbitrary quick-entry lines: no panic, errors wrap
 // ErrQuick, and an accepted line's summary reads back as the same layer.
 func FuzzParseQuick(f *testing.F) {
-	for _, s := range []string{"conv 64 k3 s2 p1", "pool max k3 s2 ceil", "act leaky-relu 0.2", "block 2 residual then relu", "concat a crop", "dense", "reshape 1x1x1", "conv 1 k1 @x", "block 3 residual identity dp0.1 then relu6", "gate channel", "act relu6", "scale 1e-6", "shuffle g3", "act hard-sigmoid"} {
+	for _, s := range []string{"conv 64 k3 s2 p1", "pool max k3 s2 ceil", "act leaky-relu 0.2", "block 2 residual then relu", "concat a crop", "dense", "reshape 1x1x1", "conv 1 k1 @x", "block 3 residual identity dp0.1 then relu6", "gate channel", "act relu6", "scale 1e-6", "shuffle g3", "act hard-sigmoid", "fork split", "fork copy @f", "branch", "conv x6 k1 round8 of-block", "conv /4 k1", "dense x0.25 per-position", "norm layer eps1e-06"} {
 		f.Add(s)
 	}
 	f.Fuzz(func(t *testing.T, s string) {

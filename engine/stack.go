@@ -62,3 +62,46 @@ func (s *Stack) BodyAt(p Path) (item, branch *Layer) {
 	}
 	return item, branch
 }
+
+// ItemPath returns the path of the item at idx (0-based indices into the
+// stack's list, then into each enclosing item's body): its own row's path,
+// or for a block, gate, fork or branch the prefix its rows share. A block
+// or gate adds its repeat (1) before its body's numbers; a fork's body
+// items are its branches, numbered directly, and a branch's layers follow
+// its number ("4.2.1" is layer 1 of branch 2 of the fork at item 4).
+func (s *Stack) ItemPath(idx []int) Path {
+	var p Path
+	ls := s.Layers
+	for k, i := range idx {
+		p.push(i + 1)
+		if i < 0 || i >= len(ls) || k == len(idx)-1 {
+			break
+		}
+		l := &ls[i]
+		switch l.Kind {
+		case KindFork, KindBranch:
+		default:
+			p.push(1)
+		}
+		ls = l.Body
+	}
+	return p
+}
+
+// Levels returns how many nesting levels enclose the item at idx: blocks,
+// gates and forks count one each (a fork's branch belongs to its fork's
+// level).
+func (s *Stack) Levels(idx []int) int {
+	n := 0
+	ls := s.Layers
+	for _, i := range idx[:max(len(idx)-1, 0)] {
+		if i < 0 || i >= len(ls) {
+			break
+		}
+		if ls[i].Kind != KindBranch {
+			n++
+		}
+		ls = ls[i].Body
+	}
+	return n
+}

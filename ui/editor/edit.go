@@ -98,21 +98,84 @@ func (m *Model) restore(s snapshot, verb string) tea.Cmd {
 	return m.widthCmd()
 }
 
-// insertAfter places l after the selected item, in the same list.
+// insertAfter places l after the selected item, in the same list; on an
+// empty block, gate or branch it goes inside. Inside a fork's list of
+// branches a layer becomes a new branch of its own, and a branch can only
+// go into a fork.
 func (m *Model) insertAfter(l engine.Layer, what string) tea.Cmd {
 	cur := m.current()
 	return m.change(what, func(s *engine.Stack) (addr, error) {
 		if cur == nil {
+			if l.Kind == engine.KindBranch {
+				return nil, errBranchOutside
+			}
 			s.Layers = append(s.Layers, l)
 			return addr{len(s.Layers) - 1}, nil
+		}
+		if c := at(s, cur.addr); c != nil && engine.SpecOf(c.Kind).Body && len(c.Body) == 0 {
+			item, err := placed(l, c.Kind == engine.KindFork)
+			if err != nil {
+				return nil, err
+			}
+			if err := m.checkDepth(s, append(cur.addr, 0), item); err != nil {
+				return nil, err
+			}
+			c.Body = append(c.Body, item)
+			return append(cur.addr, 0), nil
 		}
 		ls, i := list(s, cur.addr)
 		if ls == nil {
 			return nil, errors.New("the selected layer is gone")
 		}
-		*ls = append((*ls)[:i+1], append([]engine.Layer{l}, (*ls)[i+1:]...)...)
+		parent := at(s, cur.addr.parent())
+		item, err := placed(l, parent != nil && parent.Kind == engine.KindFork)
+		if err != nil {
+			return nil, err
+		}
+		if err := m.checkDepth(s, cur.addr, item); err != nil {
+			return nil, err
+		}
+		*ls = append((*ls)[:i+1], append([]engine.Layer{item}, (*ls)[i+1:]...)...)
 		return cur.addr.with(i + 1), nil
 	})
+}
+
+var errBranchOutside = errors.New("a branch goes inside a fork; add a fork (its branches come with it) or select one of its branches")
+
+// placed returns what l becomes in a list: in a fork's list of branches a
+// layer is wrapped in a branch of its own; elsewhere a branch is refused.
+func placed(l engine.Layer, inFork bool) (engine.Layer, error) {
+	switch {
+	case inFork && l.Kind != engine.KindBranch:
+		return engine.Layer{Kind: engine.KindBranch, Body: []engine.Layer{l}}, nil
+	case !inFork && l.Kind == engine.KindBranch:
+		return engine.Layer{}, errBranchOutside
+	}
+	return l, nil
+}
+
+// checkDepth refuses an item that would nest deeper than a stack file may
+// when placed at a.
+func (m *Model) checkDepth(s *engine.Stack, a addr, l engine.Layer) error {
+	if d := s.Levels(a) + innerLevels(&l); d > stackfile.MaxBlockDepth {
+		return fmt.Errorf("that would nest blocks, gates and forks %d deep; the limit is %d — flatten an inner one first", d, stackfile.MaxBlockDepth)
+	}
+	return nil
+}
+
+// innerLevels is how many nesting levels l opens, itself included.
+func innerLevels(l *engine.Layer) int {
+	if !engine.SpecOf(l.Kind).Body {
+		return 0
+	}
+	n := 0
+	for i := range l.Body {
+		n = max(n, innerLevels(&l.Body[i]))
+	}
+	if l.Kind == engine.KindBranch {
+		return n // a branch belongs to its fork's level
+	}
+	return n + 1
 }
 
 // stripNames clears the names of l and everything inside it (a copy must
@@ -195,14 +258,17 @@ func (m *Model) wrap() tea.Cmd {
 		m.setStatus("a range must stay inside one list; press v to clear it", statusError)
 		return nil
 	}
-	if len(parent) >= stackfile.MaxBlockDepth {
-		m.setStatus(fmt.Sprintf("blocks nest at most %d deep; this range is already inside %d", stackfile.MaxBlockDepth, len(parent)), statusError)
+	if p := at(m.stack, parent); p != nil && p.Kind == engine.KindFork {
+		m.setStatus("these are a fork's branches; select layers inside one branch to wrap them", statusError)
 		return nil
 	}
 	return m.change(fmt.Sprintf("wrapped %d layer%s in a block", hi-lo+1, plural(hi-lo+1)), func(s *engine.Stack) (addr, error) {
 		ls, _ := list(s, append(parent, lo))
 		body := append([]engine.Layer(nil), (*ls)[lo:hi+1]...)
 		b := engine.Layer{Kind: engine.KindBlock, Repeat: 1, Body: body}
+		if err := m.checkDepth(s, append(parent, lo), b); err != nil {
+			return nil, err
+		}
 		*ls = append((*ls)[:lo], append([]engine.Layer{b}, (*ls)[hi+1:]...)...)
 		return append(parent, lo), nil
 	})
@@ -224,7 +290,7 @@ func (m *Model) scaleFilters(num, den int64) tea.Cmd {
 		n := 0
 		var walk func(l *engine.Layer)
 		walk = func(l *engine.Layer) {
-			if l.Kind.HasWeights() {
+			if l.Kind.HasWeights() && l.Rel.IsZero() { // a relative width follows its input
 				l.Filters = min(max(l.Filters*num/den, 1), engine.MaxChannels)
 				n++
 			}
@@ -234,7 +300,7 @@ func (m *Model) scaleFilters(num, den int64) tea.Cmd {
 		}
 		walk(l)
 		if n == 0 {
-			return nil, fmt.Errorf("%s has no filters; widen works on conv, deconv, dense and blocks", l.Kind)
+			return nil, fmt.Errorf("%s has no absolute widths; widen works on conv, deconv, dense and the items holding them (relative widths such as x6 follow their input)", l.Kind)
 		}
 		return cur.addr, nil
 	})

@@ -233,7 +233,7 @@ func TestEditOperations(t *testing.T) {
 	// Blocks nest at most three deep: wrapping the inner layer again and
 	// again stops there.
 	press(m, "j", "b", "j", "b", "j", "b")
-	if !strings.Contains(m.status, "blocks nest at most 3 deep") {
+	if !strings.Contains(m.status, "the limit is 3") {
 		t.Errorf("a fourth level of blocks was allowed: %s", m.status)
 	}
 	press(m, "u", "u", "home")
@@ -551,5 +551,62 @@ func TestViewFillsScreen(t *testing.T) {
 				t.Errorf("%v after %v: %d lines, want %d", size, keys, got, size[1])
 			}
 		}
+	}
+}
+
+// TestForkEditing builds a fork from the editor: quick entry gives it its
+// usual two branches, a layer added among the branches becomes a branch
+// of its own, one added on an empty branch goes inside it, a branch
+// cannot be added outside a fork, and the result saves and loads back.
+func TestForkEditing(t *testing.T) {
+	m := newModel(t, &engine.Stack{Name: "fork", Input: engine.Shape{C: 16, H: 32, W: 32}}, 100, 30)
+	press(m, ":")
+	typeText(m, "fork copy")
+	press(m, "enter")
+	f := m.stack.Layers[0]
+	if f.Kind != engine.KindFork || len(f.Body) != 2 || m.res.Errors != 0 || m.res.Output != (engine.Shape{C: 16, H: 32, W: 32}) {
+		t.Fatalf("quick entry gave %+v, output %v, %v", f, m.res.Output, m.res.Diags)
+	}
+	press(m, "j") // branch 1
+	press(m, ":")
+	typeText(m, "conv 8 k1")
+	press(m, "enter")
+	f = m.stack.Layers[0]
+	if len(f.Body) != 3 || f.Body[1].Kind != engine.KindBranch || f.Body[1].Body[0].Filters != 8 {
+		t.Fatalf("a layer among the branches: %+v", f.Body)
+	}
+	if m.res.Output.C != 24 {
+		t.Errorf("three branches join to %d channels, want 8 + 8 + 8", m.res.Output.C)
+	}
+	// An empty branch takes the next layer inside.
+	m.stack.Layers[0].Body = append(m.stack.Layers[0].Body, engine.Layer{Kind: engine.KindBranch})
+	m.recompute()
+	if !strings.Contains(view(m), "empty: the map itself") {
+		t.Errorf("an empty branch is not marked:\n%s", view(m))
+	}
+	m.selectAddr(addr{0, 3})
+	press(m, ":")
+	typeText(m, "act relu")
+	press(m, "enter")
+	if b := m.stack.Layers[0].Body[3]; len(b.Body) != 1 || b.Body[0].Kind != engine.KindAct {
+		t.Errorf("the empty branch got %+v", b)
+	}
+	m.selectAddr(addr{0})
+	press(m, ":")
+	typeText(m, "branch")
+	press(m, "enter")
+	if !strings.Contains(m.status, "a branch goes inside a fork") || len(m.stack.Layers) != 1 {
+		t.Errorf("a branch outside a fork: %q, %d items", m.status, len(m.stack.Layers))
+	}
+	data, err := stackfile.Save(m.stack)
+	if err != nil {
+		t.Fatal(err)
+	}
+	back, err := stackfile.Load(data)
+	if err != nil {
+		t.Fatalf("the saved fork does not load: %v\n%s", err, data)
+	}
+	if r := engine.Evaluate(back); r.Output != m.res.Output || r.Totals != m.res.Totals {
+		t.Errorf("reloaded: %v %v, editor %v %v", r.Output, r.Totals, m.res.Output, m.res.Totals)
 	}
 }

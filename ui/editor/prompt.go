@@ -132,6 +132,9 @@ func (m *Model) acceptPrompt() tea.Cmd {
 			return nil
 		}
 		m.prompt, m.mode = nil, modeNormal
+		if engine.SpecOf(l.Kind).Body && len(l.Body) == 0 && l.Kind != engine.KindBlock && l.Kind != engine.KindBranch {
+			l.Body = newLayer(l.Kind, m.channelsAt()).Body // a gate or fork with its usual layers
+		}
 		return m.insertAfter(l, "added "+engine.Summary(&l))
 	case promptWidth:
 		f, err := parseFactor(v)

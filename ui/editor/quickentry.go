@@ -82,14 +82,22 @@ func newLayer(k engine.Kind, c int64) engine.Layer {
 		return engine.Layer{Kind: k, Target: engine.Shape{C: c, H: 1, W: 1}}
 	case engine.KindGate:
 		// A squeeze-and-excitation gate (Hu et al. 2018): pool, squeeze to a
-		// quarter of the channels (a multiple of 8, at least 8), expand back.
-		squeeze := engine.RoundToMultiple(max(c/4, 1), 8)
+		// quarter of the channels (a multiple of 8, at least 8), expand back;
+		// relative widths keep it right when the channels change.
 		return engine.Layer{Kind: k, Body: []engine.Layer{
 			{Kind: engine.KindGlobalPool, Pool: engine.PoolAvg},
-			{Kind: engine.KindConv, Filters: squeeze, Kernel: engine.Square(1)},
+			{Kind: engine.KindConv, Rel: engine.Rel{Div: 4}, RoundTo: 8, Kernel: engine.Square(1)},
 			{Kind: engine.KindAct, Act: engine.ActReLU},
-			{Kind: engine.KindConv, Filters: c, Kernel: engine.Square(1)},
+			{Kind: engine.KindConv, Rel: engine.Rel{Mul: 1}, Kernel: engine.Square(1)},
 			{Kind: engine.KindAct, Act: engine.ActSigmoid},
+		}}
+	case engine.KindFork:
+		// Two branches, a 1×1 and a 3×3 convolution of half the channels
+		// each, so the join keeps the width.
+		half := engine.Rel{Div: 2}
+		return engine.Layer{Kind: k, Body: []engine.Layer{
+			{Kind: engine.KindBranch, Body: []engine.Layer{{Kind: engine.KindConv, Rel: half, Kernel: engine.Square(1)}}},
+			{Kind: engine.KindBranch, Body: []engine.Layer{{Kind: engine.KindConv, Rel: half, Kernel: engine.Square(3), Pad: engine.Padding{Size: engine.Square(1)}}}},
 		}}
 	case engine.KindScale:
 		return engine.Layer{Kind: k, ScaleInit: 1e-6} // layer scale's usual start (Liu et al. 2022)

@@ -23,20 +23,6 @@ func (a addr) key() string {
 	return b.String()
 }
 
-// path is the report path of the layer's first row: for a layer inside
-// blocks, the repeat segments are 1 ("4.1.2"); a block's path is its item
-// prefix ("4").
-func (a addr) path() engine.Path {
-	var p engine.Path
-	for i, v := range a {
-		if i > 0 {
-			p = p.Append(1)
-		}
-		p = p.Append(v + 1)
-	}
-	return p
-}
-
 // parent returns the address of the enclosing block (nil at top level).
 func (a addr) parent() addr {
 	if len(a) <= 1 {
@@ -99,7 +85,7 @@ func buildItems(s *engine.Stack, r *engine.Result, folded map[string]bool, out [
 		for i := range ls {
 			a := append(append(addr(nil), parent...), i)
 			it := item{addr: a, depth: depth, layer: &ls[i], first: -1, last: -1}
-			p := a.path()
+			p := s.ItemPath(a)
 			j := next
 			for j < len(r.Rows) && !r.Rows[j].Path.HasPrefix(p) && !beyond(r.Rows[j].Path, p) {
 				j++

@@ -213,6 +213,9 @@ func (m *Model) itemLine(it *item, lay layout, selected bool) string {
 		}
 	}
 	label := engine.Summary(l)
+	if l.Kind == engine.KindBranch && len(l.Body) == 0 {
+		label += " · empty: the map itself"
+	}
 	if l.Name != "" {
 		label += " [" + l.Name + "]"
 	}
@@ -312,7 +315,7 @@ func (m *Model) detailLines() []string {
 	}
 	row := it.first
 	if m.preview != nil {
-		row = findRow(res, it.addr.path())
+		row = findRow(res, m.stack.ItemPath(it.addr))
 	}
 	if row < 0 || row >= len(res.Rows) {
 		return []string{"no numbers for this layer yet"}
@@ -321,7 +324,7 @@ func (m *Model) detailLines() []string {
 	var out []string
 	where := r.Path.String()
 	if engine.SpecOf(it.layer.Kind).Body {
-		where = it.addr.path().String()
+		where = m.stack.ItemPath(it.addr).String()
 	}
 	head := fmt.Sprintf("%s · %s", where, engine.Summary(it.layer))
 	if m.preview != nil {
@@ -370,12 +373,33 @@ func (m *Model) detailLines() []string {
 }
 
 func (m *Model) blockLines(it *item, res *engine.Result, mem *engine.Memory) []string {
+	l := it.layer
+	if l.Kind == engine.KindBranch && len(l.Body) == 0 {
+		return []string{"an empty branch: the fork's input (or its share of the channels) joins unchanged"}
+	}
 	if it.first < 0 {
 		return nil
 	}
 	params, macs, act := itemTotals(it, res, mem)
-	l := it.layer
 	totals := fmt.Sprintf("params %s · MACs %s per sample · keeps %s for backward", engine.GroupDigits(params), engine.FormatCount(macs), engine.FormatBytes(act))
+	switch l.Kind {
+	case engine.KindFork:
+		how := "each reads the whole map"
+		if l.Split {
+			how = fmt.Sprintf("each reads 1/%d of the channels", max(len(l.Body), 1))
+		}
+		return []string{
+			fmt.Sprintf("%d branch%s (%s), joined along the channels → rows %s to %s",
+				len(l.Body), map[bool]string{true: "", false: "es"}[len(l.Body) == 1], how, res.Rows[it.first].Path, res.Rows[it.last].Path),
+			totals,
+		}
+	case engine.KindBranch:
+		return []string{
+			fmt.Sprintf("branch %d of its fork: %d layer%s → rows %s to %s", it.addr[len(it.addr)-1]+1,
+				len(l.Body), plural(len(l.Body)), res.Rows[it.first].Path, res.Rows[it.last].Path),
+			totals,
+		}
+	}
 	if l.Kind == engine.KindGate {
 		return []string{
 			fmt.Sprintf("%d layer%s compute a C×1×1 gate from the map, then the map is multiplied by it channel by channel → rows %s to %s",
