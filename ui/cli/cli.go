@@ -39,9 +39,11 @@ func Run(args []string, std IO) int {
 		if !std.Terminal {
 			return showExample(std)
 		}
-		return runEditor("", std)
+		return runEditor("", examples.FruitGrader(), std)
 	}
 	switch args[0] {
+	case "example":
+		return runExample(args[1:], std)
 	case "report":
 		return runReport(args[1:], std)
 	case "check":
@@ -63,9 +65,9 @@ func Run(args []string, std IO) int {
 			fmt.Fprintf(std.Err, "stackfit: the editor needs a terminal; for a printout use: stackfit report %s\n", args[0])
 			return ExitUsage
 		}
-		return runEditor(args[0], std)
+		return runEditor(args[0], nil, std)
 	}
-	fmt.Fprintf(std.Err, "stackfit: unknown command %q (commands: report, check, export, help; a stack file name needs its extension, e.g. net.yaml)\n\n%s", args[0], usage)
+	fmt.Fprintf(std.Err, "stackfit: unknown command %q (commands: report, check, export, example, help; a stack file name needs its extension, e.g. net.yaml)\n\n%s", args[0], usage)
 	return ExitUsage
 }
 
@@ -83,6 +85,7 @@ usage:
   stackfit report FILE [flags]    print the numbers: text, markdown, csv or json
   stackfit check FILE [flags]     for CI: errors, warnings and the memory verdict
   stackfit export FILE [flags]    write the stack as a PyTorch module
+  stackfit example [NAME] [-o F]  list the built-in examples, edit one, or write it to F
   stackfit help COMMAND           the flags of one command (or COMMAND --help)
 
 FILE may be '-' to read the stack from standard input (report, check, export).
@@ -92,6 +95,18 @@ exit status: 0 clean · 1 the stack has errors or does not fit the budget
 ` + trainingUsage()
 
 var commandUsage = map[string]string{
+	"example": `usage: stackfit example [NAME] [-o FILE]
+
+Without NAME, lists the built-in example stacks. With NAME, opens it in the
+editor (unsaved until you pick a file), or prints its stack file when not
+run in a terminal.
+
+  -o FILE        write the example's stack file to FILE (refused if FILE exists)
+
+examples:
+  stackfit example
+  stackfit example fruit-grader-board -o board.yaml
+`,
 	"report": `usage: stackfit report FILE [flags]
 
 Prints every layer's output size, parameters, MACs and receptive field,
@@ -132,6 +147,62 @@ comment header with stackfit's totals.
 examples:
   stackfit export net.yaml --to pytorch -o net.py
 ` + trainingUsage(),
+}
+
+// runExample lists, opens or writes a built-in example.
+func runExample(args []string, std IO) int {
+	fs := flag.NewFlagSet("example", flag.ContinueOnError)
+	fs.SetOutput(io.Discard)
+	out := fs.String("o", "", "")
+	pos, err := parseInterleaved(fs, args)
+	if errors.Is(err, flag.ErrHelp) {
+		fmt.Fprint(std.Out, commandUsage["example"])
+		return ExitOK
+	}
+	if err != nil || len(pos) > 1 {
+		if err == nil {
+			err = fmt.Errorf("give at most one example name (got %d)", len(pos))
+		}
+		fmt.Fprintf(std.Err, "stackfit example: %v\n(stackfit example --help lists the flags)\n", err)
+		return ExitUsage
+	}
+	all := examples.All()
+	if len(pos) == 0 {
+		for _, e := range all {
+			fmt.Fprintf(std.Out, "  %-20s %s\n", e.Name, e.About)
+		}
+		fmt.Fprint(std.Out, "\nopen one with: stackfit example NAME   (or write it: stackfit example NAME -o FILE)\n")
+		return ExitOK
+	}
+	e, ok := examples.Find(pos[0])
+	if !ok {
+		names := make([]string, len(all))
+		for i := range all {
+			names[i] = all[i].Name
+		}
+		fmt.Fprintf(std.Err, "stackfit example: no example is called %q; the examples: %s\n", pos[0], strings.Join(names, ", "))
+		return ExitUsage
+	}
+	switch {
+	case *out != "":
+		if _, err := os.Lstat(*out); err == nil {
+			fmt.Fprintf(std.Err, "stackfit example: %q already exists; stackfit does not overwrite a file it has not read — choose another name\n", *out)
+			return ExitUsage
+		}
+		if err := store.WriteFileAtomic(*out, e.Data(), 0o644); err != nil {
+			fmt.Fprintf(std.Err, "stackfit example: %v\n", err)
+			return ExitUsage
+		}
+		fmt.Fprintf(std.Out, "wrote %q; edit it with: stackfit %q\n", *out, *out)
+		return ExitOK
+	case std.Terminal:
+		return runEditor("", e.Data(), std)
+	}
+	_, err = std.Out.Write(e.Data())
+	if err != nil {
+		return ExitUsage
+	}
+	return ExitOK
 }
 
 func showExample(std IO) int {

@@ -209,3 +209,34 @@ func TestExportCommand(t *testing.T) {
 		t.Errorf("exit %d: %s", code, errs)
 	}
 }
+
+// TestExampleCommand lists, prints and writes the built-in examples, and
+// refuses an unknown name and an existing file.
+func TestExampleCommand(t *testing.T) {
+	out, _, code := run(t, "", "example")
+	if code != ExitOK || !strings.Contains(out, "fruit-grader-board") || !strings.Contains(out, "fruit-grader ") {
+		t.Errorf("list (exit %d):\n%s", code, out)
+	}
+	out, _, code = run(t, "", "example", "fruit-grader-board")
+	if code != ExitOK || !strings.HasPrefix(out, "stackfit: 1\nname: Fruit grader on the camera board\n") {
+		t.Errorf("print (exit %d):\n%s", code, out)
+	}
+	_, errs, code := run(t, "", "example", "fruit")
+	if code != ExitUsage || !strings.Contains(errs, `no example is called "fruit"; the examples: fruit-grader, fruit-grader-board`) {
+		t.Errorf("unknown name (exit %d): %s", code, errs)
+	}
+	p := filepath.Join(t.TempDir(), "board.yaml")
+	if _, errs, code := run(t, "", "example", "fruit-grader-board", "-o", p); code != ExitOK {
+		t.Fatalf("write (exit %d): %s", code, errs)
+	}
+	if _, errs, code := run(t, "", "check", p); code != ExitOK {
+		t.Errorf("the written example does not check clean (exit %d): %s", code, errs)
+	}
+	if err := os.WriteFile(p, []byte("mine"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, errs, code = run(t, "", "example", "fruit-grader", "-o", p)
+	if data, _ := os.ReadFile(p); code != ExitUsage || string(data) != "mine" || !strings.Contains(errs, "already exists") {
+		t.Errorf("an existing file (exit %d, now %q): %s", code, data, errs)
+	}
+}

@@ -14,7 +14,6 @@ import (
 	"github.com/muesli/termenv"
 
 	"stackfit/engine"
-	"stackfit/engine/examples"
 	"stackfit/engine/stackfile"
 	"stackfit/keymap"
 	"stackfit/ui/editor"
@@ -50,8 +49,9 @@ func readEnvironment() environment {
 	return env
 }
 
-// runEditor opens the editor on path ("" for the built-in example).
-func runEditor(path string, std IO) int {
+// runEditor opens the editor on path, or with path "" on the built-in
+// example stack file builtin (not saved until the user picks a file).
+func runEditor(path string, builtin []byte, std IO) int {
 	env := readEnvironment()
 	km, err := keymap.LoadFile(env.paths.Keys, keymap.DefaultKeyMap())
 	if err != nil {
@@ -60,7 +60,7 @@ func runEditor(path string, std IO) int {
 	opt := editor.Options{Path: path, Keys: km, Styles: styles.DefaultStyles(), KeysPath: env.paths.Keys, Files: store.Disk{}}
 	switch {
 	case path == "":
-		s, err := stackfile.Load(examples.FruitGrader())
+		s, err := stackfile.Load(builtin)
 		if err != nil {
 			fmt.Fprintf(std.Err, "stackfit: built-in example: %v\n", err)
 			return ExitUsage

@@ -40,8 +40,8 @@ func quickSyntax() string {
   norm batch              norm group g32   norm instance affine   norm layer
   ` + acts + `
   dropout 0.3   flatten   dense 10 nobias   reshape 1024x4x4
-  concat NAME crop        add NAME       block 2 residual then relu
-  @NAME names the layer; sizes take n or h×w (3x5)`
+  concat NAME crop  add NAME  block 2 residual  gate channel  fork copy|split
+  conv x6 k1 round8 (x6, /4: of the input) · @NAME names it · sizes n or 3x5`
 }
 
 // completeKind returns the kind names that start with prefix, sorted.
