@@ -80,6 +80,9 @@ type Row struct {
 	// Grad: the input carries a gradient (some earlier row has parameters);
 	// OtherGrad: so does a merge's or a gate's second input.
 	Grad, OtherGrad bool
+	// InChannelsLast: the input is stored channels-last (after a layer
+	// norm or a per-position dense layer in the export's PyTorch form).
+	InChannelsLast bool
 }
 
 // Totals sums the rows of a result.
@@ -137,6 +140,7 @@ type flow struct {
 	store int32 // row whose output storage holds the tensor; −1 the input
 	ok    bool
 	grad  bool // the tensor carries a gradient
+	cl    bool // stored channels-last
 }
 
 // tally gathers what the whole-stack checks need while rows are computed.
@@ -254,6 +258,7 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 	}
 	row.Layer, row.In, row.Status, row.Role, row.Unstrided = l, f.shape, StatusOK, role, unstrided
 	row.InStore, row.OtherStore, row.Grad, row.OtherGrad = f.store, -1, f.grad, false
+	row.InChannelsLast = f.cl
 	row.Out, row.Params, row.Buffers, row.MACs = Shape{}, 0, 0, 0
 	if !f.ok {
 		row.Status = StatusUnresolved
@@ -280,6 +285,7 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 		return
 	}
 	f.shape = row.Out
+	f.cl = sp.layout != nil && sp.layout(l, f.cl)
 	row.RF, row.Jump = f.rf, f.jump
 	if !sp.View {
 		f.store = int32(idx) // every kind but a view writes a new tensor

@@ -56,6 +56,7 @@ var convSpec = Spec{
 	Params:   append([]Param{kernelParam, strideParam, padParam, dilationParam, groupsParam, biasParam}, widthParams...),
 	Weighted: true,
 	eval:     func(c *calc, f *flow) { c.conv(f, false) },
+	layout:   keepLayout,
 	explain:  explainConv,
 	saved:    func(row *Row, s *saving) int64 { return s.input(row) },
 	torch:    torchConv,
@@ -75,6 +76,11 @@ var deconvSpec = Spec{
 	saved:    func(row *Row, s *saving) int64 { return s.input(row) },
 	torch:    torchConv,
 }
+
+// keepLayout: the output keeps the input's memory layout (PyTorch's CPU
+// convolutions, norms and element-wise functions do; measured with
+// testdata/reference).
+func keepLayout(_ *Layer, in bool) bool { return in }
 
 // rowStride is the stride a row ran with: 1 in later repeats of a block.
 func rowStride(row *Row) Pair {

@@ -32,7 +32,18 @@ var denseSpec = Spec{
 		}
 		return out
 	},
-	saved: func(row *Row, s *saving) int64 { return s.input(row) },
+	// A linear layer keeps its input; applied per position to a map not
+	// stored channels-last, the permuted input is first copied into a
+	// contiguous tensor of its own, and autograd keeps that copy (checked
+	// with testdata/reference).
+	saved: func(row *Row, s *saving) int64 {
+		if row.Layer.PerPosition && row.In.Spatial() && !row.InChannelsLast {
+			n, _ := row.In.Elements()
+			return mul(&s.ov, n, s.e)
+		}
+		return s.input(row)
+	},
+	layout: func(l *Layer, in bool) bool { return l.PerPosition },
 	torch: func(row *Row) Torch {
 		if row.Layer.PerPosition {
 			return Torch{Module: fmt.Sprintf("PositionDense(%d, %d, bias=%s)", row.In.C, row.Out.C, pyBool(!row.Layer.NoBias))}

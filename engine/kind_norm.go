@@ -26,6 +26,9 @@ var normSpec = Spec{
 			show: func(l *Layer) Value { return Value{Float: normEps(l)} }},
 	},
 	eval: func(c *calc, f *flow) { c.norm() },
+	// Layer norm runs on the channels-last view and is permuted back: its
+	// output is stored channels-last.
+	layout: func(l *Layer, in bool) bool { return in || l.Norm == NormLayer },
 	explain: func(row *Row) []string {
 		var out []string
 		if row.Params > 0 {

@@ -325,7 +325,7 @@ func (r *Result) peakLive(lastUse []int32) int64 {
 			continue
 		}
 		use(row.InStore, i)
-		if row.OtherStore >= -1 && (row.Layer.Kind.IsMerge() || row.Role == RoleGate) {
+		if row.OtherStore >= -1 && (row.Layer.Kind.IsMerge() || row.Role == RoleGate || row.Role == RoleJoin) {
 			use(row.OtherStore, i)
 		}
 		use(row.OutStore, i)

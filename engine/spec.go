@@ -35,6 +35,12 @@ type Spec struct {
 	// new tensor (flatten, reshape).
 	View bool
 
+	// layout says whether the row's output is stored channels-last (as the
+	// export's PyTorch form writes it), given whether its input is; nil
+	// means a fresh contiguous tensor. A per-position dense layer copies
+	// an input that is not (autograd then keeps the copy).
+	layout func(l *Layer, in bool) bool
+
 	eval    func(c *calc, f *flow)
 	explain func(row *Row) []string
 	saved   func(row *Row, s *saving) int64

@@ -3,7 +3,9 @@
 
 Builds every reference stack as torch.nn layers, runs a dummy input through
 them one layer at a time, and records per layer the output shape, the number
-of trainable parameters and the number of buffer elements; for every stack
+of trainable parameters and the number of buffer elements (forks: every
+branch's layers, then the join; relative widths resolved against the
+enclosing body's input as stackfit reads them); for every stack
 PyTorch runs whole, also the bytes autograd keeps for the backward pass per
 sample in fp32 (saved_tensors_hooks, each storage once, batch 4 minus batch
 2 halved, so weights cancel). Writes
@@ -19,15 +21,22 @@ import json
 import os
 import random
 import sys
+import warnings
 
 import torch
 import torch.nn as nn
 import torch.nn.functional as F
+from torchvision.models._utils import _make_divisible
+
+# A relative width that resolves to 0 channels is refused at the forward
+# pass; the empty weight's initialisation only warns.
+warnings.filterwarnings("ignore", message="Initializing zero-element tensors")
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 BATCH = 2
 SEED = 20261202
 GENERATED = 60
+GENERATED_FORKS = 60
 
 
 def pair(v):
@@ -47,6 +56,19 @@ class Dense(nn.Module):
         return self.fc(x.flatten(1))[:, :, None, None]
 
 
+class PositionDense(nn.Module):
+    """stackfit's per-position dense layer: nn.Linear over the channels at
+    every position of the map (ConvNeXt's pointwise layers, Liu et al. 2022,
+    as torchvision's CNBlock writes them: permute, Linear, permute back)."""
+
+    def __init__(self, cin, units, bias):
+        super().__init__()
+        self.fc = nn.Linear(cin, units, bias=bias)
+
+    def forward(self, x):
+        return self.fc(x.permute(0, 2, 3, 1)).permute(0, 3, 1, 2)
+
+
 class Flatten(nn.Module):
     def forward(self, x):
         return x.reshape(x.shape[0], -1, 1, 1)
@@ -64,9 +86,9 @@ class Reshape(nn.Module):
 class ChannelLayerNorm(nn.Module):
     """stackfit's layer norm: over the channels at each position."""
 
-    def __init__(self, c, affine):
+    def __init__(self, c, affine, eps=1e-5):
         super().__init__()
-        self.norm = nn.LayerNorm(c, elementwise_affine=affine)
+        self.norm = nn.LayerNorm(c, eps=eps, elementwise_affine=affine)
 
     def forward(self, x):
         return self.norm(x.permute(0, 2, 3, 1)).permute(0, 3, 1, 2)
@@ -138,13 +160,14 @@ def build(layer, c):
                            align_corners=False if mode == "bilinear" else None)
     if "norm" in layer:
         kind = layer["norm"]
+        eps = layer.get("eps", 1e-5)  # PyTorch's default
         if kind == "batch":
-            return nn.BatchNorm2d(c, affine=layer.get("affine", True))
+            return nn.BatchNorm2d(c, eps=eps, affine=layer.get("affine", True))
         if kind == "group":
-            return nn.GroupNorm(layer["groups"], c, affine=layer.get("affine", True))
+            return nn.GroupNorm(layer["groups"], c, eps=eps, affine=layer.get("affine", True))
         if kind == "instance":
-            return nn.InstanceNorm2d(c, affine=layer.get("affine", False))
-        return ChannelLayerNorm(c, layer.get("affine", True))
+            return nn.InstanceNorm2d(c, eps=eps, affine=layer.get("affine", False))
+        return ChannelLayerNorm(c, layer.get("affine", True), eps)
     if "act" in layer:
         return {
             "relu": nn.ReLU(),
@@ -166,6 +189,8 @@ def build(layer, c):
     if layer == "flatten":
         return Flatten()
     if "dense" in layer:
+        if layer.get("per-position"):
+            return PositionDense(c, layer["dense"], layer.get("bias", True))
         return Dense(c, layer["dense"], layer.get("bias", True))
     if "reshape" in layer:
         return Reshape(tuple(layer["reshape"]))
@@ -173,10 +198,99 @@ def build(layer, c):
 
 
 STRIDED = ("conv", "deconv", "pool")
+WIDTHS = ("conv", "deconv", "dense")
 
 
 def kind_of(layer):
     return layer if isinstance(layer, str) else next(iter(layer))  # "flatten", "scale"
+
+
+def branch_layers(branch):
+    """A fork's branch: a list of layers, or {layers: [...], name: ...}."""
+    return (branch.get("layers") or []) if isinstance(branch, dict) else branch
+
+
+def relative_width(text, round_to, ref):
+    """A relative width on an input of ref channels: "xF" is F·ref, rounded
+    half to even as Python's round does (torchvision's MobileNetV2 writes
+    int(round(inp * expand_ratio))); "/D" is ref // D; with round_to the
+    unrounded value goes through torchvision's _make_divisible instead."""
+    if text.startswith("/"):
+        v = ref // int(text[1:])
+        return _make_divisible(v, round_to) if round_to else v
+    v = ref * float(text.lstrip("x"))
+    return _make_divisible(v, round_to) if round_to else round(v)
+
+
+def resolve(layer, body_ref, block_ref):
+    """The layer with a relative width (conv: x6, /4) written out as the
+    channel count it resolves to."""
+    if not isinstance(layer, dict):
+        return layer
+    for key in WIDTHS:
+        if key in layer and isinstance(layer[key], str):
+            ref = block_ref if layer.get("relative-to") == "block" else body_ref
+            n = relative_width(layer[key], layer.get("round", 0), ref)
+            layer = {k: v for k, v in layer.items() if k not in ("relative-to", "round")}
+            layer[key] = n
+    return layer
+
+
+def unresolved_rows(layers):
+    """How many rows stackfit writes for layers whose input is unknown (the
+    branches of a split fork it refuses): every layer one, a block's
+    repeats with their addition (and activation) or concatenation, a gate's
+    multiplication and a fork's join, but no projection shortcut."""
+    n = 0
+    for l in layers:
+        k = kind_of(l)
+        if k == "block":
+            per = unresolved_rows(l["layers"])
+            if l.get("residual"):
+                per += 1 + ("after" in l)
+            if l.get("dense-links"):
+                per += 1
+            n += per * l["block"]
+        elif k == "gate":
+            n += unresolved_rows(l["layers"]) + 1
+        elif k == "fork":
+            n += sum(unresolved_rows(branch_layers(b)) for b in l["branches"]) + 1
+        else:
+            n += 1
+    return n
+
+
+class Refused(ValueError):
+    """A refusal that stackfit reports after rows it cannot compute: skip
+    is how many rows come before the one that carries the error."""
+
+    def __init__(self, message, skip):
+        super().__init__(message)
+        self.skip = skip
+
+
+def body_stride(layers, un):
+    """A block repeat's total stride, from the strides written in its body
+    (forks: their widest branch's; nested blocks: the repeats that keep
+    their strides)."""
+    sh = sw = 1
+    for b in layers:
+        k = kind_of(b)
+        if k in ("conv", "pool") and not un:
+            st = pair(b.get("stride", b["kernel"] if k == "pool" else 1))
+        elif k == "fork":
+            st = (1, 1)
+            for br in b["branches"]:
+                t = body_stride(branch_layers(br), un)
+                st = (max(st[0], t[0]), max(st[1], t[1]))
+        elif k == "block":
+            st = body_stride(b["layers"], un)
+            if b.get("strides") == "all":
+                st = (st[0] ** b["block"], st[1] ** b["block"])
+        else:
+            continue
+        sh, sw = sh * st[0], sw * st[1]
+    return sh, sw
 
 
 def center_crop(x, h, w):
@@ -194,6 +308,13 @@ class Runner:
         self.rows = []
         self.taps = {}
         self.train = train
+        # Input channels of each open body, innermost last: (the body's, the
+        # innermost block repeat's), for relative widths.
+        self.refs = []
+
+    def stack(self, layers, x):
+        self.refs = [(x.shape[1], x.shape[1])]  # the stack input at top level
+        return self.items(layers, [], x, False)
 
     def mode(self, m):
         return m.train() if self.train else m.eval()
@@ -215,6 +336,8 @@ class Runner:
                 x = self.block(layer, path, x, unstrided)
             elif isinstance(layer, dict) and "gate" in layer:
                 x = self.gate(layer, path, x, unstrided)
+            elif isinstance(layer, dict) and "fork" in layer:
+                x = self.fork(layer, path, x, unstrided)
             else:
                 x = self.one(layer, path, x, unstrided)
             if isinstance(layer, dict) and "name" in layer:
@@ -238,6 +361,7 @@ class Runner:
             return y
         if unstrided and kind in STRIDED:
             layer = dict(layer, stride=1)
+        layer = resolve(layer, *self.refs[-1])
         m = self.mode(build(layer, x.shape[1]))
         y = m(x)
         self.row(path, y, m)
@@ -247,11 +371,41 @@ class Runner:
         """A channel gate: its layers compute a C×1×1 gate from the map, which
         then multiplies the map (squeeze-and-excitation, Hu et al. 2018)."""
         gp = path + ["1"]
+        self.refs.append((x.shape[1], self.refs[-1][1]))
         g = self.items(layer["layers"], gp, x, unstrided)
+        self.refs.pop()
         if tuple(g.shape[1:]) != (x.shape[1], 1, 1):
             raise ValueError("a channel gate must end in C×1×1")
         y = x * g
         self.row(gp + ["mul"], y, None)
+        return y
+
+    def fork(self, layer, path, x, unstrided):
+        """Parallel branches from one map, joined along the channels in
+        order (GoogLeNet's Inception modules, Szegedy et al. 2015). copy:
+        each branch reads the map itself; split: each reads its share, a
+        view from torch.chunk (ShuffleNet V2, Ma et al. 2018, as torchvision
+        writes it: x.chunk(2, dim=1)). An empty branch passes its input on."""
+        branches = layer["branches"]
+        n = len(branches)
+        if layer["fork"] == "split" and n:
+            if x.shape[1] % n:
+                # torch.chunk would hand out unequal shares (or fewer of them).
+                raise Refused(f"{x.shape[1]} channels do not split into {n} equal shares",
+                              sum(unresolved_rows(branch_layers(b)) for b in branches))
+            parts = torch.chunk(x, n, 1)
+        else:
+            parts = [x] * n
+        outs = []
+        for b, (br, xb) in enumerate(zip(branches, parts)):
+            self.refs.append((xb.shape[1], self.refs[-1][1]))
+            y = self.items(branch_layers(br), path + [str(b + 1)], xb, unstrided)
+            self.refs.pop()
+            if isinstance(br, dict) and "name" in br:
+                self.taps[br["name"]] = y
+            outs.append(y)
+        y = torch.cat(outs, 1)  # refuses no branches, or maps of different sizes
+        self.row(path + ["join"], y, None)
         return y
 
     def drop_path(self, x, p):
@@ -267,7 +421,9 @@ class Runner:
             rp = path + [str(rep)]
             inp = x
             un = unstrided or (rep > 1 and layer.get("strides", "first") != "all")
+            self.refs.append((x.shape[1], x.shape[1]))
             x = self.items(layer["layers"], rp, x, un)
+            self.refs.pop()
             if layer.get("dense-links"):
                 # Dense connectivity (Huang et al. 2017): the repeat's input,
                 # then its output, along the channels.
@@ -286,13 +442,7 @@ class Runner:
                     self.row(rp + ["act"], x, act)
                 continue
             if sc.shape != x.shape:
-                # The repeat's total stride, from the strides written in its body.
-                sh = sw = 1
-                for b in layer["layers"]:
-                    k = kind_of(b)
-                    if k in ("conv", "pool") and not un:
-                        st = pair(b.get("stride", b["kernel"] if k == "pool" else 1))
-                        sh, sw = sh * st[0], sw * st[1]
+                sh, sw = body_stride(layer["layers"], un)
                 norm = layer.get("shortcut-norm", True)
                 conv = self.mode(nn.Conv2d(inp.shape[1], x.shape[1], 1, (sh, sw), bias=not norm))
                 sc = conv(inp)
@@ -323,7 +473,7 @@ def saved_bytes(stack, batch):
         return t
 
     with torch.autograd.graph.saved_tensors_hooks(pack, lambda t: t):
-        Runner(train=True).items(stack["layers"], [], torch.zeros(batch, *stack["input"]), False)
+        Runner(train=True).stack(stack["layers"], torch.zeros(batch, *stack["input"]))
     return sum(kept.values())
 
 
@@ -341,9 +491,9 @@ def run(stack):
     x = torch.zeros(BATCH, *stack["input"])
     try:
         with torch.no_grad():
-            r.items(stack["layers"], [], x, False)
+            r.stack(stack["layers"], x)
     except Exception as e:  # PyTorch's refusal is the reference verdict
-        bad = len(r.rows)
+        bad = len(r.rows) + getattr(e, "skip", 0)
         if r.rows and r.rows[-1]["out"] and min(r.rows[-1]["out"]) < 1:
             bad -= 1
             r.rows.pop()
@@ -479,8 +629,10 @@ def random_layer(rng, c, kind):
 
 
 KINDS = ["conv", "deconv", "pool", "global-pool", "pool-to", "upsample", "norm", "act",
-         "dropout", "flatten", "dense", "reshape", "scale", "shuffle", "block", "concat", "add", "gate"]
+         "dropout", "flatten", "dense", "reshape", "scale", "shuffle", "block", "concat", "add", "gate", "fork"]
 SINGLE = 14  # KINDS[:SINGLE] are the kinds random_layer writes
+FEATURES = ["fork copy", "fork split", "fork in a branch", "fork in a residual block", "named branch", "empty branch",
+            "relative x-factor", "relative divisor", "round", "relative-to block", "per-position dense", "norm eps"]
 
 
 def generated(rng, n):
@@ -611,6 +763,358 @@ def block_cases(rng):
         yield f"generated residual {i + 1:02d}", [rng.choice([3, 8]), rng.randint(9, 41), rng.randint(9, 41)], layers
 
 
+# ---- forks, relative widths, per-position dense layers ----
+
+def bconv(f, k, s=1, p=0, eps=1e-3):
+    """torchvision's GoogLeNet BasicConv2d: convolution without bias, batch
+    norm with eps 0.001, ReLU."""
+    return [conv(f, k, s, p), {"norm": "batch", "eps": eps}, RELU]
+
+
+def fork(mode, *branches, **kw):
+    d = {"fork": mode, "branches": list(branches)}
+    d.update(kw)
+    return d
+
+
+def se_rel(squeeze, act="relu", gate_act="sigmoid", **kw):
+    """A squeeze-and-excitation gate written with relative widths: squeeze
+    to `squeeze` of the gated map (or of the block input), back to x1."""
+    sq = dict(conv(squeeze, 1, bias=True), **kw)
+    return {"gate": "channel", "layers": [{"global-pool": "avg"}, sq, {"act": act}, conv("x1", 1, bias=True), {"act": gate_act}]}
+
+
+def shuffle_down(cin, cout):
+    """ShuffleNet V2's unit with stride 2 (Ma et al. 2018, Fig. 3d, as
+    torchvision's InvertedResidual writes it): both branches read the whole
+    map, then a shuffle of 2."""
+    half = cout // 2
+    left = [dict(conv(cin, 3, 2, 1), groups="depthwise"), BN, conv(half, 1), BN, RELU]
+    right = [conv(half, 1), BN, RELU, dict(conv(half, 3, 2, 1), groups="depthwise"), BN, conv(half, 1), BN, RELU]
+    return [fork("copy", left, right), {"shuffle": 2}]
+
+
+def shuffle_unit():
+    """ShuffleNet V2's unit with stride 1 (Fig. 3c): half the channels pass
+    on, the other half is transformed at its own width (x1 of the branch's
+    share), then a shuffle of 2."""
+    right = [conv("x1", 1), BN, RELU, dict(conv("x1", 3, 1, 1), groups="depthwise"), BN, conv("x1", 1), BN, RELU]
+    return [fork("split", [], right), {"shuffle": 2}]
+
+
+def fire(squeeze, e1, e3):
+    """SqueezeNet's fire module (Iandola et al. 2016; torchvision's Fire)."""
+    return [conv(squeeze, 1, bias=True), RELU,
+            fork("copy", [conv(e1, 1, bias=True), RELU], [conv(e3, 3, 1, 1, bias=True), RELU])]
+
+
+def inception(c1, r3, c3, r5, c5, pp):
+    """GoogLeNet's Inception module as torchvision writes it (its "5×5"
+    branch is a 3×3)."""
+    return fork("copy", bconv(c1, 1), bconv(r3, 1) + bconv(c3, 3, 1, 1), bconv(r5, 1) + bconv(c5, 3, 1, 1),
+                [{"pool": "max", "kernel": 3, "stride": 1, "pad": 1, "ceil": True}] + bconv(pp, 1))
+
+
+def convnext_block(n, dp=0.1):
+    """ConvNeXt's block (Liu et al. 2022, torchvision's CNBlock): 7×7
+    depthwise convolution, layer norm (eps 1e-6), per-position dense layers
+    to 4× and back, layer scale, stochastic depth, identity shortcut."""
+    return {"block": n, "residual": True, "drop-path": dp, "layers": [
+        {"conv": "x1", "kernel": 7, "pad": 3, "groups": "depthwise"}, {"norm": "layer", "eps": 1e-6},
+        {"dense": "x4", "per-position": True}, {"act": "gelu"}, {"dense": "x1", "per-position": True}, {"scale": 1e-6}]}
+
+
+def mbconv(n, cout, k, s, dp=0.0):
+    """EfficientNet's MBConv (Tan & Le 2019, torchvision's MBConv):
+    expansion ×6 made divisible by 8, depthwise k×k, a gate squeezing to a
+    quarter of the block input (relative-to: block), projection; identity
+    shortcut only where shapes match. Batch norm eps 0.001 (torchvision's
+    efficientnet_b0)."""
+    bn = {"norm": "batch", "eps": 1e-3}
+    silu = {"act": "silu"}
+    return {"block": n, "residual": True, "shortcut": "identity", "drop-path": dp, "layers": [
+        dict(conv("x6", 1), round=8), bn, silu, dict(conv("x6", k, s, k // 2), round=8, groups="depthwise"), bn, silu,
+        se_rel("/4", "silu", **{"relative-to": "block"}), conv(cout, 1), bn]}
+
+
+def mobilenet3(n, cout, k, s, t):
+    """MobileNetV3's block with a gate (Howard et al. 2019, torchvision's
+    InvertedResidual): expansion ×t, depthwise k×k, a gate squeezing to
+    _make_divisible(expanded // 4, 8) with a hard-sigmoid, projection."""
+    bn = {"norm": "batch", "eps": 1e-3}
+    return {"block": n, "residual": True, "shortcut": "identity", "layers": [
+        conv(t, 1), bn, RELU, dict(conv(t, k, s, k // 2), groups="depthwise"), bn, RELU,
+        se_rel("/4", gate_act="hard-sigmoid", round=8), conv(cout, 1), bn]}
+
+
+def fork_cases():
+    yield "Inception-like module (GoogLeNet 3a widths, torchvision layout)", [192, 28, 28], [
+        inception(64, 96, 128, 16, 32, 32), {"pool": "max", "kernel": 3, "stride": 2, "ceil": True}]
+    yield "fire modules (SqueezeNet 1.0 fire2, fire3)", [96, 27, 27], fire(16, 64, 64) + fire(16, 64, 64) + [
+        {"pool": "max", "kernel": 3, "stride": 2, "ceil": True}]
+    yield "ShuffleNet V2 stage (stride-2 unit, 3 split units)", [24, 28, 28], shuffle_down(24, 116) + [
+        {"block": 3, "layers": shuffle_unit()}]
+    yield "ConvNeXt-like stage with downsampling", [48, 14, 14], [convnext_block(2), {"norm": "layer", "eps": 1e-6},
+                                                                  {"conv": 96, "kernel": 2, "stride": 2}, convnext_block(1, 0.2)]
+    yield "EfficientNet-like MBConv stage (gate relative to the block)", [24, 16, 16], [mbconv(2, 40, 5, 2, 0.1)]
+    yield "MobileNetV3-like stage (gate width rounded to 8)", [24, 16, 16], [
+        mobilenet3(1, 40, 5, 2, "x3"), mobilenet3(2, 40, 5, 1, "x3")]
+    yield "fork with an empty branch (dense-style growth)", [16, 12, 12], [
+        fork("copy", [], [BN, RELU, conv(12, 3, 1, 1)]), fork("copy", [], [BN, RELU, conv(12, 3, 1, 1)]), BN]
+    yield "split fork into four, one branch empty", [16, 10, 10], [
+        fork("split", [conv("x2", 1)], [], [conv("x1", 3, 1, 1), RELU], [{"pool": "avg", "kernel": 3, "stride": 1, "pad": 1}])]
+    yield "nested fork inside a branch", [12, 14, 14], [conv(24, 1), fork("copy",
+        [conv(8, 1)], [conv(16, 1), RELU, fork("split", [conv("x1", 3, 1, 1)], [conv("/2", 1), conv(4, 3, 1, 1)])], [])]
+    yield "forks nested three deep", [8, 9, 9], [fork("copy", [fork("split", [fork("copy", [], [conv("x1", 1)])], [conv(6, 1)])], [conv(5, 3, 1, 1)])]
+    yield "fork in a residual block (identity shortcut)", [32, 12, 12], [res(2, [
+        fork("copy", bconv(8, 1), bconv(8, 1) + bconv(16, 3, 1, 1)), conv(32, 1), BN])]
+    yield "strided fork in a residual block (projection shortcut)", [16, 15, 15], [res(2, [
+        fork("copy", [conv(16, 3, 2, 1), BN], [{"pool": "max", "kernel": 3, "stride": 2, "pad": 1}, conv(16, 1), BN]), RELU, conv(32, 3, 1, 1), BN])]
+    yield "fork in a residual block with stochastic depth", [16, 10, 10], [res(3, [
+        fork("split", [conv("x1", 3, 1, 1), BN, RELU], [conv("x1", 1), BN, RELU]), conv("x1", 3, 1, 1), BN], **{"drop-path": 0.2})]
+    yield "named branches merged later", [8, 12, 12], [
+        fork("copy", {"name": "left", "layers": [conv(8, 3, 1, 1), RELU]}, {"name": "right", "layers": []}, name="both"),
+        conv(8, 1), {"concat": "left"}, {"add": "both"}, {"concat": "right"}]
+    yield "gate inside a branch", [16, 10, 10], [fork("copy", [conv(16, 3, 1, 1), RELU, se_rel("/4")], [conv(8, 1)])]
+    yield "forks in a densely linked block", [12, 8, 8], [{"block": 3, "dense-links": True, "layers": [
+        BN, RELU, fork("copy", [conv(6, 1)], [conv(6, 3, 1, 1)])]}]
+    yield "relative widths in a densely linked block (each repeat wider)", [8, 8, 8], [{"block": 3, "dense-links": True, "layers": [
+        BN, RELU, conv("x2", 1), BN, RELU, conv("/2", 3, 1, 1)]}]
+    yield "block in a branch, relative to the block and to the branch", [12, 10, 10], [fork("split",
+        [{"block": 2, "layers": [conv("x2", 1), RELU, dict(conv("/2", 1), **{"relative-to": "block"})]}],
+        [dict(conv("x1.5", 1), **{"relative-to": "block"}), conv("x0.5", 1)])]
+    yield "relative widths at the top level (the stack input)", [6, 9, 9], [conv("x2", 3, 1, 1), conv("x1.5", 1), conv("/2", 1),
+                                                                          dict(conv("x1.25", 1), round=8), dict(conv("x0.5", 1), round=4)]
+    yield "x-factors round half to even", [10, 6, 6], [{"block": 1, "layers": [conv("x0.25", 1), conv("x0.45", 1), conv("x0.35", 1), conv("x0.15", 1)]}]
+    yield "relative widths with round 8 (10% rule)", [18, 6, 6], [conv("x1", 1), dict(conv("x1", 1), round=8), dict(conv("/2", 1), round=8),
+                                                                dict(conv("x3.3", 1), round=8), dict(conv("/3", 1), round=16)]
+    yield "relative deconvolution and dense layers", [8, 7, 7], [{"deconv": "x2", "kernel": 2, "stride": 2}, {"global-pool": "avg"},
+                                                               {"dense": "x4"}, {"dense": "/2", "bias": False}]
+    yield "per-position dense layers on a map", [12, 9, 11], [{"dense": 20, "per-position": True}, {"act": "gelu"},
+                                                              {"dense": 12, "per-position": True, "bias": False}, {"norm": "layer", "eps": 1e-6},
+                                                              {"global-pool": "avg"}, {"dense": 5, "per-position": True}]
+    # What autograd keeps for a per-position dense layer depends on the
+    # map's memory layout: nn.Linear on an N×C×H×W map's permuted view keeps
+    # a contiguous copy of its input, but the view itself where the map is
+    # already channels-last (a per-position dense layer's output, and what
+    # convolutions and element-wise layers make of it).
+    pp = {"dense": 8, "per-position": True}
+    yield "per-position dense after an activation that keeps its output", [8, 6, 6], [conv(8, 1), RELU, pp]
+    yield "two per-position dense layers on one map", [8, 6, 6], [conv(8, 1), fork("copy", [pp], [dict(pp, dense=4)])]
+    yield "per-position dense on a split share beside a convolution", [8, 6, 6], [conv(8, 1), fork("split", [pp], [conv(4, 1)])]
+    yield "per-position dense on a split share beside an empty branch", [8, 6, 6], [conv(8, 1), fork("split", [pp], [])]
+    yield "per-position dense after a per-position dense, through a convolution", [8, 6, 6], [conv(8, 1), pp, RELU, conv(8, 1), RELU, pp]
+    yield "per-position dense on a split share of a per-position dense's output", [8, 6, 6], [conv(8, 1), pp, fork("split", [pp], [conv(4, 1)])]
+    yield "norms with eps", [8, 10, 10], [{"norm": "batch", "eps": 1e-3}, {"norm": "group", "groups": 2, "eps": 1e-6},
+                                          conv(8, 3, 1, 1), {"norm": "instance", "eps": 0.01, "affine": True}, {"norm": "layer", "eps": 1e-6, "affine": False}]
+    yield "fork with one branch", [8, 8, 8], [fork("copy", [conv(8, 3, 1, 1), RELU])]
+    yield "forks with shuffles and gates in a residual stage", [24, 12, 12], [{"block": 2, "residual": True, "drop-path": 0.1, "after": "relu", "layers": [
+        fork("split", [conv("x1", 1), BN], [dict(conv("x1", 3, 1, 1), groups="depthwise"), BN, se_rel("/2")], [conv("x1", 1), RELU]),
+        {"shuffle": 3}, conv("x1", 1, bias=True)]}]
+    yield "error: split fork whose channels do not divide", [8, 10, 10], [conv(10, 1), fork("split", [conv(4, 1)], [RELU], [conv("x1", 1), BN])]
+    yield "error: split into more branches than channels", [2, 6, 6], [fork("split", [], [], [conv(4, 1)])]
+    yield "error: split that does not divide, after a block", [4, 6, 6], [conv(6, 1), fork("split", [res(2, basic(8, 1))], [{"block": 2, "dense-links": True, "layers": [conv(2, 1)]}],
+                                                                          [se_rel("/1"), fork("copy", [conv(2, 1)], [])], [{"gate": "channel", "layers": [{"global-pool": "avg"}]}])]
+    yield "error: branches that end at different sizes", [8, 12, 12], [fork("copy", [conv(8, 3, 1, 1)], [conv(8, 3)])]
+    yield "error: an empty branch beside a strided one", [8, 12, 12], [conv(8, 1), fork("copy", [], [conv(8, 3, 2, 1)]), conv(8, 1)]
+    yield "error: a fork without branches", [8, 6, 6], [conv(8, 1), fork("copy"), conv(8, 1)]
+    yield "error: a relative width that rounds to nothing", [4, 6, 6], [conv(8, 1), fork("split", [conv(4, 1)], [conv("/8", 1)])]
+    yield "error: a plain dense layer inside a branch", [8, 6, 6], [fork("copy", [conv(4, 1)], [{"dense": "x1"}])]
+    yield "error: relative depthwise width that the groups do not divide", [6, 6, 6], [dict(conv("x1.5", 3, 1, 1), groups="depthwise")]
+
+
+# torchvision modules that hand-written cases above reproduce: (case, the
+# module, the path of the case's row where the module ends).
+def torchvision_modules():
+    from functools import partial
+    from importlib import import_module
+    # The modules, not the model functions torchvision.models exports under the same names.
+    convnext, efficientnet, googlenet, mobilenetv3, shufflenetv2, squeezenet = (
+        import_module("torchvision.models." + m) for m in ("convnext", "efficientnet", "googlenet", "mobilenetv3", "shufflenetv2", "squeezenet"))
+    mb = efficientnet.MBConvConfig
+    v3 = mobilenetv3.InvertedResidualConfig
+    bn3 = partial(nn.BatchNorm2d, eps=0.001, momentum=0.01)
+    yield "Inception-like module (GoogLeNet 3a widths, torchvision layout)", googlenet.Inception(192, 64, 96, 128, 16, 32, 32), "1.join"
+    yield "fire modules (SqueezeNet 1.0 fire2, fire3)", nn.Sequential(squeezenet.Fire(96, 16, 64, 64), squeezenet.Fire(128, 16, 64, 64)), "6.join"
+    yield "ShuffleNet V2 stage (stride-2 unit, 3 split units)", nn.Sequential(
+        shufflenetv2.InvertedResidual(24, 116, 2), *[shufflenetv2.InvertedResidual(116, 116, 1) for _ in range(3)]), "3.3.2"
+    yield "ConvNeXt-like stage with downsampling", nn.Sequential(convnext.CNBlock(48, 1e-6, 0.1), convnext.CNBlock(48, 1e-6, 0.1)), "1.2.add"
+    yield "EfficientNet-like MBConv stage (gate relative to the block)", nn.Sequential(
+        efficientnet.MBConv(mb(6, 5, 2, 24, 40, 2), 0.1, bn3), efficientnet.MBConv(mb(6, 5, 1, 40, 40, 2), 0.1, bn3)), "1.2.add"
+    yield "MobileNetV3-like stage (gate width rounded to 8)", nn.Sequential(
+        mobilenetv3.InvertedResidual(v3(24, 5, 72, 40, True, "RE", 2, 1, 1.0), bn3),
+        *[mobilenetv3.InvertedResidual(v3(40, 5, 120, 40, True, "RE", 1, 1, 1.0), bn3) for _ in range(2)]), "2.2.add"
+
+
+def check_modules(cases):
+    """The hand-written stacks against the torchvision modules they copy:
+    the same parameters, buffers and output shape up to the module's last
+    row, so the stack-file forms above mean what their names say."""
+    by_name = {c["stack"]["name"]: c for c in cases}
+    for name, m, last in torchvision_modules():
+        case = by_name[name]
+        rows = case["layers"]
+        upto = next(i for i, r in enumerate(rows) if r["path"] == last) + 1
+        params = sum(r["params"] for r in rows[:upto])
+        buffers = sum(r["buffers"] for r in rows[:upto])
+        with torch.no_grad():
+            out = list(m.eval()(torch.zeros(2, *case["stack"]["input"])).shape[1:])
+        want = (sum(p.numel() for p in m.parameters()), sum(b.numel() for b in m.buffers()), out)
+        if (params, buffers, rows[upto - 1]["out"]) != want:
+            sys.exit(f"{name}: the stack has {params} params, {buffers} buffers, output {rows[upto - 1]['out']}; "
+                     f"torchvision's module {want}")
+
+
+REL_WIDTHS = ["x1", "x2", "x0.5", "x1.5", "x0.75", "x3", "/2", "/3", "/4"]
+
+
+def random_width(rng, in_block):
+    if rng.random() < 0.5:
+        return rng.choice([4, 6, 8, 12, 16, 24]), {}
+    extra = {}
+    if rng.random() < 0.3:
+        extra["round"] = rng.choice([4, 8])
+    if in_block and rng.random() < 0.3:
+        extra["relative-to"] = "block"
+    return rng.choice(REL_WIDTHS), extra
+
+
+def random_keep(rng, in_block, depth):
+    """One layer (or gate) that keeps the map size."""
+    r = rng.random()
+    if r < 0.3:
+        w, extra = random_width(rng, in_block)
+        k = rng.choice([1, 3])
+        l = dict(conv(w, k, 1, k // 2, rng.random() < 0.4), **extra)
+        if k == 3 and rng.random() < 0.25:
+            l["groups"] = "depthwise"
+            l["conv"] = rng.choice(["x1", "x2"])
+            l.pop("round", None)
+            l.pop("relative-to", None)
+        return l
+    if r < 0.45:
+        l = {"norm": rng.choice(["batch", "group", "layer"])}
+        if l["norm"] == "group":
+            l["groups"] = rng.choice([1, 2])
+        if rng.random() < 0.5:
+            l["eps"] = rng.choice([1e-3, 1e-6])
+        return l
+    if r < 0.6:
+        return {"act": rng.choice(["relu", "gelu", "silu", "hard-swish", "relu6"])}
+    if r < 0.72:
+        w, extra = random_width(rng, in_block)
+        return dict({"dense": w, "per-position": True}, **extra)
+    if r < 0.8:
+        return {"shuffle": 2}
+    if r < 0.86:
+        return {"scale": 0.1}
+    if r < 0.9:
+        return {"dropout": 0.1}
+    if depth < 3:
+        sq = rng.choice(["/2", "/4", "x0.5"])
+        kw = {"round": 8} if rng.random() < 0.3 else {}
+        if in_block and rng.random() < 0.4:
+            kw["relative-to"] = "block"
+        return se_rel(sq, rng.choice(["relu", "silu"]), rng.choice(["sigmoid", "hard-sigmoid"]), **kw)
+    return {"act": "relu"}
+
+
+def random_branch(rng, s, in_block, depth, allow_empty):
+    """A branch: empty, or a first layer with stride s (odd kernels padded
+    by half, so every branch ends at the same size), then layers that keep
+    the size, perhaps a nested fork."""
+    if allow_empty and s == 1 and rng.random() < 0.25:
+        return []
+    k = rng.choice([1, 3, 5])
+    if rng.random() < 0.25:
+        first = {"pool": rng.choice(["max", "avg"]), "kernel": 3, "stride": s, "pad": 1}
+    else:
+        w, extra = random_width(rng, in_block)
+        first = dict(conv(w, k, s, k // 2, rng.random() < 0.5), **extra)
+    layers = [first]
+    for _ in range(rng.randint(0, 3)):
+        if depth < 3 and rng.random() < 0.12:
+            layers.append(random_fork(rng, 1, in_block, depth + 1))
+        else:
+            layers.append(random_keep(rng, in_block, depth + 1))
+    return layers
+
+
+def random_fork(rng, s, in_block, depth):
+    split = rng.random() < 0.4
+    n = rng.choice([2, 2, 3, 4]) if split else rng.randint(1, 4)
+    branches = [random_branch(rng, s, in_block, depth, True) for _ in range(n)]
+    if s > 1 and rng.random() < 0.5:
+        branches[-1][0] = dict(branches[-1][0], pad=0) if "conv" in branches[-1][0] else branches[-1][0]
+    if rng.random() < 0.15 and branches[0]:
+        branches[0] = {"name": f"b{rng.randint(0, 10**6)}", "layers": branches[0]}
+    return fork("split" if split else "copy", *branches)
+
+
+def random_item(rng):
+    r = rng.random()
+    if r < 0.35:
+        return random_fork(rng, rng.choice([1, 1, 2]), False, 1)
+    if r < 0.6:
+        # A residual block around a fork; a projection where the shape changes.
+        s = rng.choice([1, 2])
+        body = [random_fork(rng, s, True, 2)] + [random_keep(rng, True, 2) for _ in range(rng.randint(0, 2))]
+        d = {"block": rng.randint(1, 3), "residual": True, "layers": body}
+        if rng.random() < 0.4:
+            d["drop-path"] = rng.choice([0.1, 0.2])
+        if rng.random() < 0.3:
+            d["shortcut"] = "identity"
+        if rng.random() < 0.4:
+            d["after"] = "relu"
+        return d
+    if r < 0.72:
+        body = [random_keep(rng, True, 2) for _ in range(rng.randint(1, 2))] + [random_fork(rng, 1, True, 2)]
+        return {"block": rng.randint(2, 3), "dense-links": True, "layers": body}
+    if r < 0.8:
+        return se_rel(rng.choice(["/2", "/4", "x0.5"]), **({"round": 8} if rng.random() < 0.5 else {}))
+    if r < 0.9:
+        return random_keep(rng, False, 1)
+    k = rng.choice([2, 3])
+    return {"pool": "max", "kernel": k, "stride": 2}
+
+
+def partial_run(inp, layers):
+    r = Runner()
+    try:
+        with torch.no_grad():
+            r.stack(layers, torch.zeros(1, *inp))
+        return r.rows, True
+    except Exception:
+        return r.rows, False
+
+
+def generated_forks(rng, n):
+    """Random stacks of forks (copy and split, nested, with empty and named
+    branches), relative widths, per-position dense layers, gates, residual
+    and densely linked blocks. An item PyTorch refuses is mostly drawn
+    again; now and then the case ends on it, so some cases are refused."""
+    for i in range(n):
+        inp = [rng.choice([8, 12, 16, 24]), rng.randint(6, 20), rng.randint(6, 20)]
+        layers = [conv(rng.choice([8, 12, 16, 24]), 3, 1, 1)] if rng.random() < 0.6 else []
+        for _ in range(rng.randint(2, 5)):
+            for attempt in range(10):
+                item = random_item(rng)
+                rows, ok = partial_run(inp, layers + [item])
+                # Small enough that autograd's run stays quick.
+                small = len(rows) <= 300 and sum(r["out"][0] * r["out"][1] * r["out"][2] for r in rows) <= 120000
+                if ok and small:
+                    layers.append(item)
+                    break
+                if not ok and small and rng.random() < 0.15:
+                    layers.append(item)
+                    break
+            else:
+                continue
+            if not ok:
+                break
+        yield f"generated fork {i + 1:02d}", inp, layers
+
+
 def check_forms():
     """The script's own forms against PyTorch's: the shuffle equals
     nn.ChannelShuffle, the hard activations their definitions (Howard et al.
@@ -628,8 +1132,11 @@ def main():
     check_forms()
     torch.manual_seed(0)
     rng = random.Random(SEED)
+    frng = random.Random(SEED + 1)  # its own draws: the older cases stay as they were
     cases = []
-    for name, inp, layers in list(published()) + list(generated(rng, GENERATED)) + list(block_cases(rng)):
+    every = list(published()) + list(generated(rng, GENERATED)) + list(block_cases(rng))
+    every += list(fork_cases()) + list(generated_forks(frng, GENERATED_FORKS))
+    for name, inp, layers in every:
         stack = {"stackfit": 1, "name": name, "input": inp, "layers": layers}
         rows, error_at, message = run(stack)
         case = {"stack": stack, "layers": rows, "error_at": error_at, "torch_error": message}
@@ -637,17 +1144,40 @@ def main():
             case["saved_per_sample"] = saved_per_sample(stack)
         cases.append(case)
     seen = {k: 0 for k in KINDS}
+    features = {f: 0 for f in FEATURES}
 
-    def count(layers):
+    def count(layers, inside):
         for layer in layers:
-            seen[kind_of(layer)] += 1
-            if isinstance(layer, dict) and "layers" in layer:
-                count(layer["layers"])
+            k = kind_of(layer)
+            seen[k] += 1
+            if not isinstance(layer, dict):
+                continue
+            for key in WIDTHS:
+                if isinstance(layer.get(key), str):
+                    features["relative x-factor" if layer[key].startswith("x") else "relative divisor"] += 1
+            for key, f in (("round", "round"), ("relative-to", "relative-to block"), ("per-position", "per-position dense"), ("eps", "norm eps")):
+                if key in layer:
+                    features[f] += 1
+            if k == "fork":
+                features["fork " + layer["fork"]] += 1
+                if "fork" in inside:
+                    features["fork in a branch"] += 1
+                if any(b.get("residual") for b in inside if isinstance(b, dict)):
+                    features["fork in a residual block"] += 1
+                for b in layer["branches"]:
+                    if isinstance(b, dict) and "name" in b:
+                        features["named branch"] += 1
+                    if not branch_layers(b):
+                        features["empty branch"] += 1
+                    count(branch_layers(b), inside + ["fork"])
+            elif "layers" in layer:
+                count(layer["layers"], inside + [layer])
     for case in cases:
-        count(case["stack"]["layers"])
-    missing = [k for k, n in seen.items() if n == 0]
+        count(case["stack"]["layers"], [])
+    missing = [k for k, n in seen.items() if n == 0] + [f for f, n in features.items() if n == 0]
     if missing:
-        sys.exit(f"kinds never generated: {missing}")
+        sys.exit(f"kinds or forms never generated: {missing}")
+    check_modules(cases)
     doc = {
         "about": "Per-layer output shapes, parameters and buffer elements from PyTorch "
                  + torch.__version__ + "; regenerate with /usr/bin/python3 testdata/reference/torch_reference.py",
@@ -657,7 +1187,7 @@ def main():
         json.dump(doc, f, indent=1)
         f.write("\n")
     refused = sum(1 for c in cases if c["error_at"] is not None)
-    print(f"{len(cases)} stacks, {sum(len(c['layers']) for c in cases)} layers, {refused} refused by PyTorch; kinds: {seen}")
+    print(f"{len(cases)} stacks, {sum(len(c['layers']) for c in cases)} layers, {refused} refused by PyTorch; kinds: {seen}; forms: {features}")
 
 
 if __name__ == "__main__":
