@@ -46,6 +46,19 @@ func TestPublishedTotals(t *testing.T) {
 		{"published/vgg16-bn.yaml", "torchvision vgg16_bn: 138,365,992 params", 138365992, 15470264320},
 		{"published/vgg19.yaml", "torchvision vgg19: 143,667,240 params, 19.632 GFLOPS; Simonyan & Zisserman 2015 Table 2: 144 M", 143667240, 19632062464},
 		{"published/vgg19-bn.yaml", "torchvision vgg19_bn: 143,678,248 params", 143678248, 19632062464},
+		// The mobile and efficient families: parameters (and GFLOPS where
+		// quoted) from torchvision's model documentation; the exact MACs
+		// are what torchvision's own modules count at 224×224, one weight
+		// use per output position, in the torchvision comparison
+		// (engine/export/torchvision_test.go), which these totals repeat
+		// so that they hold without PyTorch too.
+		{"published/mobilenet-v2.yaml", "torchvision mobilenet_v2: 3,504,872 params, 0.30 GFLOPS", 3504872, 300774272},
+		{"published/mobilenet-v3-small.yaml", "torchvision mobilenet_v3_small: 2,542,856 params (weights metadata)", 2542856, 56510400},
+		{"published/efficientnet-b0.yaml", "torchvision efficientnet_b0: 5,288,548 params, 0.39 GFLOPS", 5288548, 385814752},
+		{"published/densenet121.yaml", "torchvision densenet121: 7,978,856 params, 2.83 GFLOPS", 7978856, 2834161664},
+		{"published/squeezenet1-1.yaml", "torchvision squeezenet1_1: 1,235,496 params (weights metadata)", 1235496, 349151936},
+		{"published/googlenet.yaml", "torchvision googlenet: 6,624,904 params, 1.50 GFLOPS", 6624904, 1498376192},
+		{"published/convnext-tiny.yaml", "torchvision convnext_tiny: 28,589,128 params, 4.46 GFLOPS", 28589128, 4455531264},
 	}
 	for _, tt := range tests {
 		t.Run(tt.file, func(t *testing.T) {
