@@ -273,6 +273,9 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 	sp := SpecOf(l.Kind)
 	c.sp = sp
 	c.failed, c.unresolved, c.ov = false, false, false
+	if !sp.keepLayout {
+		f.cl = false
+	}
 	c.run(f)
 	if c.unresolved || c.failed {
 		row.Status = StatusUnresolved
@@ -285,7 +288,6 @@ func (r *Result) layer(l *Layer, parent *Path, sg uint16, f *flow, unstrided boo
 		return
 	}
 	f.shape = row.Out
-	f.cl = sp.layout != nil && sp.layout(l, f.cl)
 	row.RF, row.Jump = f.rf, f.jump
 	if !sp.View {
 		f.store = int32(idx) // every kind but a view writes a new tensor

@@ -76,8 +76,8 @@ func ActKinds() []ActKind {
 var actList = names(ActKinds())
 
 var actSpec = Spec{
-	layout: keepLayout,
-	Kind:   KindAct, Key: "act", Help: strings.Join(actList, ", "), Example: "act relu",
+	keepLayout: true,
+	Kind:       KindAct, Key: "act", Help: strings.Join(actList, ", "), Example: "act relu",
 	Main: &Param{Key: "function", Help: strings.Join(actList, ", "), Type: TChoice, Choices: actList,
 		Need: "a function: " + strings.Join(actList, ", "),
 		get:  func(l *Layer) Value { return Value{Int: int64(l.Act)} },
@@ -105,8 +105,8 @@ var actSpec = Spec{
 }
 
 var dropoutSpec = Spec{
-	layout: keepLayout,
-	Kind:   KindDropout, Key: "dropout", Help: "zero a share of values while training", Example: "dropout 0.3",
+	keepLayout: true,
+	Kind:       KindDropout, Key: "dropout", Help: "zero a share of values while training", Example: "dropout 0.3",
 	Main: &Param{Key: "rate", Help: "share of values zeroed, 0 to below 1", Type: TFloat, FLo: 0, FHi: 1,
 		Label: "rate", Need: "a rate", Want: "give a number at least 0 and below 1, e.g. 0.25",
 		get: func(l *Layer) Value { return Value{Float: l.Rate} },

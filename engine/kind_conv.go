@@ -52,14 +52,14 @@ func setWidth(l *Layer, v Value) {
 
 var convSpec = Spec{
 	Kind: KindConv, Key: "conv", Help: "convolution: filters over a sliding window", Example: "conv 64 k3 s2 p1",
-	Main:     &filtersParam,
-	Params:   append([]Param{kernelParam, strideParam, padParam, dilationParam, groupsParam, biasParam}, widthParams...),
-	Weighted: true,
-	eval:     func(c *calc, f *flow) { c.conv(f, false) },
-	layout:   keepLayout,
-	explain:  explainConv,
-	saved:    func(row *Row, s *saving) int64 { return s.input(row) },
-	torch:    torchConv,
+	Main:       &filtersParam,
+	Params:     append([]Param{kernelParam, strideParam, padParam, dilationParam, groupsParam, biasParam}, widthParams...),
+	Weighted:   true,
+	eval:       func(c *calc, f *flow) { c.conv(f, false) },
+	keepLayout: true,
+	explain:    explainConv,
+	saved:      func(row *Row, s *saving) int64 { return s.input(row) },
+	torch:      torchConv,
 }
 
 var deconvSpec = Spec{
@@ -76,11 +76,6 @@ var deconvSpec = Spec{
 	saved:    func(row *Row, s *saving) int64 { return s.input(row) },
 	torch:    torchConv,
 }
-
-// keepLayout: the output keeps the input's memory layout (PyTorch's CPU
-// convolutions, norms and element-wise functions do; measured with
-// testdata/reference).
-func keepLayout(_ *Layer, in bool) bool { return in }
 
 // rowStride is the stride a row ran with: 1 in later repeats of a block.
 func rowStride(row *Row) Pair {
@@ -204,9 +199,11 @@ func (c *calc) groups(cin, filters int64) (int64, bool) {
 func (c *calc) conv(f *flow, transposed bool) {
 	l, in := c.l, c.row.In
 	k, s, d := l.Kernel, c.stride(), l.dilation()
-	filters, ok := c.width("filters")
-	if !ok {
-		return
+	filters, ok := l.Filters, true
+	if !l.Rel.IsZero() || filters < 1 { // the common absolute width skips the call
+		if filters, ok = c.width("filters"); !ok {
+			return
+		}
 	}
 	if min(k.H, k.W, s.H, s.W, d.H, d.W) < 1 {
 		// Name the first field at fault.

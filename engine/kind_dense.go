@@ -15,7 +15,10 @@ var denseSpec = Spec{
 			set: func(l *Layer, v Value) { l.PerPosition = v.Bool }},
 		widthParams[0], widthParams[1]},
 	Weighted: true,
-	eval:     func(c *calc, f *flow) { c.dense() },
+	eval: func(c *calc, f *flow) {
+		c.dense()
+		f.cl = c.l.PerPosition // permuted back from channels-last
+	},
 	explain: func(row *Row) []string {
 		l := row.Layer
 		bias := ""
@@ -43,7 +46,7 @@ var denseSpec = Spec{
 		}
 		return s.input(row)
 	},
-	layout: func(l *Layer, in bool) bool { return l.PerPosition },
+
 	torch: func(row *Row) Torch {
 		if row.Layer.PerPosition {
 			return Torch{Module: fmt.Sprintf("PositionDense(%d, %d, bias=%s)", row.In.C, row.Out.C, pyBool(!row.Layer.NoBias))}

@@ -25,10 +25,13 @@ var normSpec = Spec{
 			set:  func(l *Layer, v Value) { l.Eps = v.Float },
 			show: func(l *Layer) Value { return Value{Float: normEps(l)} }},
 	},
-	eval: func(c *calc, f *flow) { c.norm() },
-	// Layer norm runs on the channels-last view and is permuted back: its
-	// output is stored channels-last.
-	layout: func(l *Layer, in bool) bool { return in || l.Norm == NormLayer },
+	eval: func(c *calc, f *flow) {
+		c.norm()
+		// Layer norm runs on the channels-last view and is permuted back:
+		// its output is stored channels-last.
+		f.cl = f.cl || c.l.Norm == NormLayer
+	},
+	keepLayout: true,
 	explain: func(row *Row) []string {
 		var out []string
 		if row.Params > 0 {

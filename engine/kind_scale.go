@@ -31,8 +31,8 @@ var scaleSpec = Spec{
 	},
 	// x · γ keeps x for γ's gradient (and γ, a parameter, for x's), as
 	// autograd's mul does.
-	saved:  func(row *Row, s *saving) int64 { return s.input(row) },
-	layout: keepLayout,
+	saved:      func(row *Row, s *saving) int64 { return s.input(row) },
+	keepLayout: true,
 	torch: func(row *Row) Torch {
 		return Torch{Module: fmt.Sprintf("ChannelScale(%d, init=%s)", row.In.C, pyFloat(row.Layer.ScaleInit))}
 	},

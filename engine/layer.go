@@ -168,13 +168,6 @@ type Layer struct {
 	// conv, deconv, dense: a width relative to an enclosing input instead
 	// of Filters (the zero Rel means Filters is the width).
 	Rel Rel
-	// conv, deconv, dense: a relative width reads the input of the
-	// innermost enclosing block repeat, not of the innermost body (gate,
-	// branch or repeat).
-	RelBlock bool
-	// conv, deconv, dense: round a relative width to a multiple of this,
-	// never below it nor below 90% of the exact value; zero: no rounding.
-	RoundTo int64
 	// conv, deconv, dense: no additive bias.
 	NoBias bool
 	// deconv: extra rows/columns added at the bottom/right of the output.
@@ -238,6 +231,14 @@ type Layer struct {
 	From string
 	// concat, add: center-crop the larger map to the smaller one's size.
 	Crop bool
+
+	// conv, deconv, dense: a relative width reads the input of the
+	// innermost enclosing block repeat, not of the innermost body (gate,
+	// branch or repeat).
+	RelBlock bool
+	// conv, deconv, dense: round a relative width to a multiple of this,
+	// never below it nor below 90% of the exact value; zero: no rounding.
+	RoundTo int64
 
 	// scale: the value every per-channel factor starts at (the stack file's
 	// value; 1 when it is left out).

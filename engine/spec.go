@@ -35,11 +35,14 @@ type Spec struct {
 	// new tensor (flatten, reshape).
 	View bool
 
-	// layout says whether the row's output is stored channels-last (as the
-	// export's PyTorch form writes it), given whether its input is; nil
-	// means a fresh contiguous tensor. A per-position dense layer copies
-	// an input that is not (autograd then keeps the copy).
-	layout func(l *Layer, in bool) bool
+	// keepLayout: the output is stored as the input is, channels-last or
+	// not (PyTorch's CPU convolutions, norms and element-wise functions
+	// keep the layout; measured with testdata/reference); other kinds
+	// write a fresh contiguous tensor unless their eval says it is
+	// channels-last (layer norm and per-position dense, as the export
+	// writes them). A per-position dense layer copies an input that is not
+	// channels-last, and autograd then keeps the copy.
+	keepLayout bool
 
 	eval    func(c *calc, f *flow)
 	explain func(row *Row) []string
