@@ -15,17 +15,22 @@ to it exactly.
 Run with Debian's python3-torch:  /usr/bin/python3 testdata/reference/torch_reference.py
 
 Stacks are written in stackfit's stack-file schema (as JSON, which the YAML
-loader reads), so the Go test loads exactly what PyTorch built.
+loader reads), so the Go test loads exactly what PyTorch built. The
+published networks in testdata/published/ with forks, gates, relative
+widths, dense links and per-position dense layers are read from their
+YAML files (python3-yaml) and run at a reduced input, layers as written.
 """
 import json
 import os
 import random
+import re
 import sys
 import warnings
 
 import torch
 import torch.nn as nn
 import torch.nn.functional as F
+import yaml
 from torchvision.models._utils import _make_divisible
 
 # A relative width that resolves to 0 channels is refused at the forward
@@ -345,6 +350,8 @@ class Runner:
         return x
 
     def one(self, layer, path, x, unstrided):
+        if layer == "global-pool":
+            layer = {"global-pool": "avg"}  # stackfit's bare global-pool averages
         kind = kind_of(layer)
         if kind in ("concat", "add"):
             other = self.taps[layer[kind]]  # KeyError: unknown or later name
@@ -540,6 +547,46 @@ def published():
         {"deconv": 256, "kernel": 5, "stride": 2, "pad": 2, "out-pad": 1}, {"norm": "batch"}, {"act": "relu"},
         {"deconv": 128, "kernel": 5, "stride": 2, "pad": 2, "out-pad": 1}, {"norm": "batch"}, {"act": "relu"},
         {"deconv": 3, "kernel": 5, "stride": 2, "pad": 2, "out-pad": 1}, {"act": "tanh"}]
+
+
+class StackLoader(yaml.SafeLoader):
+    """PyYAML's safe loader with YAML 1.2's floats, as stackfit's loader
+    (gopkg.in/yaml.v3) reads them: PyYAML follows YAML 1.1, where 1e-06
+    (no dot) is a string."""
+
+
+StackLoader.add_implicit_resolver(
+    "tag:yaml.org,2002:float",
+    re.compile(r"^[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?$|^[-+]?\.(?:inf|Inf|INF)$|^\.(?:nan|NaN|NAN)$"),
+    list("-+0123456789."))
+# Integers stay integers: the int resolver PyYAML registered first wins.
+
+# The published networks that use forks, gates, relative widths, dense
+# links and per-position dense layers, with the input side they run at
+# here (each file's own input is 224×224; a smaller map keeps autograd's
+# run quick, and each net still reaches its head without a refusal).
+# SqueezeNet runs at 66: its stem then leaves 32×32, and all three of its
+# ceil-mode pools round up (32 → 16 → 8 → 4; at 64 every one divides
+# evenly), as GoogLeNet's first three do at 64 (32 → 16 → 8 → 4).
+PUBLISHED_FILES = [
+    ("mobilenet-v2.yaml", 64),
+    ("mobilenet-v3-small.yaml", 64),
+    ("efficientnet-b0.yaml", 64),
+    ("densenet121.yaml", 64),
+    ("squeezenet1-1.yaml", 66),
+    ("googlenet.yaml", 64),
+    ("convnext-tiny.yaml", 64),
+]
+
+
+def published_files():
+    """The files' layers as written (the Go test loads them through
+    stackfit's loader again), on an input of side `size`."""
+    for file, size in PUBLISHED_FILES:
+        with open(os.path.join(HERE, "..", "published", file)) as f:
+            doc = yaml.load(f, Loader=StackLoader)
+        yield (f"{doc['name']} (testdata/published/{file}) at {size}×{size}",
+               [doc["input"][0], size, size], doc["layers"])
 
 
 # ---- generated stacks: every kind, odd sizes, some PyTorch must refuse ----
@@ -1136,6 +1183,7 @@ def main():
     cases = []
     every = list(published()) + list(generated(rng, GENERATED)) + list(block_cases(rng))
     every += list(fork_cases()) + list(generated_forks(frng, GENERATED_FORKS))
+    every += list(published_files())
     for name, inp, layers in every:
         stack = {"stackfit": 1, "name": name, "input": inp, "layers": layers}
         rows, error_at, message = run(stack)
