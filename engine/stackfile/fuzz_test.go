@@ -67,5 +67,21 @@ func FuzzLoad(f *testing.F) {
 		if !bytes.Equal(b1, b2) {
 			t.Fatalf("save is not stable:\n%s\n---\n%s", b1, b2)
 		}
+		// Saving an edited stack over the file keeps what comments it can
+		// and always reads back as the edited stack.
+		s2.Name = "edited"
+		if len(s2.Layers) > 0 {
+			s2.Layers = s2.Layers[1:]
+		}
+		over, err := SaveOver(data, s2)
+		if err != nil {
+			t.Fatalf("save over: %v", err)
+		}
+		want, _ := Save(s2)
+		if back, err := Load(over); err != nil {
+			t.Fatalf("a save over the file does not load: %v\n%s", err, over)
+		} else if got, _ := Save(back); !bytes.Equal(got, want) {
+			t.Fatalf("a save over the file reads as another stack:\n%s\n---\n%s", got, want)
+		}
 	})
 }

@@ -13,7 +13,10 @@ import (
 // Save writes the canonical stack-file form of s: keys in a fixed order,
 // fields at their defaults left out, [h, w] pairs written as one number when
 // square.
-func Save(s *engine.Stack) ([]byte, error) {
+func Save(s *engine.Stack) ([]byte, error) { return encode(document(s)) }
+
+// document builds the canonical node tree of s.
+func document(s *engine.Stack) *yaml.Node {
 	root := &yaml.Node{Kind: yaml.MappingNode}
 	put(root, "stackfit", intNode(Version))
 	if s.Name != "" {
@@ -27,11 +30,15 @@ func Save(s *engine.Stack) ([]byte, error) {
 		put(root, "training", t)
 	}
 	put(root, "layers", layerSeq(s.Layers))
+	return &yaml.Node{Kind: yaml.DocumentNode, Content: []*yaml.Node{root}}
+}
 
+// encode writes a node tree as YAML with two-space indents.
+func encode(doc *yaml.Node) ([]byte, error) {
 	var buf bytes.Buffer
 	enc := yaml.NewEncoder(&buf)
 	enc.SetIndent(2)
-	if err := enc.Encode(&yaml.Node{Kind: yaml.DocumentNode, Content: []*yaml.Node{root}}); err != nil {
+	if err := enc.Encode(doc); err != nil {
 		return nil, fmt.Errorf("encode stack: %w", err)
 	}
 	if err := enc.Close(); err != nil {
