@@ -67,10 +67,10 @@ func runEditor(path string, builtin []byte, std IO) int {
 		}
 		opt.Stack = s
 	default:
-		s, err := store.LoadFile(path)
+		s, data, err := store.Disk{}.Load(path)
 		switch {
 		case err == nil:
-			opt.Stack = s
+			opt.Stack, opt.Base = s, data
 		case errors.Is(err, fs.ErrNotExist):
 			opt.NewFile = true
 			name := strings.TrimSuffix(filepath.Base(path), filepath.Ext(path))

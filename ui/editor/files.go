@@ -1,6 +1,7 @@
 package editor
 
 import (
+	"errors"
 	"fmt"
 	"path/filepath"
 
@@ -8,6 +9,7 @@ import (
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
+	"stackfit/ui/store"
 )
 
 // confirm asks a yes/no question; yes and no run their actions.
@@ -51,18 +53,42 @@ func (m *Model) save() tea.Cmd {
 }
 
 // saveTo writes the stack to path atomically; the old file stays whole if
-// anything fails.
-func (m *Model) saveTo(path string) tea.Cmd {
+// anything fails. A file that changed on disk since the editor read it,
+// or one its permissions protect, is never written without asking.
+func (m *Model) saveTo(path string) tea.Cmd { return m.saveWith(path, store.SaveMode{}) }
+
+func (m *Model) saveWith(path string, mode store.SaveMode) tea.Cmd {
 	if m.files == nil {
 		m.setStatus("not saved: this editor was started without file access; run stackfit FILE to edit a file", statusError)
 		return nil
 	}
-	if err := m.files.Save(path, m.stack); err != nil {
+	base := m.base
+	if path != m.path {
+		base = nil // another file: it must not exist yet
+	}
+	data, note, err := m.files.Save(path, m.stack, base, mode)
+	switch {
+	case errors.Is(err, store.ErrChanged) && path == m.path && m.path != "":
+		m.ask(fmt.Sprintf("%s changed on disk since you opened it — y: overwrite it with your version · n: save yours under another name · esc: keep editing (o opens the file again)", filepath.Base(path)),
+			func() tea.Cmd { mode.Overwrite = true; return m.saveWith(path, mode) },
+			func() tea.Cmd { m.openPrompt(promptSaveAs, "save as", path+".mine"); return nil })
+		return nil
+	case errors.Is(err, store.ErrChanged):
+		m.ask(fmt.Sprintf("%s already exists and this editor has not read it — y: replace it · n: choose another name · esc: keep editing", filepath.Base(path)),
+			func() tea.Cmd { mode.Overwrite = true; return m.saveWith(path, mode) },
+			func() tea.Cmd { m.openPrompt(promptSaveAs, "save as", path); return nil })
+		return nil
+	case errors.Is(err, store.ErrReadOnly):
+		m.ask(fmt.Sprintf("%s is read-only — y: write it anyway (it stays read-only) · n: save under another name · esc: keep editing", filepath.Base(path)),
+			func() tea.Cmd { mode.ReadOnly = true; return m.saveWith(path, mode) },
+			func() tea.Cmd { m.openPrompt(promptSaveAs, "save as", path); return nil })
+		return nil
+	case err != nil:
 		m.setStatus("not saved: "+err.Error(), statusError)
 		return nil
 	}
 	moved := path != m.path
-	m.path = path
+	m.path, m.base = path, data
 	m.dirty = false
 	if m.journal != nil {
 		err := m.journal.Clear()
@@ -74,16 +100,21 @@ func (m *Model) saveTo(path string) tea.Cmd {
 			return nil
 		}
 	}
+	if note != "" {
+		m.setStatus("saved; "+note, statusError)
+		return nil
+	}
 	m.setStatus(fmt.Sprintf("saved %s (%d rows)", filepath.Base(path), len(m.res.Rows)), statusInfo)
 	return nil
 }
 
-// load replaces the stack with s from path; undo history starts afresh.
-func (m *Model) load(s *engine.Stack, path string) {
+// load replaces the stack with s, read from path as data; undo history
+// starts afresh.
+func (m *Model) load(s *engine.Stack, data []byte, path string) {
 	if m.journal != nil {
 		m.journal.Clear() // the user chose to leave the unsaved edits
 	}
-	m.stack, m.path, m.dirty = s, path, false
+	m.stack, m.path, m.base, m.dirty = s, path, data, false
 	if m.journalFor != nil {
 		m.journal = m.journalFor(path)
 	}

@@ -2,6 +2,8 @@ package editor
 
 import (
 	"errors"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -9,6 +11,7 @@ import (
 
 	"stackfit/engine"
 	"stackfit/keymap"
+	"stackfit/ui/store"
 	"stackfit/ui/styles"
 )
 
@@ -16,14 +19,17 @@ import (
 // open.
 type memFiles map[string]*engine.Stack
 
-func (f memFiles) Load(path string) (*engine.Stack, error) {
+func (f memFiles) Load(path string) (*engine.Stack, []byte, error) {
 	if s, ok := f[path]; ok {
-		return s.Clone(), nil
+		return s.Clone(), nil, nil
 	}
-	return nil, errors.New("open stack file: " + path + ": no such file")
+	return nil, nil, errors.New("open stack file: " + path + ": no such file")
 }
 
-func (f memFiles) Save(path string, s *engine.Stack) error { f[path] = s.Clone(); return nil }
+func (f memFiles) Save(path string, s *engine.Stack, _ []byte, _ store.SaveMode) ([]byte, string, error) {
+	f[path] = s.Clone()
+	return nil, "", nil
+}
 
 // TestFilesOption checks that open and save go through Options.Files, and
 // that without it they say so instead of touching the disk.
@@ -73,5 +79,64 @@ func TestHelpNamesKeysPath(t *testing.T) {
 		if v := view(m); !strings.Contains(v, tt.want) {
 			t.Errorf("KeysPath %q: help lacks %q:\n%s", tt.path, tt.want, v)
 		}
+	}
+}
+
+// TestTwoEditorsOneFile: editor A saves; editor B, opened on the same file
+// before that, must not silently drop A's edit — its save asks, and "n"
+// offers another name. An outside append is caught the same way; "y"
+// then overwrites knowingly. A save with no edit leaves the file's bytes
+// and comments alone.
+func TestTwoEditorsOneFile(t *testing.T) {
+	p := filepath.Join(t.TempDir(), "net.yaml")
+	orig := "# sorting-line grader\nstackfit: 1\ninput: [3, 32, 32]\nlayers:\n  - {conv: 8, kernel: 3}   # stem\n  - {act: relu}\n"
+	if err := os.WriteFile(p, []byte(orig), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	open := func() *Model {
+		s, data, err := store.Disk{}.Load(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		m := New(Options{Stack: s, Base: data, Path: p, Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(), Files: store.Disk{}})
+		m.Update(tea.WindowSizeMsg{Width: 100, Height: 30})
+		return m
+	}
+	a, b := open(), open()
+	press(a, "w")
+	if data, _ := os.ReadFile(p); string(data) != orig {
+		t.Fatalf("a save with no edit changed the file:\n%s", data)
+	}
+	press(a, ">", "w") // widen the stem and save
+	afterA, _ := os.ReadFile(p)
+	if !strings.Contains(string(afterA), "# stem") || !strings.Contains(string(afterA), "# sorting-line grader") {
+		t.Errorf("A's save lost the comments:\n%s", afterA)
+	}
+	press(b, "j", ">", "w")
+	if b.mode != modeConfirm || !strings.Contains(b.confirm.question, "changed on disk") {
+		t.Fatalf("B saved over A's edit without asking: %q", b.status)
+	}
+	if data, _ := os.ReadFile(p); string(data) != string(afterA) {
+		t.Fatalf("B's save reached the file before the answer")
+	}
+	press(b, "n")
+	if b.mode != modePrompt || !strings.HasSuffix(b.prompt.input.Value(), "net.yaml.mine") {
+		t.Fatalf("n did not offer another name: mode %v", b.mode)
+	}
+	press(b, "enter")
+	if _, err := os.Stat(p + ".mine"); err != nil || b.dirty {
+		t.Fatalf("save as: %v, dirty %v, %q", err, b.dirty, b.status)
+	}
+	// An outside append to A's file, then A saves again.
+	f, _ := os.OpenFile(p, os.O_APPEND|os.O_WRONLY, 0)
+	f.WriteString("# appended outside\n")
+	f.Close()
+	press(a, ">", "w")
+	if a.mode != modeConfirm {
+		t.Fatalf("A saved over the outside change without asking: %q", a.status)
+	}
+	press(a, "y")
+	if data, _ := os.ReadFile(p); a.dirty || !strings.Contains(string(data), "# stem") {
+		t.Errorf("overwrite: dirty %v:\n%s", a.dirty, data)
 	}
 }

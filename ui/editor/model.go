@@ -13,14 +13,18 @@ import (
 
 	"stackfit/engine"
 	"stackfit/keymap"
+	"stackfit/ui/store"
 	"stackfit/ui/styles"
 )
 
 // Options configures a new editor.
 type Options struct {
-	Stack   *engine.Stack // the stack to edit; nil starts an empty one
-	Path    string        // where Save writes; "" asks on first save
-	NewFile bool          // Path does not exist yet: ask for the input shape first
+	Stack *engine.Stack // the stack to edit; nil starts an empty one
+	Path  string        // where Save writes; "" asks on first save
+	// Base is the file's content as it was read (nil for a new file): a
+	// save checks that the file still holds it and keeps its comments.
+	Base    []byte
+	NewFile bool // Path does not exist yet: ask for the input shape first
 	Keys    keymap.KeyMap
 	Styles  styles.Styles
 	// KeysPath is the keys file the help screen names as the place for
@@ -43,10 +47,16 @@ type Options struct {
 
 // Files is how the editor reaches stack files on disk.
 type Files interface {
-	// Load reads the stack file at path; its errors name the path.
-	Load(path string) (*engine.Stack, error)
-	// Save writes s to path so that a failed save leaves the old file whole.
-	Save(path string, s *engine.Stack) error
+	// Load reads the stack file at path and returns the bytes it read
+	// too; its errors name the path.
+	Load(path string) (*engine.Stack, []byte, error)
+	// Save writes s to path so that a failed save leaves the old file
+	// whole. base is what the editor last read from or wrote to path (nil
+	// for a file it never had): unless mode allows it, a file that no
+	// longer holds base is refused with store.ErrChanged, and one its
+	// permissions protect with store.ErrReadOnly. It returns the bytes
+	// written and a note for the status line ("" when none).
+	Save(path string, s *engine.Stack, base []byte, mode store.SaveMode) ([]byte, string, error)
 }
 
 // Journal keeps unsaved edits so a crash loses nothing.
@@ -74,6 +84,7 @@ type Model struct {
 
 	stack      *engine.Stack
 	path       string
+	base       []byte // the file's content as last read or written; nil when never
 	dirty      bool
 	journal    Journal
 	journalFor func(string) Journal
@@ -122,6 +133,7 @@ func New(opt Options) *Model {
 		st:         opt.Styles,
 		stack:      opt.Stack,
 		path:       opt.Path,
+		base:       opt.Base,
 		journalFor: opt.JournalFor,
 		files:      opt.Files,
 		keysFile:   opt.KeysPath,

@@ -169,13 +169,13 @@ func (m *Model) acceptPrompt() tea.Cmd {
 			p.hint, p.bad = "this editor was started without file access; run stackfit FILE instead", true
 			return nil
 		}
-		s, err := m.files.Load(v)
+		s, data, err := m.files.Load(v)
 		if err != nil {
 			p.hint, p.bad = firstLine(err.Error()), true
 			return nil
 		}
 		m.prompt, m.mode = nil, modeNormal
-		m.load(s, v)
+		m.load(s, data, v)
 		return m.widthCmd()
 	}
 	return nil

@@ -7,9 +7,7 @@ import (
 	"io/fs"
 	"os"
 	"path/filepath"
-
-	"stackfit/engine"
-	"stackfit/engine/stackfile"
+	"syscall"
 )
 
 // fileSystem is what an atomic write needs from the operating system; the
@@ -27,6 +25,7 @@ type tempFile interface {
 	io.Writer
 	Name() string
 	Chmod(fs.FileMode) error
+	Chown(uid, gid int) error
 	Sync() error
 	Close() error
 }
@@ -40,21 +39,28 @@ func (osFS) Stat(n string) (fs.FileInfo, error)               { return os.Stat(n
 
 // WriteFileAtomic replaces path with data so that a reader sees either the
 // old file or the new one, never a mix: it writes a temporary file in the
-// same folder, syncs it, and renames it over path. An existing file keeps
-// its permissions; a new one gets perm. On any failure — a read-only
-// folder, a full disk, an interrupted write — the old file is left
-// byte-identical, the temporary file is removed, and the error says what
-// happened.
+// same folder, syncs it, and renames it over path. A symbolic link is
+// followed: its target is replaced and the link stays. An existing file
+// keeps its permissions and, where the process may set them, its owner
+// and group; a new one gets perm. On any failure — a read-only folder, a
+// full disk, an interrupted write — the old file is left byte-identical,
+// the temporary file is removed, and the error says what happened.
 func WriteFileAtomic(path string, data []byte, perm fs.FileMode) error {
 	return writeAtomic(osFS{}, path, data, perm)
 }
 
 func writeAtomic(fsys fileSystem, path string, data []byte, perm fs.FileMode) (err error) {
+	path = Target(path)
+	owner := -1
+	var group int
 	if info, statErr := fsys.Stat(path); statErr == nil {
 		if !info.Mode().IsRegular() {
 			return fmt.Errorf("save %s: not a regular file; choose another name", path)
 		}
 		perm = info.Mode().Perm()
+		if st, ok := info.Sys().(*syscall.Stat_t); ok {
+			owner, group = int(st.Uid), int(st.Gid)
+		}
 	} else if !errors.Is(statErr, fs.ErrNotExist) {
 		return fmt.Errorf("save %s: %w", path, statErr)
 	}
@@ -75,6 +81,9 @@ func writeAtomic(fsys fileSystem, path string, data []byte, perm fs.FileMode) (e
 	if err = tmp.Chmod(perm); err != nil {
 		return fmt.Errorf("save %s: set permissions: %w; the old file is unchanged", path, err)
 	}
+	if owner >= 0 && (owner != os.Getuid() || group != os.Getgid()) {
+		tmp.Chown(owner, group) // best effort: only root may give a file away
+	}
 	if err = tmp.Sync(); err != nil {
 		return fmt.Errorf("save %s: sync failed (%w); the old file is unchanged", path, err)
 	}
@@ -91,11 +100,23 @@ func writeAtomic(fsys fileSystem, path string, data []byte, perm fs.FileMode) (e
 	return nil
 }
 
-// SaveFile writes s to path in canonical form, atomically.
-func SaveFile(path string, s *engine.Stack) error {
-	data, err := stackfile.Save(s)
-	if err != nil {
-		return err
+// Target is the file a write to path replaces: path itself, or the file a
+// symbolic link at path leads to (resolved through every link, relative
+// links from their own folder, a dangling one to where it points).
+func Target(path string) string {
+	for range 32 { // a loop of links ends here; the write then fails on it
+		info, err := os.Lstat(path)
+		if err != nil || info.Mode()&fs.ModeSymlink == 0 {
+			return path
+		}
+		dest, err := os.Readlink(path)
+		if err != nil {
+			return path
+		}
+		if !filepath.IsAbs(dest) {
+			dest = filepath.Join(filepath.Dir(path), dest)
+		}
+		path = dest
 	}
-	return WriteFileAtomic(path, data, 0o644)
+	return path
 }
