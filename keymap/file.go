@@ -3,9 +3,12 @@ package keymap
 import (
 	"errors"
 	"fmt"
+	"io"
+	"io/fs"
 	"os"
 	"sort"
 	"strings"
+	"syscall"
 
 	"github.com/charmbracelet/bubbles/key"
 	"gopkg.in/yaml.v3"
@@ -18,24 +21,87 @@ var ErrKeys = errors.New("bad keys file")
 // command line reads it (ui/store.Locate works out the keys file's path).
 const EnvPath = "STACKFIT_KEYS"
 
+// MaxFileBytes is the largest keys file read (64 KiB; a keys file that
+// rebinds every action is a few kilobytes).
+const MaxFileBytes = 64 << 10
+
 // LoadFile reads overrides from path into a copy of base. A missing file is
-// no error (base comes back unchanged).
+// no error (base comes back unchanged). Anything but a regular file (a
+// named pipe, a device such as /dev/zero, a socket, a folder) is refused
+// without reading it, and so is a file over MaxFileBytes.
 func LoadFile(path string, base KeyMap) (KeyMap, error) {
 	if path == "" {
 		return base, nil
 	}
-	data, err := os.ReadFile(path)
+	data, err := readKeysFile(path)
 	if errors.Is(err, os.ErrNotExist) {
 		return base, nil
 	}
 	if err != nil {
-		return base, fmt.Errorf("%w: %s: %v", ErrKeys, path, err)
+		return base, err
 	}
 	km, err := Parse(data, base)
 	if err != nil {
 		return base, fmt.Errorf("%s: %w", path, err)
 	}
 	return km, nil
+}
+
+// readKeysFile reads the keys file at path: a regular file (checked before
+// it is opened, and again once opened without waiting, O_NONBLOCK) of at
+// most MaxFileBytes. A missing file gives os.ErrNotExist.
+func readKeysFile(path string) ([]byte, error) {
+	fail := func(err error) ([]byte, error) {
+		return nil, fmt.Errorf("%w: %s: %v", ErrKeys, path, err)
+	}
+	fi, err := os.Stat(path)
+	if errors.Is(err, os.ErrNotExist) {
+		return nil, err
+	}
+	if err != nil {
+		return fail(err)
+	}
+	if err := keysRegular(path, fi.Mode()); err != nil {
+		return nil, err
+	}
+	f, err := os.OpenFile(path, os.O_RDONLY|syscall.O_NONBLOCK, 0)
+	if err != nil {
+		return fail(err)
+	}
+	defer f.Close()
+	if fi, err = f.Stat(); err != nil {
+		return fail(err)
+	}
+	if err := keysRegular(path, fi.Mode()); err != nil {
+		return nil, err
+	}
+	data, err := io.ReadAll(io.LimitReader(f, MaxFileBytes+1))
+	if err != nil {
+		return fail(err)
+	}
+	if len(data) > MaxFileBytes {
+		return nil, fmt.Errorf("%w: %s is over %d bytes (64 KiB); a keys file is a few lines of action: keys", ErrKeys, path, MaxFileBytes)
+	}
+	return data, nil
+}
+
+// keysRegular refuses a keys path that is not a regular file.
+func keysRegular(path string, m fs.FileMode) error {
+	if m.IsRegular() {
+		return nil
+	}
+	what := "a special file"
+	switch {
+	case m&fs.ModeDir != 0:
+		what = "a folder"
+	case m&fs.ModeNamedPipe != 0:
+		what = "a named pipe"
+	case m&fs.ModeSocket != 0:
+		what = "a socket"
+	case m&(fs.ModeDevice|fs.ModeCharDevice) != 0:
+		what = "a device"
+	}
+	return fmt.Errorf("%w: %s is %s, not a keys file; make it a YAML file of action: keys lines, or point %s at one", ErrKeys, path, what, EnvPath)
 }
 
 // Parse applies a keys file: a YAML mapping from action name to a key or a

@@ -4,10 +4,12 @@ import (
 	"encoding/csv"
 	"fmt"
 	"io"
+	"slices"
 	"strconv"
 	"strings"
 
 	"stackfit/engine"
+	"stackfit/engine/textsafe"
 )
 
 // columns are the per-layer fields of the markdown and CSV reports.
@@ -25,13 +27,15 @@ func cells(an *engine.Analysis, i int) []string {
 		out = []string{strconv.FormatInt(r.Out.C, 10), strconv.FormatInt(r.Out.H, 10), strconv.FormatInt(r.Out.W, 10)}
 	}
 	f := func(v float64) string { return strconv.FormatFloat(v, 'f', -1, 64) }
-	return append([]string{r.Path.String(), engine.RowSummary(r), r.Layer.Name, r.Status.String()},
+	return append([]string{r.Path.String(), textsafe.Line(engine.RowSummary(r)), textsafe.Line(r.Layer.Name), r.Status.String()},
 		append(out, strconv.FormatInt(r.Params, 10), strconv.FormatInt(r.Buffers, 10), strconv.FormatInt(r.MACs, 10),
 			f(r.RF.H), f(r.RF.W), strconv.FormatInt(act, 10))...)
 }
 
 // WriteCSV writes one line per layer with a header line; numbers are plain
-// integers (bytes for act bytes) so spreadsheets can sum them.
+// integers (bytes for act bytes) so spreadsheets can sum them. Names and
+// summaries have their control characters escaped (textsafe.Line), so a
+// name can neither break a record nor reach a terminal that shows the file.
 func WriteCSV(w io.Writer, an *engine.Analysis) error {
 	cw := csv.NewWriter(w)
 	if err := cw.Write(columns); err != nil {
@@ -46,11 +50,35 @@ func WriteCSV(w io.Writer, an *engine.Analysis) error {
 	return cw.Error()
 }
 
-// mdEscape keeps a cell inside its markdown table column.
+// mdEscape makes text from the stack safe in a markdown document: control
+// characters become visible escapes (textsafe.Line, so no line break can
+// end a table row), HTML's <, > and & become character references so no
+// tag or entity gets through, and the backslash, the table pipe, brackets
+// and backticks are backslash-escaped (CommonMark's escapable
+// punctuation) so text can neither leave its table cell nor form a link,
+// an image or a code span.
 func mdEscape(s string) string {
-	s = strings.ReplaceAll(s, "\\", "\\\\")
-	s = strings.ReplaceAll(s, "|", "\\|")
-	return strings.NewReplacer("\n", " ", "\r", " ").Replace(s)
+	s = textsafe.Line(s)
+	if !strings.ContainsAny(s, "&<>\\|[]`") {
+		return s
+	}
+	var b strings.Builder
+	for i := 0; i < len(s); i++ {
+		switch c := s[i]; c {
+		case '&':
+			b.WriteString("&amp;")
+		case '<':
+			b.WriteString("&lt;")
+		case '>':
+			b.WriteString("&gt;")
+		case '\\', '|', '[', ']', '`':
+			b.WriteByte('\\')
+			b.WriteByte(c)
+		default:
+			b.WriteByte(c)
+		}
+	}
+	return b.String()
 }
 
 // WriteMarkdown writes the report for a design document: a title, the
@@ -70,9 +98,9 @@ func WriteMarkdown(w io.Writer, an *engine.Analysis) error {
 	b.WriteString("|" + strings.Repeat(" --- |", len(head)) + "\n")
 	for i := range r.Rows {
 		row := &r.Rows[i]
-		label := engine.RowSummary(row)
+		label := mdEscape(engine.RowSummary(row))
 		if row.Layer.Name != "" {
-			label += " [" + row.Layer.Name + "]"
+			label += " [" + mdEscape(row.Layer.Name) + "]" // stackfit's brackets, the name's escaped
 		}
 		out := row.Status.String()
 		if row.Status == engine.StatusOK {
@@ -82,10 +110,11 @@ func WriteMarkdown(w io.Writer, an *engine.Analysis) error {
 		if i < len(m.Rows) {
 			act = m.Rows[i]
 		}
-		vals := []string{row.Path.String(), label, out, engine.GroupDigits(row.Params), engine.FormatCount(row.MACs), fpair(row.RF), engine.FormatBytes(act)}
+		vals := []string{row.Path.String(), out, engine.GroupDigits(row.Params), engine.FormatCount(row.MACs), fpair(row.RF), engine.FormatBytes(act)}
 		for j := range vals {
 			vals[j] = mdEscape(vals[j])
 		}
+		vals = slices.Insert(vals, 1, label)
 		b.WriteString("| " + strings.Join(vals, " | ") + " |\n")
 	}
 	t := an.Training

@@ -8,6 +8,7 @@ import (
 	"unicode/utf8"
 
 	"stackfit/engine"
+	"stackfit/engine/textsafe"
 )
 
 // WriteText writes a plain-text table of the stack for a terminal: one line
@@ -18,7 +19,7 @@ func WriteText(w io.Writer, an *engine.Analysis) error {
 	if title == "" {
 		title = "(unnamed stack)"
 	}
-	fmt.Fprintf(w, "%s  ·  input %s\n\n", title, r.Input)
+	fmt.Fprintf(w, "%s  ·  input %s\n\n", textsafe.Line(title), r.Input)
 	t := table{align: []byte("llrrrrr")}
 	t.add("at", "layer", "out C×H×W", "params", "MACs", "rf", "jump")
 	var prev engine.Path
@@ -78,7 +79,7 @@ func WriteText(w io.Writer, an *engine.Analysis) error {
 	if len(r.Diags) > 0 {
 		fmt.Fprintf(w, "\n%d %s, %d %s, %d %s\n", r.Errors, pl(r.Errors, "error", "errors"), r.Warnings, pl(r.Warnings, "warning", "warnings"), r.Notes, pl(r.Notes, "note", "notes"))
 		for _, d := range r.Diags {
-			fmt.Fprintf(w, "  %s %s\n", d.Severity, r.Describe(d))
+			fmt.Fprintf(w, "  %s %s\n", d.Severity, textsafe.Line(r.Describe(d)))
 		}
 	}
 	return nil
@@ -102,13 +103,19 @@ func fpair(p engine.FPair) string {
 }
 
 // table lays out rows of cells in columns, each aligned left ('l') or
-// right ('r'), two spaces apart.
+// right ('r'), two spaces apart. Every cell is made terminal-safe as it is
+// added (layer names and merge sources come from the stack file).
 type table struct {
 	align []byte
 	rows  [][]string
 }
 
-func (t *table) add(cells ...string) { t.rows = append(t.rows, cells) }
+func (t *table) add(cells ...string) {
+	for i, c := range cells {
+		cells[i] = textsafe.Line(c)
+	}
+	t.rows = append(t.rows, cells)
+}
 
 func (t *table) write(w io.Writer) error {
 	widths := make([]int, len(t.align))

@@ -3,6 +3,7 @@ package stackfile
 import (
 	"bytes"
 	"fmt"
+	"io"
 	"math"
 	"strconv"
 	"strings"
@@ -37,22 +38,88 @@ func Load(data []byte) (*engine.Stack, error) {
 	if bytes.IndexByte(data, 0) >= 0 {
 		return nil, ErrorList{{Msg: "the file holds binary data (a NUL byte); a stack file is YAML text", Err: ErrSyntax}}
 	}
+	dec := yaml.NewDecoder(bytes.NewReader(data))
 	var doc yaml.Node
-	if err := yaml.Unmarshal(data, &doc); err != nil {
+	if err := dec.Decode(&doc); err != nil && err != io.EOF { // io.EOF: no document at all
 		return nil, ErrorList{syntaxError(err)}
 	}
+	first := doc.Line
+	if len(doc.Content) > 0 {
+		first = doc.Content[0].Line // past the first document's own "---"
+	}
+	extra := secondDocument(dec, data, first)
 	d := &decoder{names: map[string]int{}}
 	if n := findAlias(&doc); n != nil {
 		// Refused before anything reads the tree: aliases are how "billion
 		// laughs" files expand, and stack files never need them.
 		d.fail(n, "file", ErrAlias, "anchors (&) and aliases (*) are not allowed in stack files; write the value out")
-		return nil, d.errs
+	} else {
+		s := d.document(&doc)
+		if len(d.errs) == 0 && extra == nil {
+			return s, nil
+		}
 	}
-	s := d.document(&doc)
-	if len(d.errs) > 0 {
-		return nil, d.errs
+	if extra != nil {
+		d.errs = append(d.errs, extra)
 	}
-	return s, nil
+	return nil, d.errs
+}
+
+// secondDocument reports a YAML document after the first ("---" and more
+// text): a stack file holds one stack, and what follows would otherwise be
+// silently ignored. first is the line the first document's content starts
+// on. The second document is parsed but never walked, so its aliases
+// expand nothing.
+func secondDocument(dec *yaml.Decoder, data []byte, first int) *Error {
+	var next yaml.Node
+	err := dec.Decode(&next)
+	if err == io.EOF {
+		return nil
+	}
+	line := next.Line
+	if err == nil && !isDocStart(lineOf(data, line)) && len(next.Content) > 0 {
+		line = next.Content[0].Line // no "---": the document starts with its content
+	}
+	if err != nil { // the second document is not even valid YAML: find its "---"
+		line = docStart(data, first)
+		if line == 0 {
+			line = syntaxError(err).Line
+		}
+	}
+	return &Error{Line: line, Col: 1, Field: "file", Err: ErrSyntax,
+		Msg: "a second YAML document starts here; a stack file holds one stack — delete this line and what follows, or move that part to a file of its own"}
+}
+
+// docStart returns the line of the first document marker ("---") after
+// line first, or 0 when there is none.
+func docStart(data []byte, first int) int {
+	for i, l := range bytes.Split(data, []byte("\n")) {
+		if i+1 > first && isDocStart(l) {
+			return i + 1
+		}
+	}
+	return 0
+}
+
+// isDocStart reports whether line l is a document start marker.
+func isDocStart(l []byte) bool {
+	rest, ok := bytes.CutPrefix(l, []byte("---"))
+	return ok && (len(rest) == 0 || rest[0] == ' ' || rest[0] == '\t' || rest[0] == '\r')
+}
+
+// lineOf returns line n (1-based) of data, or nil.
+func lineOf(data []byte, n int) []byte {
+	for i := 1; i < n; i++ {
+		j := bytes.IndexByte(data, '\n')
+		if j < 0 {
+			return nil
+		}
+		data = data[j+1:]
+	}
+	if j := bytes.IndexByte(data, '\n'); j >= 0 {
+		data = data[:j]
+	}
+	return data
 }
 
 // syntaxError converts a YAML parser error into an *Error with the line the

@@ -6,6 +6,7 @@ import (
 
 	"stackfit/engine"
 	"stackfit/engine/export"
+	"stackfit/engine/textsafe"
 )
 
 func runCheck(args []string, std IO) int {
@@ -19,7 +20,7 @@ func runCheck(args []string, std IO) int {
 		return c.fail(err)
 	}
 	r, m := an.Result, &an.Memory
-	name := c.file
+	name := textsafe.Line(c.file) // every line starts with it, terminal-safe
 	if name == "-" {
 		name = "<stdin>"
 	}
@@ -27,7 +28,7 @@ func runCheck(args []string, std IO) int {
 		if d.Severity == engine.SevInfo {
 			continue
 		}
-		fmt.Fprintf(std.Out, "%s: %s: %s\n", name, d.Severity, r.Describe(d))
+		fmt.Fprintf(std.Out, "%s: %s: %s\n", name, d.Severity, textsafe.Line(r.Describe(d)))
 	}
 	status := ExitOK
 	if r.Errors > 0 || (*strict && r.Warnings > 0) {
@@ -68,7 +69,7 @@ func runExport(args []string, std IO) int {
 		return c.fail(err)
 	}
 	if an.Result.Errors > 0 {
-		fmt.Fprintf(std.Err, "stackfit export: the stack has %d error(s); stackfit check %s lists them\n", an.Result.Errors, c.file)
+		fmt.Fprintf(std.Err, "stackfit export: the stack has %d error(s); stackfit check %s lists them\n", an.Result.Errors, textsafe.Line(c.file))
 		return ExitProblems
 	}
 	if err := c.output(*out, func(w io.Writer) error { return export.PyTorch(w, an, c.file) }); err != nil {

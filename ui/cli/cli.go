@@ -15,6 +15,7 @@ import (
 	"stackfit/engine/examples"
 	"stackfit/engine/report"
 	"stackfit/engine/stackfile"
+	"stackfit/engine/textsafe"
 	"stackfit/ui/store"
 )
 
@@ -51,24 +52,84 @@ func Run(args []string, std IO) int {
 	case "export":
 		return runExport(args[1:], std)
 	case "help", "-h", "--help", "-help":
-		if len(args) > 1 {
-			if u, ok := commandUsage[args[1]]; ok {
-				fmt.Fprint(std.Out, u)
-				return ExitOK
+		if len(args) > 1 && args[1] != "help" && !strings.HasPrefix(args[1], "-") {
+			u, ok := commandUsage[args[1]]
+			if !ok {
+				fmt.Fprintf(std.Err, "stackfit help: no command is called %q%s; the commands: %s\n", args[1], didYouMean(args[1]), strings.Join(commands, ", "))
+				return ExitUsage
 			}
+			fmt.Fprint(std.Out, u)
+			return ExitOK
 		}
 		fmt.Fprint(std.Out, usage)
 		return ExitOK
 	}
 	if len(args) == 1 && !strings.HasPrefix(args[0], "-") && (strings.ContainsAny(args[0], "./") || fileExists(args[0])) {
 		if !std.Terminal {
-			fmt.Fprintf(std.Err, "stackfit: the editor needs a terminal; for a printout use: stackfit report %s\n", args[0])
+			fmt.Fprintf(std.Err, "stackfit: the editor needs a terminal; for a printout use: stackfit report %s\n", textsafe.Line(args[0]))
 			return ExitUsage
 		}
 		return runEditor(args[0], nil, std)
 	}
-	fmt.Fprintf(std.Err, "stackfit: unknown command %q (commands: report, check, export, example, help; a stack file name needs its extension, e.g. net.yaml)\n\n%s", args[0], usage)
+	fmt.Fprintf(std.Err, "stackfit: unknown command %q%s (commands: %s; a stack file name needs its extension, e.g. net.yaml)\n\n%s", args[0], didYouMean(args[0]), strings.Join(commands, ", "), usage)
 	return ExitUsage
+}
+
+// commands are stackfit's commands, for messages and suggestions.
+var commands = []string{"report", "check", "export", "example", "help"}
+
+// didYouMean suggests the command that name is a likely typo of (within
+// one edit per four letters, at least one; insertions, deletions,
+// substitutions and swaps of neighbours count one each), or the one
+// command it begins, as "; did you mean %q?" — or "".
+func didYouMean(name string) string {
+	lower := strings.ToLower(name)
+	best, bestD := "", 2+len(lower)/4
+	var prefixed []string
+	for _, c := range commands {
+		if d := editDistance(lower, c); d < bestD {
+			best, bestD = c, d
+		}
+		if len(lower) >= 2 && strings.HasPrefix(c, lower) {
+			prefixed = append(prefixed, c)
+		}
+	}
+	if best == "" && len(prefixed) == 1 {
+		best = prefixed[0]
+	}
+	if best == "" {
+		return ""
+	}
+	return fmt.Sprintf("; did you mean %q?", best)
+}
+
+// editDistance is the optimal-string-alignment distance between a and b.
+func editDistance(a, b string) int {
+	ra, rb := []rune(a), []rune(b)
+	if len(ra) > 64 { // no command is that long
+		return len(ra)
+	}
+	d := make([][]int, len(ra)+1)
+	for i := range d {
+		d[i] = make([]int, len(rb)+1)
+		d[i][0] = i
+	}
+	for j := range d[0] {
+		d[0][j] = j
+	}
+	for i := 1; i <= len(ra); i++ {
+		for j := 1; j <= len(rb); j++ {
+			cost := 1
+			if ra[i-1] == rb[j-1] {
+				cost = 0
+			}
+			d[i][j] = min(d[i-1][j]+1, d[i][j-1]+1, d[i-1][j-1]+cost)
+			if i > 1 && j > 1 && ra[i-1] == rb[j-2] && ra[i-2] == rb[j-1] {
+				d[i][j] = min(d[i][j], d[i-2][j-2]+1)
+			}
+		}
+	}
+	return d[len(ra)][len(rb)]
 }
 
 func fileExists(p string) bool {
@@ -163,7 +224,7 @@ func runExample(args []string, std IO) int {
 		if err == nil {
 			err = fmt.Errorf("give at most one example name (got %d)", len(pos))
 		}
-		fmt.Fprintf(std.Err, "stackfit example: %v\n(stackfit example --help lists the flags)\n", err)
+		fmt.Fprintf(std.Err, "stackfit example: %s\n(stackfit example --help lists the flags)\n", textsafe.Text(err.Error()))
 		return ExitUsage
 	}
 	all := examples.All()
@@ -190,7 +251,7 @@ func runExample(args []string, std IO) int {
 			return ExitUsage
 		}
 		if err := store.WriteFileAtomic(*out, e.Data(), 0o644); err != nil {
-			fmt.Fprintf(std.Err, "stackfit example: %v\n", err)
+			fmt.Fprintf(std.Err, "stackfit example: %s\n", textsafe.Text(err.Error()))
 			return ExitUsage
 		}
 		fmt.Fprintf(std.Out, "wrote %q; edit it with: stackfit %q\n", *out, *out)
@@ -244,7 +305,7 @@ func (c *command) parse(args []string) (int, bool) {
 		return ExitOK, true
 	}
 	if err != nil {
-		fmt.Fprintf(c.std.Err, "stackfit %s: %v\n(stackfit %s --help lists the flags)\n", c.name, err, c.name)
+		fmt.Fprintf(c.std.Err, "stackfit %s: %s\n(stackfit %s --help lists the flags)\n", c.name, textsafe.Text(err.Error()), c.name)
 		return ExitUsage, true
 	}
 	if len(pos) != 1 {
@@ -252,11 +313,17 @@ func (c *command) parse(args []string) (int, bool) {
 		return ExitUsage, true
 	}
 	c.file = pos[0]
+	if o := c.fs.Lookup("o"); o != nil && o.Value.String() != "" && c.file != "-" && store.SameFile(c.file, o.Value.String()) {
+		fmt.Fprintf(c.std.Err, "stackfit %s: -o %q is the input file %q; stackfit does not write over its input — give -o another name\n", c.name, o.Value.String(), c.file)
+		return ExitUsage, true
+	}
 	return 0, false
 }
 
+// fail reports err, which may quote file names and file contents,
+// terminal-safe (one problem per line).
 func (c *command) fail(err error) int {
-	fmt.Fprintf(c.std.Err, "stackfit %s: %v\n", c.name, err)
+	fmt.Fprintf(c.std.Err, "stackfit %s: %s\n", c.name, textsafe.Text(err.Error()))
 	return ExitUsage
 }
 

@@ -23,10 +23,10 @@ func addTrainingFlags(fs *flag.FlagSet) trainingFlags {
 }
 
 // flagHelp is a setting's help on the command line, where the budget can
-// also be asked of nvidia-smi.
+// also be asked of nvidia-smi, or removed.
 func flagHelp(s engine.Setting) string {
 	if s.Key == "budget" {
-		return s.Help + ", or auto (nvidia-smi)"
+		return s.Help + ", auto (nvidia-smi) or none"
 	}
 	return s.Help
 }
@@ -71,11 +71,25 @@ func (tf trainingFlags) apply(t engine.Training) (engine.Training, error) {
 			return
 		}
 		v := f.Value.String()
-		if s.Key == "budget" && v == "auto" {
-			if t.Budget, err = gpuMemory(); err != nil {
-				err = fmt.Errorf("--budget auto: %w", err)
+		if s.Key == "budget" {
+			switch strings.ToLower(strings.TrimSpace(v)) {
+			case "auto":
+				if t.Budget, err = gpuMemory(); err != nil {
+					err = fmt.Errorf("--budget auto: %w", err)
+				}
+				return
+			case "none": // no budget, even one the file sets
+				t.Budget = 0
+				return
 			}
-			return
+			// 0 is refused rather than read as "no budget": a slip (an
+			// empty variable, a unit lost) would drop the file's budget
+			// and turn a failing check into a pass.
+			u := t
+			if s.Parse(&u, v) == nil && u.Budget == 0 {
+				err = fmt.Errorf("--budget %q: a budget of 0 bytes holds nothing; give a size such as 24GiB, auto (ask nvidia-smi), or none to check no budget, not even the file's", v)
+				return
+			}
 		}
 		if perr := s.Parse(&t, v); perr != nil {
 			var fe *engine.FieldError

@@ -5,13 +5,14 @@ import (
 	"strings"
 
 	"stackfit/engine"
+	"stackfit/engine/textsafe"
 	"stackfit/keymap"
 )
 
 // formView draws the open form in place of the stack view.
 func (m *Model) formView(lay layout) string {
 	f := m.form
-	lines := []string{m.st.Label.Render(f.title) + m.st.Dim.Render("  — numbers below follow as you type")}
+	lines := []string{m.st.Label.Render(textsafe.Line(f.title)) + m.st.Dim.Render("  — numbers below follow as you type")}
 	labelW := 0
 	for _, fl := range f.fields {
 		if !fl.hidden {
@@ -44,7 +45,7 @@ func (m *Model) formView(lay layout) string {
 		in := fl.input.view(m.st.Cursor)
 		note := m.st.Dim.Render(fl.help)
 		if fl.err != "" {
-			note = m.st.Error.Render("✗ " + fl.err)
+			note = m.st.Error.Render("✗ " + textsafe.Line(fl.err))
 		}
 		lines = append(lines, fit(mark+m.st.Label.Render(fit(fl.key, labelW))+"  "+fit(in, 18)+"  "+note, m.width))
 	}
@@ -85,7 +86,7 @@ func (m *Model) pickerView(lay layout) string {
 func (m *Model) helpView() string {
 	h := &m.help
 	var b strings.Builder
-	b.WriteString(m.st.Title.Render("stackfit — keys") + m.st.Dim.Render("  (? or esc closes; override keys in "+m.keysPath()+")"))
+	b.WriteString(m.st.Title.Render("stackfit — keys") + m.st.Dim.Render("  (? or esc closes; override keys in "+textsafe.Line(m.keysPath())+")"))
 	b.WriteString("\n\n")
 	b.WriteString(h.FullHelpView(m.keys.FullHelp()))
 	b.WriteString("\n\n")

@@ -4,16 +4,20 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"os"
 
 	"stackfit/engine"
 	"stackfit/engine/stackfile"
 )
 
 // LoadFile reads and parses the stack file at path; errors carry the path.
-// A file over stackfile.MaxFileBytes is refused without reading the rest.
+// A file over stackfile.MaxFileBytes is refused without reading the rest;
+// anything but a regular file (a named pipe, a device, a socket, a folder)
+// is refused without reading it (ErrNotRegular), so loading never waits.
 func LoadFile(path string) (*engine.Stack, error) {
-	f, err := os.Open(path)
+	f, err := openRegular(path)
+	if errors.Is(err, ErrNotRegular) {
+		return nil, err
+	}
 	if err != nil {
 		return nil, fmt.Errorf("open stack file: %w", err)
 	}
