@@ -97,13 +97,18 @@ func TestCrashRecovery(t *testing.T) {
 	if data, _ := os.ReadFile(file); string(data) != string(examples.FruitGrader()) {
 		t.Fatal("the file changed without a save")
 	}
-	journal := filepath.Join(dir, ".grader.yaml.unsaved")
-	kept, err := store.LoadFile(journal)
-	if err != nil || len(kept.Layers) != 36 || kept.Layers[0].Filters != 64 {
-		t.Fatalf("journal: %v", err)
+	// The killed session left its own journal, which says it is whole
+	// and made on the file as it is.
+	found := store.FindJournals(file, dir, examples.FruitGrader())
+	if len(found) != 1 || !found[0].Trusted() || found[0].Live {
+		t.Fatalf("journals: %+v", found)
+	}
+	kept := found[0].Stack
+	if len(kept.Layers) != 36 || kept.Layers[0].Filters != 64 {
+		t.Fatalf("journal holds %d layers", len(kept.Layers))
 	}
 	tm.start("two", dir, bin, file)
-	tm.waitFor("two", "restore them? (y: restore · n: discard)")
+	tm.waitFor("two", "restore them? (y: restore · n: discard")
 	tm.keys("two", "y")
 	tm.waitFor("two", "restored the unsaved edits")
 	tm.keys("two", "w")
@@ -118,8 +123,11 @@ func TestCrashRecovery(t *testing.T) {
 	if string(a) != string(b) {
 		t.Errorf("restored and saved stack differs from the edits made before the kill")
 	}
-	if _, err := os.Stat(journal); !os.IsNotExist(err) {
-		t.Error("the journal outlived the save")
+	if _, err := os.Stat(found[0].Path); !os.IsNotExist(err) {
+		t.Error("the killed session's journal outlived the restore and save")
+	}
+	if left := store.FindJournals(file, dir, nil); len(left) != 0 {
+		t.Errorf("journals left after the save: %+v", left)
 	}
 }
 

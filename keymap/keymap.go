@@ -45,6 +45,8 @@ type KeyMap struct {
 	Next, Prev, Accept, Cancel, Complete key.Binding
 	// Questions.
 	Yes, No key.Binding
+	// Reload reads a file again (offered when it changed on disk).
+	Reload key.Binding
 }
 
 // DefaultKeyMap returns the built-in bindings. Arrow keys and vim-style
@@ -94,8 +96,9 @@ func DefaultKeyMap() KeyMap {
 		Cancel:   b("esc", "cancel", "esc"),
 		Complete: b("tab", "complete kind", "tab"),
 
-		Yes: b("y", "yes", "y"),
-		No:  b("n", "no", "n"),
+		Yes:    b("y", "yes", "y"),
+		No:     b("n", "no", "n"),
+		Reload: b("r", "reload", "r"),
 	}
 }
 
@@ -126,7 +129,7 @@ func (k *KeyMap) Actions() []Action {
 		{"accept", []Mode{Form, Picker, Prompt}, &k.Accept},
 		{"cancel", []Mode{Form, Picker, Prompt, Confirm, Chart, Help}, &k.Cancel},
 		{"complete", []Mode{Prompt}, &k.Complete},
-		{"yes", []Mode{Confirm}, &k.Yes}, {"no", []Mode{Confirm}, &k.No},
+		{"yes", []Mode{Confirm}, &k.Yes}, {"no", []Mode{Confirm}, &k.No}, {"reload", []Mode{Confirm}, &k.Reload},
 	}
 }
 

@@ -80,16 +80,12 @@ func runEditor(path string, builtin []byte, std IO) int {
 			return ExitUsage
 		}
 	}
-	opt.JournalFor = func(p string) editor.Journal { return store.JournalFor(p, env.paths.State) }
-	current := opt.Stack
-	if opt.NewFile {
-		current = nil
+	opt.JournalFor = func(p string) editor.Journal {
+		j := store.JournalFor(p, env.paths.State)
+		j.Hold() // best effort: without it other sessions cannot see this one
+		return j
 	}
-	if rec, err := store.JournalFor(path, env.paths.State).Check(current); err != nil {
-		opt.Notice = err.Error()
-	} else if rec != nil {
-		opt.Recovered, opt.RecoveredAt = rec.Stack, rec.At
-	}
+	opt.Recovery, opt.Notice = recovery(path, env.paths.State, opt.Base, opt.Stack, opt.NewFile)
 	lipgloss.SetColorProfile(env.color)
 	m := editor.New(opt)
 	p := tea.NewProgram(m, tea.WithAltScreen(), tea.WithInput(std.In), tea.WithOutput(std.Out))
@@ -98,4 +94,79 @@ func runEditor(path string, builtin []byte, std IO) int {
 		return ExitUsage
 	}
 	return ExitOK
+}
+
+// recovery looks for what earlier sessions left of path: a live session is
+// another editor on the file (said, never offered); of the others the
+// newest is offered — as the file's unsaved edits when it is whole, of
+// this file and made on the content now on disk, otherwise under a new
+// name. A journal equal to the file is removed quietly.
+func recovery(path, stateDir string, base []byte, current *engine.Stack, newFile bool) (*editor.Recovery, string) {
+	var notes []string
+	var offer *store.Found
+	others := 0
+	for _, f := range store.FindJournals(path, stateDir, base) {
+		switch {
+		case f.Live:
+			notes = append(notes, fmt.Sprintf("another stackfit (process %d) is editing this file; a save here asks before overwriting its saves", f.PID))
+		case f.Err != nil:
+			notes = append(notes, f.Err.Error())
+		case f.Trusted() && !newFile && sameStack(f.Stack, current):
+			os.Remove(f.Path) // nothing unsaved after all
+		case offer == nil:
+			offer = &f
+		default:
+			others++
+		}
+	}
+	if others > 0 {
+		notes = append(notes, fmt.Sprintf("%d older recovery file(s) of this file are left beside it", others))
+	}
+	notice := strings.Join(notes, "; ")
+	if offer == nil {
+		return nil, notice
+	}
+	r := &editor.Recovery{Stack: offer.Stack, About: offer.Describe(), Discard: func() error {
+		if err := os.Remove(offer.Path); err != nil && !errors.Is(err, fs.ErrNotExist) {
+			return err
+		}
+		os.Remove(offer.Path + ".lock") // its session has ended
+		return nil
+	}}
+	if !offer.Trusted() {
+		r.AsNew = recoveredName(path)
+	}
+	return r, notice
+}
+
+// sameStack reports whether two stacks save to the same file.
+func sameStack(a, b *engine.Stack) bool {
+	if a == nil || b == nil {
+		return false
+	}
+	x, err1 := stackfile.Save(a)
+	y, err2 := stackfile.Save(b)
+	return err1 == nil && err2 == nil && string(x) == string(y)
+}
+
+// recoveredName is a name beside path that does not exist yet:
+// NAME.recovered.yaml, then NAME.recovered-2.yaml, ...
+func recoveredName(path string) string {
+	if path == "" {
+		path = "untitled.yaml"
+	}
+	ext := filepath.Ext(path)
+	stem := strings.TrimSuffix(path, ext)
+	if ext == "" {
+		ext = ".yaml"
+	}
+	for i := 1; ; i++ {
+		p := stem + ".recovered" + ext
+		if i > 1 {
+			p = fmt.Sprintf("%s.recovered-%d%s", stem, i, ext)
+		}
+		if _, err := os.Lstat(p); errors.Is(err, fs.ErrNotExist) || i > 999 {
+			return p
+		}
+	}
 }

@@ -32,19 +32,24 @@ func (m *Model) change(what string, fn func(s *engine.Stack) (addr, error)) tea.
 	if sel != nil {
 		m.selectAddr(sel)
 	}
-	m.record()
+	if err := m.record(); err != nil {
+		m.setStatus(what+" — but no recovery copy could be written ("+err.Error()+"); save soon", statusError)
+		return m.widthCmd()
+	}
 	m.setStatus(what, statusInfo)
 	return m.widthCmd()
 }
 
-// record writes the journal; a failure is shown but never stops editing.
-func (m *Model) record() {
+// record writes the journal. A failure never stops editing: the header
+// marks the edits unprotected until a write succeeds, and the error is
+// returned for the status line.
+func (m *Model) record() error {
 	if m.journal == nil {
-		return
+		return nil
 	}
-	if err := m.journal.Record(m.stack); err != nil {
-		m.setStatus("could not keep a recovery copy: "+err.Error(), statusError)
-	}
+	err := m.journal.Record(m.stack)
+	m.unprotected = err != nil
+	return err
 }
 
 // selectAddr moves the cursor to the item at a, unfolding its blocks.
@@ -93,7 +98,10 @@ func (m *Model) restore(s snapshot, verb string) tea.Cmd {
 	m.dirty = true
 	m.anchor = -1
 	m.recompute()
-	m.record()
+	if err := m.record(); err != nil {
+		m.setStatus(verb+s.what+" — but no recovery copy could be written ("+err.Error()+")", statusError)
+		return m.widthCmd()
+	}
 	m.setStatus(verb+s.what, statusInfo)
 	return m.widthCmd()
 }
@@ -155,8 +163,11 @@ func placed(l engine.Layer, inFork bool) (engine.Layer, error) {
 }
 
 // checkDepth refuses an item that would nest deeper than a stack file may
-// when placed at a.
+// when placed at a, or a list longer than a stack file may hold.
 func (m *Model) checkDepth(s *engine.Stack, a addr, l engine.Layer) error {
+	if ls, _ := list(s, a); ls != nil && len(*ls) >= engine.MaxSegment {
+		return fmt.Errorf("this list already holds %d items, the most a stack file takes; put some in a block", len(*ls))
+	}
 	if d := s.Levels(a) + innerLevels(&l); d > stackfile.MaxBlockDepth {
 		return fmt.Errorf("that would nest blocks, gates and forks %d deep; the limit is %d — flatten an inner one first", d, stackfile.MaxBlockDepth)
 	}

@@ -610,3 +610,25 @@ func TestForkEditing(t *testing.T) {
 		t.Errorf("reloaded: %v %v, editor %v %v", r.Output, r.Totals, m.res.Output, m.res.Totals)
 	}
 }
+
+// TestListLimitAtEditTime: a list at the most items a stack file holds
+// takes no more from the editor (copy, add), so every save loads back.
+func TestListLimitAtEditTime(t *testing.T) {
+	s := &engine.Stack{Input: engine.Shape{C: 8, H: 8, W: 8}}
+	s.Layers = make([]engine.Layer, engine.MaxSegment)
+	for i := range s.Layers {
+		s.Layers[i] = engine.Layer{Kind: engine.KindAct}
+	}
+	m := newModel(t, s, 100, 30)
+	press(m, "c")
+	if len(m.stack.Layers) != engine.MaxSegment || !strings.Contains(m.status, "the most a stack file takes") {
+		t.Fatalf("copy past the limit: %d items, %q", len(m.stack.Layers), m.status)
+	}
+	data, err := stackfile.Save(m.stack)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := stackfile.Load(data); err != nil {
+		t.Fatalf("the stack at the limit does not load: %v", err)
+	}
+}

@@ -16,6 +16,7 @@ import (
 type confirm struct {
 	question string
 	yes, no  func() tea.Cmd
+	reload   func() tea.Cmd // offered only when set
 }
 
 func (m *Model) ask(q string, yes, no func() tea.Cmd) {
@@ -31,6 +32,9 @@ func (m *Model) updateConfirm(msg tea.KeyMsg) tea.Cmd {
 	case key.Matches(msg, m.keys.Yes):
 		m.confirm, m.mode = nil, modeNormal
 		return c.yes()
+	case c.reload != nil && key.Matches(msg, m.keys.Reload):
+		m.confirm, m.mode = nil, modeNormal
+		return c.reload()
 	case key.Matches(msg, m.keys.No):
 		m.confirm, m.mode = nil, modeNormal
 		if c.no != nil {
@@ -69,17 +73,18 @@ func (m *Model) saveWith(path string, mode store.SaveMode) tea.Cmd {
 	data, note, err := m.files.Save(path, m.stack, base, mode)
 	switch {
 	case errors.Is(err, store.ErrChanged) && path == m.path && m.path != "":
-		m.ask(fmt.Sprintf("%s changed on disk since you opened it — y: overwrite it with your version · n: save yours under another name · esc: keep editing (o opens the file again)", filepath.Base(path)),
+		m.ask(fmt.Sprintf("%s changed on disk since you read it — y: overwrite · n: save as another file · r: reload it · esc: keep editing", filepath.Base(path)),
 			func() tea.Cmd { mode.Overwrite = true; return m.saveWith(path, mode) },
 			func() tea.Cmd { m.openPrompt(promptSaveAs, "save as", path+".mine"); return nil })
+		m.confirm.reload = func() tea.Cmd { return m.reload(path) }
 		return nil
 	case errors.Is(err, store.ErrChanged):
-		m.ask(fmt.Sprintf("%s already exists and this editor has not read it — y: replace it · n: choose another name · esc: keep editing", filepath.Base(path)),
+		m.ask(fmt.Sprintf("%s exists and was not read here — y: replace it · n: another name · esc: keep editing", filepath.Base(path)),
 			func() tea.Cmd { mode.Overwrite = true; return m.saveWith(path, mode) },
 			func() tea.Cmd { m.openPrompt(promptSaveAs, "save as", path); return nil })
 		return nil
 	case errors.Is(err, store.ErrReadOnly):
-		m.ask(fmt.Sprintf("%s is read-only — y: write it anyway (it stays read-only) · n: save under another name · esc: keep editing", filepath.Base(path)),
+		m.ask(fmt.Sprintf("%s is read-only — y: write anyway (stays read-only) · n: another name · esc: keep editing", filepath.Base(path)),
 			func() tea.Cmd { mode.ReadOnly = true; return m.saveWith(path, mode) },
 			func() tea.Cmd { m.openPrompt(promptSaveAs, "save as", path); return nil })
 		return nil
@@ -89,12 +94,13 @@ func (m *Model) saveWith(path string, mode store.SaveMode) tea.Cmd {
 	}
 	moved := path != m.path
 	m.path, m.base = path, data
-	m.dirty = false
+	m.dirty, m.unprotected = false, false // what is saved needs no recovery copy
 	if m.journal != nil {
 		err := m.journal.Clear()
 		if moved && m.journalFor != nil {
 			m.journal = m.journalFor(path)
 		}
+		m.journal.Rebase(data)
 		if err != nil {
 			m.setStatus("saved, but the recovery copy could not be removed: "+err.Error(), statusError)
 			return nil
@@ -108,6 +114,26 @@ func (m *Model) saveWith(path string, mode store.SaveMode) tea.Cmd {
 	return nil
 }
 
+// reload reads the file again after it changed on disk, as one undoable
+// change: u brings the edits made here back.
+func (m *Model) reload(path string) tea.Cmd {
+	s, data, err := m.files.Load(path)
+	if err != nil {
+		m.setStatus("not reloaded: "+err.Error(), statusError)
+		return nil
+	}
+	cmd := m.change("reloaded "+filepath.Base(path)+" from disk (u brings your edits back)", func(st *engine.Stack) (addr, error) {
+		*st = *s
+		return nil, nil
+	})
+	m.base = data
+	if m.journal != nil {
+		m.journal.Rebase(data)
+	}
+	m.dirty = false
+	return cmd
+}
+
 // load replaces the stack with s, read from path as data; undo history
 // starts afresh.
 func (m *Model) load(s *engine.Stack, data []byte, path string) {
@@ -117,6 +143,7 @@ func (m *Model) load(s *engine.Stack, data []byte, path string) {
 	m.stack, m.path, m.base, m.dirty = s, path, data, false
 	if m.journalFor != nil {
 		m.journal = m.journalFor(path)
+		m.journal.Rebase(data)
 	}
 	m.hist = history{}
 	m.cursor, m.offset, m.anchor = 0, 0, -1

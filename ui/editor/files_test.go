@@ -139,4 +139,15 @@ func TestTwoEditorsOneFile(t *testing.T) {
 	if data, _ := os.ReadFile(p); a.dirty || !strings.Contains(string(data), "# stem") {
 		t.Errorf("overwrite: dirty %v:\n%s", a.dirty, data)
 	}
+	// Another outside change; this time A reloads, and undo brings its
+	// own edit back.
+	os.WriteFile(p, []byte(orig), 0o644)
+	press(a, ">", "w", "r")
+	if a.mode != modeNormal || a.stack.Layers[0].Filters != 8 || a.dirty {
+		t.Fatalf("reload: filters %d, dirty %v, %q", a.stack.Layers[0].Filters, a.dirty, a.status)
+	}
+	press(a, "u")
+	if a.stack.Layers[0].Filters == 8 {
+		t.Error("undo after a reload did not bring the edit back")
+	}
 }

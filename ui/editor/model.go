@@ -6,7 +6,7 @@ package editor
 
 import (
 	"fmt"
-	"time"
+	"path/filepath"
 
 	"github.com/charmbracelet/bubbles/help"
 	tea "github.com/charmbracelet/bubbletea"
@@ -37,10 +37,9 @@ type Options struct {
 	// JournalFor returns where the unsaved edits of the stack file at path
 	// are kept ("" for an untitled stack); nil keeps no journal.
 	JournalFor func(path string) Journal
-	// Recovered holds unsaved edits found in the journal at start; the
-	// editor offers to restore them.
-	Recovered   *engine.Stack
-	RecoveredAt time.Time
+	// Recovery holds unsaved edits an earlier session left; the editor
+	// offers to restore them.
+	Recovery *Recovery
 	// Notice is shown on the status line at start.
 	Notice string
 }
@@ -59,10 +58,27 @@ type Files interface {
 	Save(path string, s *engine.Stack, base []byte, mode store.SaveMode) ([]byte, string, error)
 }
 
+// Recovery is what an earlier session's journal held.
+type Recovery struct {
+	Stack *engine.Stack
+	// About says what it is: when it was written, how many layers, and
+	// why it cannot be trusted as the file's edits, if so.
+	About string
+	// AsNew, when set, is the name to restore under instead of the file
+	// (a journal that is incomplete, of another file, or older than the
+	// file on disk must not replace it).
+	AsNew string
+	// Discard removes the journal; nil when there is nothing to remove.
+	Discard func() error
+}
+
 // Journal keeps unsaved edits so a crash loses nothing.
 type Journal interface {
 	// Record stores the current stack; it is called after every change.
 	Record(s *engine.Stack) error
+	// Rebase tells the journal the file's content as this session now
+	// knows it (after a load or a save; nil when not on disk).
+	Rebase(data []byte)
 	// Clear forgets the journal (after a save or a clean quit).
 	Clear() error
 }
@@ -82,14 +98,17 @@ type Model struct {
 
 	width, height int
 
-	stack      *engine.Stack
-	path       string
-	base       []byte // the file's content as last read or written; nil when never
-	dirty      bool
-	journal    Journal
-	journalFor func(string) Journal
-	files      Files
-	keysFile   string
+	stack *engine.Stack
+	path  string
+	base  []byte // the file's content as last read or written; nil when never
+	// unprotected: the last journal write failed, so a crash would lose
+	// the unsaved edits; the header says so until a write succeeds.
+	unprotected bool
+	dirty       bool
+	journal     Journal
+	journalFor  func(string) Journal
+	files       Files
+	keysFile    string
 
 	// Numbers of the current stack, recomputed on every change.
 	res    engine.Result
@@ -155,6 +174,7 @@ func New(opt Options) *Model {
 	m.help.Styles.FullKey, m.help.Styles.FullDesc = m.st.Label, m.st.Help
 	if m.journalFor != nil {
 		m.journal = m.journalFor(m.path)
+		m.journal.Rebase(m.base)
 	}
 	m.recompute()
 	if opt.NewFile {
@@ -164,25 +184,44 @@ func New(opt Options) *Model {
 	if opt.Notice != "" {
 		m.setStatus(opt.Notice, statusError)
 	}
-	if opt.Recovered != nil {
-		m.offerRecovery(opt.Recovered, opt.RecoveredAt)
+	if opt.Recovery != nil && opt.Recovery.Stack != nil {
+		m.offerRecovery(opt.Recovery)
 	}
 	return m
 }
 
-// offerRecovery asks whether to restore unsaved edits kept by the journal.
-func (m *Model) offerRecovery(s *engine.Stack, at time.Time) {
-	q := fmt.Sprintf("unsaved edits from %s were kept (%d layers) — restore them? (y: restore · n: discard)",
-		at.Format("Jan 2 15:04:05"), len(s.Layers))
+// offerRecovery asks whether to restore the unsaved edits an earlier
+// session left. Trusted ones replace the stack in place; others are
+// restored under a new name, so the file on disk is not overwritten.
+func (m *Model) offerRecovery(r *Recovery) {
+	q := r.About + " — restore them? (y: restore · n: discard · esc: decide later)"
+	if r.AsNew != "" {
+		q = r.About + " — y: restore as " + filepath.Base(r.AsNew) + " (the file stays) · n: discard · esc: later"
+	}
 	m.ask(q, func() tea.Cmd {
-		cmd := m.change("restored the unsaved edits", func(st *engine.Stack) (addr, error) {
-			*st = *s
+		what := "restored the unsaved edits"
+		if r.AsNew != "" {
+			m.path, m.base = r.AsNew, nil
+			if m.journalFor != nil {
+				m.journal = m.journalFor(m.path)
+				m.journal.Rebase(nil)
+			}
+			what += " as " + r.AsNew + " (not saved yet)"
+		}
+		cmd := m.change(what, func(st *engine.Stack) (addr, error) {
+			*st = *r.Stack
 			return nil, nil
 		})
+		if r.Discard != nil {
+			r.Discard() // its edits now live in this session's journal
+		}
 		return cmd
 	}, func() tea.Cmd {
-		if m.journal != nil {
-			m.journal.Clear()
+		if r.Discard != nil {
+			if err := r.Discard(); err != nil {
+				m.setStatus("could not remove the recovery file: "+err.Error(), statusError)
+				return nil
+			}
 		}
 		m.setStatus("discarded the unsaved edits", statusInfo)
 		return nil

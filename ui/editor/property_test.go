@@ -2,10 +2,13 @@ package editor
 
 import (
 	"bytes"
+	"errors"
 	"math/rand"
 	"reflect"
+	"strings"
 	"testing"
-	"time"
+
+	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
 	"stackfit/engine/stackfile"
@@ -28,6 +31,10 @@ var actions = [][]string{
 	{"enter", "tab", "backspace", "5", "enter"},
 	{"t", "ctrl+u", "1", "2", "8", "enter"},
 	{"m"}, {"u"}, {"U"},
+	{":", "f", "o", "r", "k", " ", "s", "p", "l", "i", "t", "enter"},
+	{":", "g", "a", "t", "e", " ", "c", "h", "a", "n", "n", "e", "l", "enter"},
+	{":", "c", "o", "n", "v", " ", "x", "2", " ", "k", "1", " ", "r", "o", "u", "n", "d", "8", "enter"},
+	{"b", "b", "b", "b"},
 }
 
 // TestRandomEditsUndoAll checks, for random action sequences, that every
@@ -79,13 +86,19 @@ func sameStack(a, b *engine.Stack) bool {
 
 // fakeJournal records what the editor asks of its journal.
 type fakeJournal struct {
+	fail    error // what Record returns
 	records int
 	last    *engine.Stack
 	cleared int
 }
 
-func (f *fakeJournal) Record(s *engine.Stack) error { f.records++; f.last = s.Clone(); return nil }
-func (f *fakeJournal) Clear() error                 { f.cleared++; return nil }
+func (f *fakeJournal) Record(s *engine.Stack) error {
+	f.records++
+	f.last = s.Clone()
+	return f.fail
+}
+func (f *fakeJournal) Clear() error  { f.cleared++; return nil }
+func (f *fakeJournal) Rebase([]byte) {}
 
 func TestJournalAndRecovery(t *testing.T) {
 	j := &fakeJournal{}
@@ -107,24 +120,63 @@ func TestJournalAndRecovery(t *testing.T) {
 	// Recovery: restore.
 	edited := example(t)
 	edited.Layers = edited.Layers[:5]
-	opts.Recovered, opts.RecoveredAt = edited, time.Date(2026, 12, 2, 1, 2, 3, 0, time.UTC)
+	discarded := 0
+	opts.Recovery = &Recovery{Stack: edited, About: "unsaved edits from Dec 2 01:02:03 (5 layers)", Discard: func() error { discarded++; return nil }}
 	m2 := New(opts)
 	if m2.mode != modeConfirm || !reflect.DeepEqual(len(m2.stack.Layers), 27) {
 		t.Fatal("no recovery question")
 	}
 	press(m2, "y")
-	if len(m2.stack.Layers) != 5 || !m2.dirty {
-		t.Errorf("restore gave %d layers", len(m2.stack.Layers))
+	if len(m2.stack.Layers) != 5 || !m2.dirty || discarded != 1 {
+		t.Errorf("restore gave %d layers, discarded the old journal %d times", len(m2.stack.Layers), discarded)
 	}
 	press(m2, "u") // the file's version is one undo away
 	if len(m2.stack.Layers) != 27 {
 		t.Error("undo after restore did not return to the file's version")
 	}
 	// Recovery: discard.
-	j.cleared = 0
+	discarded = 0
 	m3 := New(opts)
 	press(m3, "n")
-	if len(m3.stack.Layers) != 27 || j.cleared != 1 {
-		t.Error("discard did not keep the file's version and clear the journal")
+	if len(m3.stack.Layers) != 27 || discarded != 1 {
+		t.Error("discard did not keep the file's version and remove the old journal")
+	}
+	// An untrusted journal is restored under a new name; the file stays.
+	opts.Recovery.AsNew = "g.recovered.yaml"
+	m4 := New(opts)
+	if !strings.Contains(m4.confirm.question, "restore as g.recovered.yaml") {
+		t.Errorf("question %q", m4.confirm.question)
+	}
+	press(m4, "y")
+	if m4.path != "g.recovered.yaml" || m4.base != nil || len(m4.stack.Layers) != 5 {
+		t.Errorf("restored as %q with %d layers", m4.path, len(m4.stack.Layers))
+	}
+}
+
+// TestUnprotectedMark: when the journal cannot be written (a full disk)
+// the header says so, and keeps saying so through later messages, until a
+// write succeeds or the stack is saved.
+func TestUnprotectedMark(t *testing.T) {
+	j := &fakeJournal{fail: errors.New("no space left on device")}
+	m := New(Options{Stack: example(t), Path: t.TempDir() + "/g.yaml", Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(),
+		Files: store.Disk{}, JournalFor: func(string) Journal { return j }})
+	m.Update(tea.WindowSizeMsg{Width: 100, Height: 30})
+	press(m, ">")
+	if !strings.Contains(view(m), "no recovery copy") || !strings.Contains(m.status, "no space left") {
+		t.Fatalf("a failed journal write is not shown:\n%s", view(m))
+	}
+	press(m, "j", "k") // later keys and messages do not hide it
+	if !strings.Contains(view(m), "no recovery copy") {
+		t.Error("the mark went away while still unprotected")
+	}
+	j.fail = nil
+	press(m, "<")
+	if strings.Contains(view(m), "no recovery copy") {
+		t.Error("the mark stayed after a journal write succeeded")
+	}
+	j.fail = errors.New("read-only file system")
+	press(m, ">", "w")
+	if strings.Contains(view(m), "no recovery copy") || m.dirty {
+		t.Errorf("the mark stayed after a save: %q", m.status)
 	}
 }

@@ -9,6 +9,7 @@ import (
 	"github.com/charmbracelet/x/ansi"
 
 	"stackfit/engine"
+	"stackfit/engine/textsafe"
 )
 
 // View draws the screen from state computed in Update; it renders only the
@@ -88,12 +89,15 @@ func (m *Model) shown() (*engine.Result, *engine.Memory, engine.Fit, *engine.Sta
 	return &m.res, &m.mem, m.fit, m.stack
 }
 
+// titleLine is the top line: the stack's name, its input and output, and
+// the file. The name and the file name are shown terminal-safe, as is every
+// text from the stack or the user that the editor draws (textsafe.Line).
 func (m *Model) titleLine() string {
-	name := m.stack.Name
+	name := textsafe.Line(m.stack.Name)
 	if name == "" {
 		name = "untitled"
 	}
-	file := m.path
+	file := textsafe.Line(m.path)
 	if file == "" {
 		file = "not saved yet"
 	}
@@ -107,6 +111,9 @@ func (m *Model) titleLine() string {
 	}
 	left := m.st.Title.Render("stackfit") + " │ " + name + mark + " │ " + m.stack.Input.String() + " → " + out
 	r := m.st.Dim.Render(file)
+	if m.unprotected {
+		r = m.st.Error.Render("⚠ no recovery copy") + " " + r
+	}
 	gap := m.width - ansi.StringWidth(left) - ansi.StringWidth(r)
 	if gap < 1 {
 		return fit(left, m.width)
@@ -219,6 +226,7 @@ func (m *Model) itemLine(it *item, lay layout, selected bool) string {
 	if l.Name != "" {
 		label += " [" + l.Name + "]"
 	}
+	label = textsafe.Line(label) // the name, and a merge's source in the summary
 	num := right(fmt.Sprintf("%d", it.addr[len(it.addr)-1]+1), m.numWidth)
 	cur := " "
 	if selected {
@@ -339,11 +347,13 @@ func (m *Model) detailLines() []string {
 		}
 		head += fmt.Sprintf(" · %s → %s", r.In, out)
 	}
-	out = append(out, m.st.Label.Render(head))
+	out = append(out, m.st.Label.Render(textsafe.Line(head)))
 	if engine.SpecOf(it.layer.Kind).Body {
 		out = append(out, m.blockLines(it, res, mem)...)
 	} else {
-		out = append(out, res.Explain(row)...)
+		for _, l := range res.Explain(row) {
+			out = append(out, textsafe.Line(l)) // a merge's explanation quotes its source
+		}
 		if row < len(mem.Rows) && mem.Activations > 0 {
 			if b := mem.Rows[row]; b > 0 {
 				out = append(out, fmt.Sprintf("keeps %s for the backward pass at micro-batch %d (%.1f%% of %s activations)",
@@ -366,7 +376,7 @@ func (m *Model) detailLines() []string {
 			case engine.SevWarning:
 				st = m.st.Warning
 			}
-			out = append(out, st.Render(d.Severity.String()+" "+res.Rows[i].Path.String()+": "+d.Message()))
+			out = append(out, st.Render(d.Severity.String()+" "+res.Rows[i].Path.String()+": "+textsafe.Line(d.Message())))
 		}
 	}
 	return out
@@ -562,8 +572,10 @@ func (m *Model) bottomView() string {
 	switch m.mode {
 	case modePrompt:
 		p := m.prompt
-		line := m.st.Label.Render(p.label+": ") + p.input.view(m.st.Cursor)
-		hint := p.hint
+		// The field itself is safe: the text input drops control
+		// characters from what it is given or typed.
+		line := m.st.Label.Render(textsafe.Line(p.label)+": ") + p.input.view(m.st.Cursor)
+		hint := textsafe.Line(p.hint)
 		if p.bad {
 			hint = m.st.Error.Render(hint)
 		} else {
@@ -571,9 +583,9 @@ func (m *Model) bottomView() string {
 		}
 		return fit(line, m.width) + "\n" + fit(hint, m.width)
 	case modeConfirm:
-		return fit(m.st.Warning.Render(m.confirm.question), m.width) + "\n" + h.ShortHelpView(m.keys.ConfirmHelp())
+		return fit(m.st.Warning.Render(textsafe.Line(m.confirm.question)), m.width) + "\n" + h.ShortHelpView(m.keys.ConfirmHelp())
 	}
-	status := m.status
+	status := textsafe.Line(m.status) // messages quote names, file names and errors
 	if m.statusK == statusError {
 		status = m.st.Error.Render(status)
 	}

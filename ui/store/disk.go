@@ -24,18 +24,21 @@ var ErrReadOnly = errors.New("read-only")
 type Disk struct{}
 
 // Load reads the stack file at path and returns it with the bytes read
-// (the stack is parsed from exactly those bytes).
+// (the stack is parsed from exactly those bytes, read once).
 func (Disk) Load(path string) (*engine.Stack, []byte, error) {
-	if _, err := LoadFile(path); err != nil { // its checks and messages
-		return nil, nil, err
-	}
 	data, err := readFile(path)
 	if err != nil {
-		return nil, nil, fmt.Errorf("read %s: %w", path, err)
+		return nil, nil, fmt.Errorf("open stack file: %w", err)
 	}
 	s, err := stackfile.Load(data)
+	var list stackfile.ErrorList
+	if errors.As(err, &list) {
+		for _, e := range list {
+			e.File = path
+		}
+	}
 	if err != nil {
-		return nil, nil, fmt.Errorf("%s changed while it was read; open it again: %w", path, err)
+		return nil, nil, err
 	}
 	return s, data, nil
 }
@@ -107,7 +110,8 @@ func readOnly(path string) bool {
 
 // readFile reads a whole file of at most stackfile.MaxFileBytes.
 func readFile(path string) ([]byte, error) {
-	f, err := os.Open(path)
+	f, err := openRegular(path) // never blocks on a pipe or a device
+
 	if err != nil {
 		return nil, err
 	}
