@@ -127,8 +127,9 @@ func TestExportBuildsInPyTorch(t *testing.T) {
 		cases = append(cases, probeCase{Name: name, Path: p, CPU: an.Result.Totals.MACs <= cpuMACs})
 		want[name] = an
 	}
-	files, _ := filepath.Glob("../../testdata/*/*.yaml")
-	for _, f := range files {
+	paths, _ := filepath.Glob("../../testdata/*/*.yaml")
+	files := map[string]bool{} // the stack names built from files
+	for _, f := range paths {
 		data, err := os.ReadFile(f)
 		if err != nil {
 			t.Fatal(err)
@@ -139,6 +140,7 @@ func TestExportBuildsInPyTorch(t *testing.T) {
 		}
 		rel, _ := filepath.Rel("../../testdata", f)
 		add(strings.TrimSuffix(strings.ReplaceAll(rel, string(filepath.Separator), "-"), ".yaml"), s, f)
+		files[s.Name] = true
 	}
 	// The reference stacks cover every kind, odd sizes, same padding, crops.
 	var doc struct {
@@ -161,6 +163,9 @@ func TestExportBuildsInPyTorch(t *testing.T) {
 		s, err := stackfile.Load(c.Stack)
 		if err != nil {
 			t.Fatal(err)
+		}
+		if files[s.Name] {
+			continue // a published file at a smaller input: built above already
 		}
 		name := fmt.Sprintf("reference-%02d", i)
 		add(name, s, name)
