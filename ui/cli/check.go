@@ -37,6 +37,9 @@ func runCheck(args []string, std IO) int {
 	switch {
 	case r.Errors > 0:
 		fmt.Fprintf(std.Out, "%s: memory: not estimated: the stack has %d error(s)\n", name, r.Errors)
+	case m.Budget == 0 && an.Stack.Training.Budget > 0:
+		fmt.Fprintf(std.Out, "%s: memory: %s per GPU at batch %d (estimate); not checked: --budget none removes the file's budget of %s\n",
+			name, engine.FormatBytes(m.Total), max(an.Training.Batch, 1), engine.FormatBytes(an.Stack.Training.Budget))
 	case m.Budget == 0:
 		fmt.Fprintf(std.Out, "%s: memory: %s per GPU at batch %d (estimate); no budget to check against (--budget SIZE or auto)\n",
 			name, engine.FormatBytes(m.Total), max(an.Training.Batch, 1))

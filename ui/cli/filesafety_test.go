@@ -100,7 +100,7 @@ func TestBudgetZero(t *testing.T) {
 	}
 	// The example file sets budget: 24GiB (engine/examples/fruit-grader.yaml).
 	out, errs, code := run(t, "", "check", example, "--budget", "none")
-	if code != ExitOK || !strings.Contains(out, "no budget to check against") {
+	if code != ExitOK || !strings.Contains(out, "not checked: --budget none removes the file's budget of 24.0 GiB") {
 		t.Errorf("--budget none: exit %d, %s%s", code, out, errs)
 	}
 	out, _, _ = run(t, "", "help", "check")
