@@ -119,44 +119,39 @@ func (r *Result) enter(lvl int, c int64, block bool) {
 	}
 }
 
-// countRows returns how many rows ls expands to, saturating past MaxRows.
+// countRows returns how many rows ls expands to — the real number, so that
+// a refusal can state it — saturating only at the largest int64.
 func countRows(ls []Layer, depth int) int64 {
 	var n int64
+	var ov bool
 	for i := range ls {
 		l := &ls[i]
 		switch l.Kind {
 		case KindGate:
-			n += countRows(l.Body, depth+1) + 1 // the body and the multiplication
+			n = add(&ov, n, add(&ov, countRows(l.Body, depth+1), 1)) // the body and the multiplication
 		case KindFork:
-			n++ // the join
+			n = add(&ov, n, 1) // the join
 			for j := range l.Body {
 				if l.Body[j].Kind == KindBranch {
-					n += countRows(l.Body[j].Body, depth+1)
+					n = add(&ov, n, countRows(l.Body[j].Body, depth+1))
 				} else {
-					n++ // a misplaced item: one error row
-				}
-				if n > MaxRows {
-					return MaxRows + 1
+					n = add(&ov, n, 1) // a misplaced item: one error row
 				}
 			}
 		case KindBlock:
 			per := countRows(l.Body, depth+1)
 			if l.Residual {
-				per += 4 // shortcut, its norm, the addition, the activation
+				per = add(&ov, per, 4) // shortcut, its norm, the addition, the activation
 			}
 			if l.DenseLinks {
-				per++ // the concatenation
+				per = add(&ov, per, 1) // the concatenation
 			}
-			reps := max(l.Repeat, 1)
-			if per > 0 && reps > (MaxRows+1)/per {
-				return MaxRows + 1
-			}
-			n += per * reps
+			n = add(&ov, n, mul(&ov, per, max(l.Repeat, 1)))
 		default:
-			n++
+			n = add(&ov, n, 1)
 		}
-		if n > MaxRows {
-			return MaxRows + 1
+		if ov {
+			return math.MaxInt64
 		}
 	}
 	return n

@@ -221,3 +221,18 @@ func TestItemPath(t *testing.T) {
 		t.Errorf("levels %d %d %d", s.Levels([]int{2, 1, 0}), s.Levels([]int{3, 0}), s.Levels([]int{0}))
 	}
 }
+
+// TestTooManyRowsStatesSize: a small file whose repeats expand past
+// MaxRows is refused with the size it really expands to, not the limit
+// plus one.
+func TestTooManyRowsStatesSize(t *testing.T) {
+	inner := Layer{Kind: KindBlock, Repeat: 1024, Body: []Layer{{Kind: KindAct}, {Kind: KindAct}}}
+	s := &Stack{Input: Shape{C: 8, H: 8, W: 8}, Layers: []Layer{{Kind: KindBlock, Repeat: 1024, Body: []Layer{inner}}}}
+	r := Evaluate(s)
+	if r.Errors != 1 || len(r.Diags) != 1 || r.Diags[0].Code != ErrTooManyRows {
+		t.Fatalf("diagnostics %v", r.Diags)
+	}
+	if msg := r.Diags[0].Message(); !strings.Contains(msg, "2097152 layers") {
+		t.Errorf("message %q does not state the 1024·1024·2 = 2,097,152 rows", msg)
+	}
+}
