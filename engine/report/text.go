@@ -1,6 +1,7 @@
 package report
 
 import (
+	"bufio"
 	"fmt"
 	"io"
 	"strconv"
@@ -20,7 +21,57 @@ func WriteText(w io.Writer, an *engine.Analysis) error {
 		title = "(unnamed stack)"
 	}
 	fmt.Fprintf(w, "%s  ·  input %s\n\n", textsafe.Line(title), r.Input)
-	t := table{align: []byte("llrrrrr")}
+	// The layer table is streamed: one pass finds the column widths, a
+	// second writes the lines, so a stack of a million rows is never held
+	// as text.
+	t := &table{align: []byte("llrrrrr"), measure: true}
+	layerLines(t, an)
+	bw := bufio.NewWriterSize(w, 64<<10)
+	t.measure, t.out = false, bw
+	layerLines(t, an)
+	if t.err != nil {
+		return t.err
+	}
+	if err := bw.Flush(); err != nil {
+		return err
+	}
+	fmt.Fprintf(w, "\ntotal  %s params (%s)  ·  %s buffers  ·  %s MACs per sample\n",
+		engine.FormatCount(r.Totals.Params), engine.GroupDigits(r.Totals.Params),
+		engine.GroupDigits(r.Totals.Buffers), engine.FormatCount(r.Totals.MACs))
+	writeMemory(w, an)
+	if len(r.Diags) > 0 {
+		fmt.Fprintf(w, "\n%d %s, %d %s, %d %s\n", r.Errors, pl(r.Errors, "error", "errors"), r.Warnings, pl(r.Warnings, "warning", "warnings"), r.Notes, pl(r.Notes, "note", "notes"))
+		for _, d := range r.Diags {
+			fmt.Fprintf(w, "  %s %s\n", d.Severity, textsafe.Line(r.Describe(d)))
+		}
+	}
+	return nil
+}
+
+func pl(n int, one, many string) string {
+	if n == 1 {
+		return one
+	}
+	return many
+}
+
+// fpair writes a receptive field or jump: "7" when square, "7×9" otherwise,
+// with up to two decimals for fractional values.
+func fpair(p engine.FPair) string {
+	f := func(v float64) string { return strconv.FormatFloat(v, 'f', -1, 64) }
+	if p.H == p.W {
+		return f(p.H)
+	}
+	return f(p.H) + "×" + f(p.W)
+}
+
+// table lays out rows of cells in columns, each aligned left ('l') or
+// right ('r'), two spaces apart. Every cell is made terminal-safe as it is
+// added (layer names and merge sources come from the stack file).
+// layerLines adds the layer table's lines to t: a header, a line per
+// block repeat or branch a row enters, and a line per row.
+func layerLines(t *table, an *engine.Analysis) {
+	s, r := an.Stack, an.Result
 	t.add("at", "layer", "out C×H×W", "params", "MACs", "rf", "jump")
 	var prev engine.Path
 	for i := range r.Rows {
@@ -69,81 +120,73 @@ func WriteText(w io.Writer, an *engine.Analysis) error {
 		t.add(row.Path.String(), label, row.Out.String(), engine.FormatCount(row.Params),
 			engine.FormatCount(row.MACs), fpair(row.RF), fpair(row.Jump))
 	}
-	if err := t.write(w); err != nil {
-		return err
-	}
-	fmt.Fprintf(w, "\ntotal  %s params (%s)  ·  %s buffers  ·  %s MACs per sample\n",
-		engine.FormatCount(r.Totals.Params), engine.GroupDigits(r.Totals.Params),
-		engine.GroupDigits(r.Totals.Buffers), engine.FormatCount(r.Totals.MACs))
-	writeMemory(w, an)
-	if len(r.Diags) > 0 {
-		fmt.Fprintf(w, "\n%d %s, %d %s, %d %s\n", r.Errors, pl(r.Errors, "error", "errors"), r.Warnings, pl(r.Warnings, "warning", "warnings"), r.Notes, pl(r.Notes, "note", "notes"))
-		for _, d := range r.Diags {
-			fmt.Fprintf(w, "  %s %s\n", d.Severity, textsafe.Line(r.Describe(d)))
-		}
-	}
-	return nil
 }
 
-func pl(n int, one, many string) string {
-	if n == 1 {
-		return one
-	}
-	return many
-}
-
-// fpair writes a receptive field or jump: "7" when square, "7×9" otherwise,
-// with up to two decimals for fractional values.
-func fpair(p engine.FPair) string {
-	f := func(v float64) string { return strconv.FormatFloat(v, 'f', -1, 64) }
-	if p.H == p.W {
-		return f(p.H)
-	}
-	return f(p.H) + "×" + f(p.W)
-}
-
-// table lays out rows of cells in columns, each aligned left ('l') or
-// right ('r'), two spaces apart. Every cell is made terminal-safe as it is
-// added (layer names and merge sources come from the stack file).
 type table struct {
-	align []byte
-	rows  [][]string
+	// measure: add only widens the columns; out: add writes the line at
+	// once (after a measuring pass); otherwise add keeps the row for write.
+	measure bool
+	out     *bufio.Writer
+	err     error
+	widths  []int
+	align   []byte
+	rows    [][]string
 }
 
 func (t *table) add(cells ...string) {
 	for i, c := range cells {
 		cells[i] = textsafe.Line(c)
 	}
-	t.rows = append(t.rows, cells)
+	switch {
+	case t.measure:
+		t.widen(cells)
+	case t.out != nil:
+		if t.err == nil {
+			t.err = t.line(t.out, cells)
+		}
+	default:
+		t.rows = append(t.rows, cells)
+	}
 }
 
-func (t *table) write(w io.Writer) error {
-	widths := make([]int, len(t.align))
-	for _, r := range t.rows {
-		for i, c := range r {
-			widths[i] = max(widths[i], utf8.RuneCountInString(c))
-		}
+func (t *table) widen(cells []string) {
+	if t.widths == nil {
+		t.widths = make([]int, len(t.align))
 	}
-	var b strings.Builder
+	for i, c := range cells {
+		t.widths[i] = max(t.widths[i], utf8.RuneCountInString(c))
+	}
+}
+
+// write writes the rows kept by add.
+func (t *table) write(w io.Writer) error {
 	for _, r := range t.rows {
-		b.Reset()
-		for i, c := range r {
-			pad := strings.Repeat(" ", widths[i]-utf8.RuneCountInString(c))
-			if i > 0 {
-				b.WriteString("  ")
-			}
-			if t.align[i] == 'r' {
-				b.WriteString(pad + c)
-			} else {
-				b.WriteString(c + pad)
-			}
-		}
-		b.WriteByte('\n')
-		if _, err := io.WriteString(w, strings.TrimRight(b.String(), " \n")+"\n"); err != nil {
+		t.widen(r)
+	}
+	for _, r := range t.rows {
+		if err := t.line(w, r); err != nil {
 			return err
 		}
 	}
 	return nil
+}
+
+// line writes one row padded to the column widths.
+func (t *table) line(w io.Writer, r []string) error {
+	var b strings.Builder
+	for i, c := range r {
+		pad := strings.Repeat(" ", max(t.widths[i]-utf8.RuneCountInString(c), 0))
+		if i > 0 {
+			b.WriteString("  ")
+		}
+		if t.align[i] == 'r' {
+			b.WriteString(pad + c)
+		} else {
+			b.WriteString(c + pad)
+		}
+	}
+	_, err := io.WriteString(w, strings.TrimRight(b.String(), " ")+"\n")
+	return err
 }
 
 // prefix returns the first n segments of p.
