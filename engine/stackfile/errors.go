@@ -83,9 +83,10 @@ func (l ErrorList) Unwrap() []error {
 	return out
 }
 
-// suggest returns the candidate closest to s by edit distance when it is
-// close enough to be a likely typo (one edit per four letters, at least one).
-func suggest(s string, candidates []string) string {
+// Suggest returns the candidate closest to s by edit distance when it is
+// close enough to be a likely typo (one edit per four letters, at least
+// one), or "".
+func Suggest(s string, candidates []string) string {
 	best, bestD := "", 2+len(s)/4
 	for _, c := range candidates {
 		if d := editDistance(strings.ToLower(s), c); d < bestD {
@@ -99,6 +100,9 @@ func suggest(s string, candidates []string) string {
 // insertions, deletions, substitutions and swaps of neighbours cost one.
 func editDistance(a, b string) int {
 	ra, rb := []rune(a), []rune(b)
+	if len(ra) > 64 { // no kind, key or command is that long
+		return len(ra)
+	}
 	d := make([][]int, len(ra)+1)
 	for i := range d {
 		d[i] = make([]int, len(rb)+1)

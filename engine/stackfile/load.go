@@ -267,7 +267,7 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 }
 
 func (d *decoder) unknown(k *yaml.Node, field string, allowed []string) {
-	if hint := suggest(k.Value, allowed); hint != "" {
+	if hint := Suggest(k.Value, allowed); hint != "" {
 		d.fail(k, field, ErrUnknown, "unknown key %q; did you mean %q? (allowed: %s)", k.Value, hint, strings.Join(allowed, ", "))
 		return
 	}
@@ -370,7 +370,7 @@ func (d *decoder) choice(n *yaml.Node, field string, options []string) (int, boo
 			return i, true
 		}
 	}
-	if hint := suggest(n.Value, options); hint != "" {
+	if hint := Suggest(n.Value, options); hint != "" {
 		d.fail(n, field, ErrRange, "%q is not one of %s; did you mean %q?", n.Value, strings.Join(options, ", "), hint)
 	} else {
 		d.fail(n, field, ErrRange, "%q is not one of %s", n.Value, strings.Join(options, ", "))

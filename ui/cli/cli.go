@@ -83,53 +83,22 @@ var commands = []string{"report", "check", "export", "example", "help"}
 // substitutions and swaps of neighbours count one each), or the one
 // command it begins, as "; did you mean %q?" — or "".
 func didYouMean(name string) string {
-	lower := strings.ToLower(name)
-	best, bestD := "", 2+len(lower)/4
-	var prefixed []string
-	for _, c := range commands {
-		if d := editDistance(lower, c); d < bestD {
-			best, bestD = c, d
+	best := stackfile.Suggest(name, commands)
+	if lower := strings.ToLower(name); best == "" && len(lower) >= 2 {
+		var prefixed []string
+		for _, c := range commands {
+			if strings.HasPrefix(c, lower) {
+				prefixed = append(prefixed, c)
+			}
 		}
-		if len(lower) >= 2 && strings.HasPrefix(c, lower) {
-			prefixed = append(prefixed, c)
+		if len(prefixed) == 1 {
+			best = prefixed[0]
 		}
-	}
-	if best == "" && len(prefixed) == 1 {
-		best = prefixed[0]
 	}
 	if best == "" {
 		return ""
 	}
 	return fmt.Sprintf("; did you mean %q?", best)
-}
-
-// editDistance is the optimal-string-alignment distance between a and b.
-func editDistance(a, b string) int {
-	ra, rb := []rune(a), []rune(b)
-	if len(ra) > 64 { // no command is that long
-		return len(ra)
-	}
-	d := make([][]int, len(ra)+1)
-	for i := range d {
-		d[i] = make([]int, len(rb)+1)
-		d[i][0] = i
-	}
-	for j := range d[0] {
-		d[0][j] = j
-	}
-	for i := 1; i <= len(ra); i++ {
-		for j := 1; j <= len(rb); j++ {
-			cost := 1
-			if ra[i-1] == rb[j-1] {
-				cost = 0
-			}
-			d[i][j] = min(d[i-1][j]+1, d[i][j-1]+1, d[i-1][j-1]+cost)
-			if i > 1 && j > 1 && ra[i-1] == rb[j-2] && ra[i-2] == rb[j-1] {
-				d[i][j] = min(d[i][j], d[i-2][j-2]+1)
-			}
-		}
-	}
-	return d[len(ra)][len(rb)]
 }
 
 func fileExists(p string) bool {

@@ -25,23 +25,7 @@ type Disk struct{}
 
 // Load reads the stack file at path and returns it with the bytes read
 // (the stack is parsed from exactly those bytes, read once).
-func (Disk) Load(path string) (*engine.Stack, []byte, error) {
-	data, err := readFile(path)
-	if err != nil {
-		return nil, nil, fmt.Errorf("open stack file: %w", err)
-	}
-	s, err := stackfile.Load(data)
-	var list stackfile.ErrorList
-	if errors.As(err, &list) {
-		for _, e := range list {
-			e.File = path
-		}
-	}
-	if err != nil {
-		return nil, nil, err
-	}
-	return s, data, nil
-}
+func (Disk) Load(path string) (*engine.Stack, []byte, error) { return loadFile(path) }
 
 // SaveMode relaxes the checks a save makes.
 type SaveMode struct {

@@ -14,17 +14,23 @@ import (
 // anything but a regular file (a named pipe, a device, a socket, a folder)
 // is refused without reading it (ErrNotRegular), so loading never waits.
 func LoadFile(path string) (*engine.Stack, error) {
+	s, _, err := loadFile(path)
+	return s, err
+}
+
+// loadFile is LoadFile that also returns the bytes it parsed.
+func loadFile(path string) (*engine.Stack, []byte, error) {
 	f, err := openRegular(path)
 	if errors.Is(err, ErrNotRegular) {
-		return nil, err
+		return nil, nil, err
 	}
 	if err != nil {
-		return nil, fmt.Errorf("open stack file: %w", err)
+		return nil, nil, fmt.Errorf("open stack file: %w", err)
 	}
 	defer f.Close()
 	data, err := readLimited(f, stackfile.MaxFileBytes)
 	if err != nil {
-		return nil, fmt.Errorf("read %s: %w", path, err)
+		return nil, nil, fmt.Errorf("read %s: %w", path, err)
 	}
 	s, err := stackfile.Load(data)
 	var list stackfile.ErrorList
@@ -33,7 +39,10 @@ func LoadFile(path string) (*engine.Stack, error) {
 			e.File = path
 		}
 	}
-	return s, err
+	if err != nil {
+		return nil, nil, err
+	}
+	return s, data, nil
 }
 
 // readLimited reads r to the end, failing once more than limit bytes come.
