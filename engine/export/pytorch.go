@@ -4,6 +4,7 @@
 package export
 
 import (
+	"bufio"
 	"errors"
 	"fmt"
 	"io"
@@ -30,29 +31,29 @@ func PyTorch(w io.Writer, an *engine.Analysis, source string) error {
 	if len(r.Rows) == 0 {
 		return fmt.Errorf("%w: the stack has no layers", ErrExport)
 	}
-	g := &gen{an: an, r: r, taps: map[string]string{}}
+	// The walk runs three times: once to find any error before a byte is
+	// written, then once for __init__'s lines and once for forward's, each
+	// written as it is made, so a module of any size is never held whole.
+	g := newGen(an, nil, phaseCheck)
 	g.walk(an.Stack.Layers, engine.Path{})
 	if g.err != nil {
 		return g.err
 	}
 	class := className(an.Stack.Name)
-	var b strings.Builder
-	g.header(&b, source)
+	b := bufio.NewWriterSize(w, 64<<10)
+	var head strings.Builder
+	g.header(&head, source)
+	b.WriteString(head.String())
 	b.WriteString(prelude)
-	fmt.Fprintf(&b, "\n\n\nclass %s(nn.Module):\n", class)
-	fmt.Fprintf(&b, "    \"\"\"%s → %s; every tensor is N×C×H×W.\"\"\"\n\n", an.Stack.Input, r.Output)
+	fmt.Fprintf(b, "\n\n\nclass %s(nn.Module):\n", class)
+	fmt.Fprintf(b, "    \"\"\"%s → %s; every tensor is N×C×H×W.\"\"\"\n\n", an.Stack.Input, r.Output)
 	b.WriteString("    def __init__(self):\n        super().__init__()\n")
-	for _, l := range g.init {
-		b.WriteString("        " + l + "\n")
-	}
+	newGen(an, b, phaseInit).walk(an.Stack.Layers, engine.Path{})
 	b.WriteString("\n    def forward(self, x):\n")
-	for _, l := range g.fwd {
-		b.WriteString("        " + l + "\n")
-	}
+	newGen(an, b, phaseForward).walk(an.Stack.Layers, engine.Path{})
 	b.WriteString("        return x\n")
-	fmt.Fprintf(&b, "\n\nINPUT_SHAPE = (%d, %d, %d)\nMODEL = %s\n", an.Stack.Input.C, an.Stack.Input.H, an.Stack.Input.W, class)
-	_, err := io.WriteString(w, b.String())
-	return err
+	fmt.Fprintf(b, "\n\nINPUT_SHAPE = (%d, %d, %d)\nMODEL = %s\n", an.Stack.Input.C, an.Stack.Input.H, an.Stack.Input.W, class)
+	return b.Flush()
 }
 
 // prelude holds the helpers the generated class may use.
@@ -236,15 +237,45 @@ func reserved(s string) bool {
 	return false
 }
 
-// gen builds the __init__ and forward lines, consuming rows in order.
+// phase says which of the class's two methods a walk writes.
+type phase int
+
+const (
+	phaseCheck   phase = iota // write nothing; find errors
+	phaseInit                 // write __init__'s lines
+	phaseForward              // write forward's lines
+)
+
+// gen makes the __init__ and forward lines, consuming rows in order, and
+// writes those of its phase.
 type gen struct {
-	an   *engine.Analysis
-	r    *engine.Result
-	next int // next row to emit
-	init []string
-	fwd  []string
-	taps map[string]string // layer name → Python variable
-	err  error
+	an    *engine.Analysis
+	r     *engine.Result
+	next  int // next row to emit
+	out   *bufio.Writer
+	phase phase
+	taps  map[string]string // layer name → Python variable
+	err   error
+}
+
+func newGen(an *engine.Analysis, out *bufio.Writer, ph phase) *gen {
+	return &gen{an: an, r: an.Result, out: out, phase: ph, taps: map[string]string{}}
+}
+
+// initLine writes one line of __init__ in the init phase.
+func (g *gen) initLine(s string) {
+	if g.phase == phaseInit {
+		g.out.WriteString("        " + s + "\n")
+	}
+}
+
+// fwdLine writes lines of forward in the forward phase.
+func (g *gen) fwdLine(lines ...string) {
+	if g.phase == phaseForward {
+		for _, s := range lines {
+			g.out.WriteString("        " + s + "\n")
+		}
+	}
 }
 
 func ident(p engine.Path) string {
@@ -277,14 +308,14 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 		case engine.KindGate:
 			gp := p.Append(1)
 			saved := "g" + strings.TrimPrefix(ident(gp), "l")
-			g.fwd = append(g.fwd, saved+" = x")
+			g.fwdLine(saved + " = x")
 			g.walk(l.Body, gp) // x becomes the gate
 			if g.next >= len(g.r.Rows) || g.r.Rows[g.next].Role != engine.RoleGate {
 				g.fail("gate rows out of order near row %d", g.next+1)
 				return
 			}
 			g.next++
-			g.fwd = append(g.fwd, "x = "+saved+" * x")
+			g.fwdLine("x = " + saved + " * x")
 		case engine.KindFork:
 			g.fork(l, p)
 		case engine.KindBlock:
@@ -293,7 +324,7 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 				saved := ""
 				if l.Residual || l.DenseLinks {
 					saved = "r" + strings.TrimPrefix(ident(rp), "l")
-					g.fwd = append(g.fwd, saved+" = x")
+					g.fwdLine(saved + " = x")
 				}
 				g.walk(l.Body, rp)
 				if l.Residual {
@@ -305,7 +336,7 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 						return
 					}
 					g.next++
-					g.fwd = append(g.fwd, "x = torch.cat(["+saved+", x], 1)") // the repeat's input first, as DenseNet orders them
+					g.fwdLine("x = torch.cat([" + saved + ", x], 1)") // the repeat's input first, as DenseNet orders them
 				}
 			}
 		default:
@@ -314,7 +345,7 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 		if l.Name != "" {
 			var c strings.Builder
 			comment(&c, "", "output of "+strconv.Quote(l.Name))
-			g.fwd = append(g.fwd, strings.TrimSuffix(c.String(), "\n"), g.tap(l.Name)+" = x")
+			g.fwdLine(strings.TrimSuffix(c.String(), "\n"), g.tap(l.Name)+" = x")
 		}
 	}
 }
@@ -324,7 +355,7 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 func (g *gen) fork(l *engine.Layer, p engine.Path) {
 	base := strings.TrimPrefix(ident(p), "l")
 	in := "f" + base
-	g.fwd = append(g.fwd, in+" = x")
+	g.fwdLine(in + " = x")
 	outs := make([]string, 0, len(l.Body))
 	for b := range l.Body {
 		br := &l.Body[b]
@@ -336,14 +367,14 @@ func (g *gen) fork(l *engine.Layer, p engine.Path) {
 		if l.Split {
 			src = fmt.Sprintf("%s.chunk(%d, 1)[%d]", in, len(l.Body), b)
 		}
-		g.fwd = append(g.fwd, "x = "+src)
+		g.fwdLine("x = " + src)
 		g.walk(br.Body, p.Append(b+1))
 		out := fmt.Sprintf("b%s_%d", base, b+1)
-		g.fwd = append(g.fwd, out+" = x")
+		g.fwdLine(out + " = x")
 		if br.Name != "" {
 			var c strings.Builder
 			comment(&c, "", "output of "+strconv.Quote(br.Name))
-			g.fwd = append(g.fwd, strings.TrimSuffix(c.String(), "\n"), g.tap(br.Name)+" = x")
+			g.fwdLine(strings.TrimSuffix(c.String(), "\n"), g.tap(br.Name)+" = x")
 		}
 		outs = append(outs, out)
 	}
@@ -352,7 +383,7 @@ func (g *gen) fork(l *engine.Layer, p engine.Path) {
 		return
 	}
 	g.next++
-	g.fwd = append(g.fwd, "x = torch.cat(["+strings.Join(outs, ", ")+"], 1)")
+	g.fwdLine("x = torch.cat([" + strings.Join(outs, ", ") + "], 1)")
 }
 
 // residual emits the shortcut rows, the addition and the activation that
@@ -363,8 +394,8 @@ func (g *gen) residual(saved string) {
 		row := &g.r.Rows[g.next]
 		g.next++
 		id := ident(row.Path)
-		g.init = append(g.init, fmt.Sprintf("self.%s = %s", id, g.module(row)))
-		g.fwd = append(g.fwd, fmt.Sprintf("sc = self.%s(%s)", id, sc))
+		g.initLine(fmt.Sprintf("self.%s = %s", id, g.module(row)))
+		g.fwdLine(fmt.Sprintf("sc = self.%s(%s)", id, sc))
 		sc = "sc"
 	}
 	switch {
@@ -374,10 +405,10 @@ func (g *gen) residual(saved string) {
 		body := "x"
 		if rate := row.Layer.Rate; rate > 0 {
 			id := ident(row.Path)
-			g.init = append(g.init, fmt.Sprintf("self.%s = DropPath(%s)", id, strconv.FormatFloat(rate, 'g', -1, 64)))
+			g.initLine(fmt.Sprintf("self.%s = DropPath(%s)", id, strconv.FormatFloat(rate, 'g', -1, 64)))
 			body = fmt.Sprintf("self.%s(x)", id)
 		}
-		g.fwd = append(g.fwd, "x = "+body+" + "+sc)
+		g.fwdLine("x = " + body + " + " + sc)
 	case sc == saved:
 		// An identity-only residual whose shapes differ: no addition.
 	default:
@@ -388,8 +419,8 @@ func (g *gen) residual(saved string) {
 		row := &g.r.Rows[g.next]
 		g.next++
 		id := ident(row.Path)
-		g.init = append(g.init, fmt.Sprintf("self.%s = %s", id, g.module(row)))
-		g.fwd = append(g.fwd, fmt.Sprintf("x = self.%s(x)", id))
+		g.initLine(fmt.Sprintf("self.%s = %s", id, g.module(row)))
+		g.fwdLine(fmt.Sprintf("x = self.%s(x)", id))
 	}
 }
 
@@ -417,15 +448,15 @@ func (g *gen) row() {
 			}
 			t.Expr = strings.ReplaceAll(t.Expr, engine.OtherVar, other)
 		}
-		g.fwd = append(g.fwd, "x = "+t.Expr)
+		g.fwdLine("x = " + t.Expr)
 		return
 	}
 	if t.Pad != "" {
-		g.init = append(g.init, fmt.Sprintf("self.%s_pad = %s", id, t.Pad))
-		g.fwd = append(g.fwd, fmt.Sprintf("x = self.%s_pad(x)", id))
+		g.initLine(fmt.Sprintf("self.%s_pad = %s", id, t.Pad))
+		g.fwdLine(fmt.Sprintf("x = self.%s_pad(x)", id))
 	}
-	g.init = append(g.init, fmt.Sprintf("self.%s = %s", id, t.Module))
-	g.fwd = append(g.fwd, fmt.Sprintf("x = self.%s(x)", id))
+	g.initLine(fmt.Sprintf("self.%s = %s", id, t.Module))
+	g.fwdLine(fmt.Sprintf("x = self.%s(x)", id))
 }
 
 // module writes the constructor of a row the residual block adds.

@@ -3,6 +3,7 @@
 package report
 
 import (
+	"bufio"
 	"bytes"
 	"encoding/json"
 	"fmt"
@@ -200,14 +201,13 @@ func buildHead(an *engine.Analysis) *JSON {
 // than fully indented JSON.
 func WriteJSON(w io.Writer, an *engine.Analysis) error {
 	doc := buildHead(an)
-	var b bytes.Buffer
-	b.Grow(2048 + 256*len(an.Result.Rows)) // a layer line is about 200 bytes
+	b := bufio.NewWriterSize(w, 64<<10)
 	field := func(name string, v any, last bool) error {
 		data, err := json.Marshal(v)
 		if err != nil {
 			return err
 		}
-		fmt.Fprintf(&b, "  %q: %s", name, data)
+		fmt.Fprintf(b, "  %q: %s", name, data)
 		if !last {
 			b.WriteByte(',')
 		}
@@ -220,7 +220,8 @@ func WriteJSON(w io.Writer, an *engine.Analysis) error {
 	}
 	field("input", doc.Input, false)
 	b.WriteString("  \"layers\": [")
-	enc := json.NewEncoder(&b)
+	var line bytes.Buffer // one layer, encoded, before its newline is cut
+	enc := json.NewEncoder(&line)
 	var jl JSONLayer // one value and one shape for every line
 	var out [3]int64
 	for i := range an.Result.Rows {
@@ -229,10 +230,13 @@ func WriteJSON(w io.Writer, an *engine.Analysis) error {
 		}
 		b.WriteString("\n    ")
 		jl = buildLayer(an, i, &out)
+		line.Reset()
 		if err := enc.Encode(&jl); err != nil {
 			return fmt.Errorf("layer %s: %w", jl.Path, err)
 		}
-		b.Truncate(b.Len() - 1) // Encode ends the value with a newline
+		if _, err := b.Write(line.Bytes()[:line.Len()-1]); err != nil { // Encode ends the value with a newline
+			return err
+		}
 	}
 	if len(an.Result.Rows) > 0 {
 		b.WriteString("\n  ")
@@ -246,6 +250,5 @@ func WriteJSON(w io.Writer, an *engine.Analysis) error {
 		return err
 	}
 	b.WriteString("}\n")
-	_, err := w.Write(b.Bytes())
-	return err
+	return b.Flush()
 }

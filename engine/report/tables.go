@@ -1,10 +1,10 @@
 package report
 
 import (
+	"bufio"
 	"encoding/csv"
 	"fmt"
 	"io"
-	"slices"
 	"strconv"
 	"strings"
 
@@ -82,20 +82,22 @@ func mdEscape(s string) string {
 }
 
 // WriteMarkdown writes the report for a design document: a title, the
-// layer table, totals, the memory estimate and the diagnostics.
+// layer table, totals, the memory estimate and the diagnostics. It writes
+// a row at a time through a buffer, so the report is never held whole.
 func WriteMarkdown(w io.Writer, an *engine.Analysis) error {
 	s, r, m := an.Stack, an.Result, &an.Memory
-	var b strings.Builder
+	b := bufio.NewWriterSize(w, 64<<10)
 	title := s.Name
 	if title == "" {
 		title = "Stack"
 	}
-	fmt.Fprintf(&b, "## %s\n\n", mdEscape(title))
-	fmt.Fprintf(&b, "Input %s → output %s · %s parameters · %s MACs per sample.\n\n",
+	fmt.Fprintf(b, "## %s\n\n", mdEscape(title))
+	fmt.Fprintf(b, "Input %s → output %s · %s parameters · %s MACs per sample.\n\n",
 		s.Input, outText(r), engine.GroupDigits(r.Totals.Params), engine.GroupDigits(r.Totals.MACs))
 	head := []string{"at", "layer", "out C×H×W", "params", "MACs", "rf", "kept for backward"}
 	b.WriteString("| " + strings.Join(head, " | ") + " |\n")
 	b.WriteString("|" + strings.Repeat(" --- |", len(head)) + "\n")
+	vals := make([]string, 0, len(head))
 	for i := range r.Rows {
 		row := &r.Rows[i]
 		label := mdEscape(engine.RowSummary(row))
@@ -110,29 +112,34 @@ func WriteMarkdown(w io.Writer, an *engine.Analysis) error {
 		if i < len(m.Rows) {
 			act = m.Rows[i]
 		}
-		vals := []string{row.Path.String(), out, engine.GroupDigits(row.Params), engine.FormatCount(row.MACs), fpair(row.RF), engine.FormatBytes(act)}
-		for j := range vals {
-			vals[j] = mdEscape(vals[j])
+		vals = append(vals[:0], row.Path.String(), label, out, engine.GroupDigits(row.Params), engine.FormatCount(row.MACs), fpair(row.RF), engine.FormatBytes(act))
+		b.WriteString("|")
+		for j, v := range vals {
+			if j != 1 { // the label is escaped piece by piece above
+				v = mdEscape(v)
+			}
+			b.WriteString(" " + v + " |")
 		}
-		vals = slices.Insert(vals, 1, label)
-		b.WriteString("| " + strings.Join(vals, " | ") + " |\n")
+		if _, err := b.WriteString("\n"); err != nil {
+			return err
+		}
 	}
 	t := an.Training
-	fmt.Fprintf(&b, "\n**Training memory per GPU (estimate)** at batch %d on %d GPU(s), %s, %s:\n\n",
+	fmt.Fprintf(b, "\n**Training memory per GPU (estimate)** at batch %d on %d GPU(s), %s, %s:\n\n",
 		max(t.Batch, 1), max(t.GPUs, 1), t.Precision, t.Optimizer)
 	b.WriteString("| category | size |\n| --- | --- |\n")
 	for _, c := range m.Categories() {
-		fmt.Fprintf(&b, "| %s | %s |\n", c.Name, engine.FormatBytes(c.Bytes))
+		fmt.Fprintf(b, "| %s | %s |\n", c.Name, engine.FormatBytes(c.Bytes))
 	}
-	fmt.Fprintf(&b, "| **total** | **%s** |\n\n", engine.FormatBytes(m.Total))
+	fmt.Fprintf(b, "| **total** | **%s** |\n\n", engine.FormatBytes(m.Total))
 	if m.Budget > 0 {
 		verdict := "fits"
 		if !m.Fits {
 			verdict = "does not fit"
 		}
-		fmt.Fprintf(&b, "Budget %s with %s kept free: %s.", engine.FormatBytes(m.Budget), engine.FormatShare(t.HeadroomShare()), verdict)
+		fmt.Fprintf(b, "Budget %s with %s kept free: %s.", engine.FormatBytes(m.Budget), engine.FormatShare(t.HeadroomShare()), verdict)
 		if f := an.Fit; f.HasBudget {
-			fmt.Fprintf(&b, " Largest batch %s, widest ×%.2f, fewest GPUs %d.", answer(f.MaxBatch), f.MaxWidth, f.MinGPUs)
+			fmt.Fprintf(b, " Largest batch %s, widest ×%.2f, fewest GPUs %d.", answer(f.MaxBatch), f.MaxWidth, f.MinGPUs)
 		}
 		b.WriteString("\n\n")
 	}
@@ -140,11 +147,10 @@ func WriteMarkdown(w io.Writer, an *engine.Analysis) error {
 	if len(r.Diags) > 0 {
 		b.WriteString("\n**Diagnostics**\n\n")
 		for _, d := range r.Diags {
-			fmt.Fprintf(&b, "- %s: %s\n", d.Severity, mdEscape(r.Describe(d)))
+			fmt.Fprintf(b, "- %s: %s\n", d.Severity, mdEscape(r.Describe(d)))
 		}
 	}
-	_, err := io.WriteString(w, b.String())
-	return err
+	return b.Flush()
 }
 
 func outText(r *engine.Result) string {

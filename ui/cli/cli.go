@@ -4,6 +4,7 @@
 package cli
 
 import (
+	"bufio"
 	"errors"
 	"flag"
 	"fmt"
@@ -309,16 +310,18 @@ func (c *command) analyze() (*engine.Analysis, error) {
 	return engine.Analyze(s, t, engine.DefaultAssumptions()), nil
 }
 
-// output runs write to -o FILE (atomically) or standard output.
+// output streams write to -o FILE (atomically) or to standard output,
+// through a buffer either way: no report is held in memory whole.
 func (c *command) output(path string, write func(io.Writer) error) error {
-	if path == "" {
-		return write(c.std.Out)
+	if path != "" {
+		return store.WriteAtomic(path, 0o644, write)
 	}
-	var buf strings.Builder
-	if err := write(&buf); err != nil {
+	bw := bufio.NewWriterSize(c.std.Out, 64<<10)
+	if err := write(bw); err != nil {
+		bw.Flush()
 		return err
 	}
-	return store.WriteFileAtomic(path, []byte(buf.String()), 0o644)
+	return bw.Flush()
 }
 
 func runReport(args []string, std IO) int {

@@ -1,6 +1,7 @@
 package store
 
 import (
+	"bufio"
 	"errors"
 	"fmt"
 	"io"
@@ -46,10 +47,18 @@ func (osFS) Stat(n string) (fs.FileInfo, error)               { return os.Stat(n
 // full disk, an interrupted write — the old file is left byte-identical,
 // the temporary file is removed, and the error says what happened.
 func WriteFileAtomic(path string, data []byte, perm fs.FileMode) error {
-	return writeAtomic(osFS{}, path, data, perm)
+	return writeAtomic(osFS{}, path, func(w io.Writer) error { _, err := w.Write(data); return err }, perm)
 }
 
-func writeAtomic(fsys fileSystem, path string, data []byte, perm fs.FileMode) (err error) {
+// WriteAtomic is WriteFileAtomic for output produced a piece at a time:
+// write streams the new content through a buffer into the temporary
+// file, so a report or an export of any size is never held in memory
+// whole. An error from write leaves the old file as it was.
+func WriteAtomic(path string, perm fs.FileMode, write func(io.Writer) error) error {
+	return writeAtomic(osFS{}, path, write, perm)
+}
+
+func writeAtomic(fsys fileSystem, path string, write func(io.Writer) error, perm fs.FileMode) (err error) {
 	path = Target(path)
 	owner := -1
 	var group int
@@ -75,8 +84,22 @@ func writeAtomic(fsys fileSystem, path string, data []byte, perm fs.FileMode) (e
 			fsys.Remove(tmp.Name())
 		}
 	}()
-	if _, err = tmp.Write(data); err != nil {
-		return fmt.Errorf("save %s: write failed (%w); is the disk full? The old file is unchanged", path, err)
+	var werr writeErr
+	bw := bufio.NewWriterSize(writerFunc(func(p []byte) (int, error) {
+		n, err := tmp.Write(p)
+		if err != nil {
+			werr.err = err
+		}
+		return n, err
+	}), 64<<10)
+	if err = write(bw); err == nil {
+		err = bw.Flush()
+	}
+	if err != nil {
+		if werr.err != nil {
+			return fmt.Errorf("save %s: write failed (%w); is the disk full? The old file is unchanged", path, werr.err)
+		}
+		return fmt.Errorf("save %s: %w; the old file is unchanged", path, err)
 	}
 	if err = tmp.Chmod(perm); err != nil {
 		return fmt.Errorf("save %s: set permissions: %w; the old file is unchanged", path, err)
@@ -120,3 +143,12 @@ func Target(path string) string {
 	}
 	return path
 }
+
+// writeErr keeps the first error the temporary file gave, so a failed
+// write is reported as the disk's fault and not as the producer's.
+type writeErr struct{ err error }
+
+// writerFunc adapts a function to io.Writer.
+type writerFunc func([]byte) (int, error)
+
+func (f writerFunc) Write(p []byte) (int, error) { return f(p) }

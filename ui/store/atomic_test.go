@@ -2,6 +2,7 @@ package store
 
 import (
 	"errors"
+	"io"
 	"io/fs"
 	"os"
 	"path/filepath"
@@ -71,7 +72,7 @@ func TestSafeSaves(t *testing.T) {
 			p := filepath.Join(dir, "net.yaml")
 			old := []byte("stackfit: 1\ninput: [3, 8, 8]\nlayers: []\n")
 			os.WriteFile(p, old, 0o640)
-			err := writeAtomic(tt.fsys, p, []byte(strings.Repeat("new content ", 100)), 0o644)
+			err := writeAtomic(tt.fsys, p, func(w io.Writer) error { _, err := io.WriteString(w, strings.Repeat("new content ", 100)); return err }, 0o644)
 			if err == nil || !strings.Contains(err.Error(), tt.want) || !strings.Contains(err.Error(), "net.yaml") {
 				t.Fatalf("error %v, want %q", err, tt.want)
 			}
@@ -85,6 +86,32 @@ func TestSafeSaves(t *testing.T) {
 				t.Errorf("left behind: %v", entries)
 			}
 		})
+	}
+}
+
+// TestStreamedWriteFails checks that output that fails halfway, after
+// more than a buffer's worth was written, leaves the old file as it was
+// and says what failed.
+func TestStreamedWriteFails(t *testing.T) {
+	dir := t.TempDir()
+	p := filepath.Join(dir, "report.md")
+	os.WriteFile(p, []byte("old report"), 0o644)
+	err := WriteAtomic(p, 0o644, func(w io.Writer) error {
+		for range 1000 {
+			if _, err := io.WriteString(w, strings.Repeat("row ", 100)); err != nil {
+				return err
+			}
+		}
+		return errors.New("layer 7: cannot encode")
+	})
+	if err == nil || !strings.Contains(err.Error(), "layer 7: cannot encode") || !strings.Contains(err.Error(), "old file is unchanged") {
+		t.Fatalf("error %v", err)
+	}
+	if got, _ := os.ReadFile(p); string(got) != "old report" {
+		t.Errorf("old file changed: %q", got)
+	}
+	if entries, _ := os.ReadDir(dir); len(entries) != 1 {
+		t.Errorf("left behind: %v", entries)
 	}
 }
 
