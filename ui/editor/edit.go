@@ -25,7 +25,7 @@ func (m *Model) change(what string, fn func(s *engine.Stack) (addr, error)) tea.
 		return nil
 	}
 	m.stack = next
-	m.hist.push(before)
+	m.hist.push(before, next)
 	m.dirty = true
 	m.anchor = -1
 	m.recompute()
