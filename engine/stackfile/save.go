@@ -44,7 +44,16 @@ func encode(doc *yaml.Node) ([]byte, error) {
 	if err := enc.Close(); err != nil {
 		return nil, fmt.Errorf("encode stack: %w", err)
 	}
-	return buf.Bytes(), nil
+	return checkSize(buf.Bytes())
+}
+
+// checkSize refuses a file Load would refuse for its size, so nothing
+// saved is unreadable.
+func checkSize(data []byte) ([]byte, error) {
+	if len(data) > MaxFileBytes {
+		return nil, fmt.Errorf("%w: the stack would take %s as a file, over the 8 MiB a stack file may hold; shorten its notes or split it", ErrTooLarge, engine.FormatBytes(int64(len(data))))
+	}
+	return data, nil
 }
 
 // layerSeq writes a list of layers.

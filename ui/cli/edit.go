@@ -80,9 +80,16 @@ func runEditor(path string, builtin []byte, std IO) int {
 			return ExitUsage
 		}
 	}
+	var held []*store.Journal
+	defer func() {
+		for _, j := range held {
+			j.Release()
+		}
+	}()
 	opt.JournalFor = func(p string) editor.Journal {
 		j := store.JournalFor(p, env.paths.State)
 		j.Hold() // best effort: without it other sessions cannot see this one
+		held = append(held, j)
 		return j
 	}
 	opt.Recovery, opt.Notice = recovery(path, env.paths.State, opt.Base, opt.Stack, opt.NewFile)

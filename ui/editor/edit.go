@@ -24,6 +24,16 @@ func (m *Model) change(what string, fn func(s *engine.Stack) (addr, error)) tea.
 		m.setStatus(err.Error(), statusError)
 		return nil
 	}
+	// The journal writes the stack file's form after every change; a
+	// change past the size a stack file may have is refused here, so the
+	// editor never holds what it could not save.
+	wasUnprotected := m.unprotected
+	recErr := m.recordStack(next)
+	if errors.Is(recErr, stackfile.ErrTooLarge) {
+		m.unprotected = wasUnprotected // the journal still holds the stack before
+		m.setStatus("refused: "+recErr.Error(), statusError)
+		return nil
+	}
 	m.stack = next
 	m.hist.push(before, next)
 	m.dirty = true
@@ -32,7 +42,7 @@ func (m *Model) change(what string, fn func(s *engine.Stack) (addr, error)) tea.
 	if sel != nil {
 		m.selectAddr(sel)
 	}
-	if err := m.record(); err != nil {
+	if err := recErr; err != nil {
 		m.setStatus(what+" — but no recovery copy could be written ("+err.Error()+"); save soon", statusError)
 		return m.widthCmd()
 	}
@@ -43,11 +53,14 @@ func (m *Model) change(what string, fn func(s *engine.Stack) (addr, error)) tea.
 // record writes the journal. A failure never stops editing: the header
 // marks the edits unprotected until a write succeeds, and the error is
 // returned for the status line.
-func (m *Model) record() error {
+func (m *Model) record() error { return m.recordStack(m.stack) }
+
+// recordStack writes s to the journal.
+func (m *Model) recordStack(s *engine.Stack) error {
 	if m.journal == nil {
 		return nil
 	}
-	err := m.journal.Record(m.stack)
+	err := m.journal.Record(s)
 	m.unprotected = err != nil
 	return err
 }

@@ -632,3 +632,55 @@ func TestListLimitAtEditTime(t *testing.T) {
 		t.Fatalf("the stack at the limit does not load: %v", err)
 	}
 }
+
+// saveJournal is a journal that does what the real one does first: write
+// the stack file's form (store.Journal.Record).
+type saveJournal struct{ records int }
+
+func (j *saveJournal) Record(s *engine.Stack) error {
+	j.records++
+	_, err := stackfile.Save(s)
+	return err
+}
+func (j *saveJournal) Clear() error  { return nil }
+func (j *saveJournal) Rebase([]byte) {}
+
+// TestFileSizeLimitAtEditTime fills a stack to just under the 8 MiB a
+// stack file may hold (long notes) and copies a layer: the copy is refused
+// with the file size, nothing changes and no undo step is made, and the
+// stack still saves and loads.
+func TestFileSizeLimitAtEditTime(t *testing.T) {
+	note := strings.Repeat("n", engine.MaxNoteLen)
+	layer := engine.Layer{Kind: engine.KindAct, Note: note}
+	s := &engine.Stack{Input: engine.Shape{C: 8, H: 8, W: 8}, Layers: []engine.Layer{layer}}
+	one, _ := stackfile.Save(s)
+	s.Layers = append(s.Layers, layer)
+	two, _ := stackfile.Save(s)
+	per := len(two) - len(one)                       // what one more layer adds
+	fit := (stackfile.MaxFileBytes-len(one))/per + 1 // the most layers a file holds
+	s.Layers = s.Layers[:0]
+	for range fit - 1 {
+		s.Layers = append(s.Layers, layer)
+	}
+	j := &saveJournal{}
+	opts := Options{Stack: s, Path: t.TempDir() + "/notes.yaml", Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(),
+		Files: store.Disk{}, JournalFor: func(string) Journal { return j }}
+	m := New(opts)
+	m.Update(tea.WindowSizeMsg{Width: 100, Height: 30})
+	n := len(m.stack.Layers)
+	press(m, "c")
+	if len(m.stack.Layers) != n+1 {
+		t.Fatalf("the first copy, still under the limit, was refused: %q", m.status)
+	}
+	press(m, "c")
+	if len(m.stack.Layers) != n+1 || !strings.Contains(m.status, "refused") || !strings.Contains(m.status, "8 MiB") || len(m.hist.undo) != 1 {
+		t.Fatalf("a copy past 8 MiB: %d items (want %d), %d undo steps, %q", len(m.stack.Layers), n+1, len(m.hist.undo), m.status)
+	}
+	data, err := stackfile.Save(m.stack)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := stackfile.Load(data); err != nil {
+		t.Fatalf("the stack at the limit does not load: %v", err)
+	}
+}

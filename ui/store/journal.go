@@ -126,6 +126,20 @@ func (j *Journal) Record(s *engine.Stack) error {
 	return WriteFileAtomic(j.Path, b.Bytes(), 0o600)
 }
 
+// Release ends the session's hold: the lock is dropped and, when no
+// journal is left (the edits were saved or given up), its file is
+// removed, so a clean quit leaves nothing beside the stack.
+func (j *Journal) Release() {
+	if j.lock == nil {
+		return
+	}
+	if _, err := os.Lstat(j.Path); errors.Is(err, fs.ErrNotExist) {
+		os.Remove(j.Path + lockSuffix)
+	}
+	j.lock.Close() // closing drops the flock
+	j.lock = nil
+}
+
 // Clear removes this session's journal; a missing one is not an error.
 func (j *Journal) Clear() error {
 	err := os.Remove(j.Path)

@@ -85,9 +85,23 @@ func TestJournalPerSession(t *testing.T) {
 	if got := FindJournals(file, dir, data); len(got) != 1 || !got[0].Live || got[0].Stack == nil {
 		t.Errorf("live session with edits: %+v", got)
 	}
-	other.lock.Close() // the session ends (a crash releases the lock the same way)
+	other.Release() // the session ends with edits unsaved (a crash releases the lock the same way)
 	if got := FindJournals(file, dir, data); len(got) != 1 || got[0].Live || !got[0].Trusted() {
 		t.Errorf("ended session: %+v", got)
+	}
+
+	// A clean quit (edits saved: the journal cleared) leaves nothing
+	// beside the file.
+	os.Remove(other.Path)
+	os.Remove(other.Path + lockSuffix)
+	if err := j.Hold(); err != nil {
+		t.Fatal(err)
+	}
+	j.Record(edited)
+	j.Clear()
+	j.Release()
+	if entries, _ := os.ReadDir(dir); len(entries) != 1 {
+		t.Errorf("a clean quit left %v", entries)
 	}
 }
 
