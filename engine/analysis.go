@@ -22,3 +22,8 @@ func Analyze(s *Stack, t Training, a Assumptions) *Analysis {
 	}
 	return an
 }
+
+// MemoryEstimated reports whether the memory figures are an estimate at
+// all: false when the stack has errors (see Memory.Reason), and then the
+// memory has no verdict and the fit solver no answers.
+func (an *Analysis) MemoryEstimated() bool { return an.Memory.Estimated }

@@ -351,7 +351,9 @@ func (r *Result) finish() {
 	if t.ov {
 		r.diag(Diagnostic{Severity: SevError, Code: ErrOverflow, Row: len(r.Rows) - 1, Field: "stack totals"})
 	}
-	if b := t.biggest; b >= 0 && t.weighted >= 2 && 2*r.Rows[b].Params > r.Totals.Params {
+	// The share of the parameters is read from the totals, which miss
+	// every row past an error: no share warning while errors exist.
+	if b := t.biggest; r.Errors == 0 && b >= 0 && t.weighted >= 2 && 2*r.Rows[b].Params > r.Totals.Params {
 		p := r.Rows[b].Params
 		pct := int64(math.Round(100 * float64(p) / float64(r.Totals.Params)))
 		r.diag(Diagnostic{Severity: SevWarning, Code: WarnParamShare, Row: b, Field: "parameters", A: p, B: r.Totals.Params, C: pct})

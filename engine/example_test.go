@@ -52,10 +52,11 @@ func ExampleParseQuick() {
 // ParseBytes reads the binary prefixes of IEC 80000-13 (KiB = 2¹⁰ bytes,
 // GiB = 2³⁰) and the decimal SI prefixes (kB = 10³, GB = 10⁹) — both from
 // memory of the standards; a bare K, M, G or T is binary (common practice
-// for memory sizes). FormatBytes writes three significant digits in binary
-// units, so 24 GB shows as 22.4 GiB.
+// for memory sizes). A bare number is refused: it needs a unit, B for
+// bytes. FormatBytes writes three significant digits in binary units, so
+// 24 GB shows as 22.4 GiB.
 func ExampleParseBytes() {
-	for _, s := range []string{"24GiB", "24GB", "24000MiB", "1.5 GiB", "80G", "512k", "96", "lots"} {
+	for _, s := range []string{"24GiB", "24GB", "24000MiB", "1.5 GiB", "80G", "512k", "96B", "24", "80000000000", "0", "lots"} {
 		n, err := engine.ParseBytes(s)
 		if err != nil {
 			fmt.Println(err)
@@ -70,7 +71,10 @@ func ExampleParseBytes() {
 	// 1.5 GiB     1610612736 = 1.50 GiB
 	// 80G        85899345920 = 80.0 GiB
 	// 512k            524288 = 512 KiB
-	// 96                  96 = 96 B
+	// 96B                 96 = 96 B
+	// 24 has no unit; write 24GiB (or 24GB, 24000MiB)
+	// 80000000000 has no unit; write 80000000000B for bytes (or a size such as 24GiB)
+	// 0                    0 = 0 B
 	// not a memory size: "lots"; write a number and a unit, e.g. 24GiB, 24GB or 24000MiB
 }
 

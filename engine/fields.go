@@ -122,7 +122,16 @@ func ParseChoice(key, s string, options []string) (int, error) {
 			return i, nil
 		}
 	}
-	return 0, &FieldError{key, s, "give one of " + strings.Join(options, ", ")}
+	return 0, &FieldError{key, s, "give one of " + strings.Join(options, ", ") + didYouMean(t, options)}
+}
+
+// didYouMean is "; did you mean \"x\"?" for the option s is likely a slip
+// for (Suggest), or "".
+func didYouMean(s string, options []string) string {
+	if hint := Suggest(s, options); hint != "" {
+		return fmt.Sprintf("; did you mean %q?", hint)
+	}
+	return ""
 }
 
 // ParsePadding reads "n", "h×w", "same" or "valid".

@@ -15,7 +15,7 @@ type Fit struct {
 
 	MinGPUs    int64 // fewest GPUs, with the chosen sharding, that fit the current batch
 	GPUsLimit  string
-	HasBudget  bool // false: no budget was given, and there are no answers
+	HasBudget  bool // false: no budget was given, or the memory was not estimated (Memory.Estimated); there are no answers
 	WidthExact bool // the width search converged within 0.01
 }
 
@@ -39,9 +39,10 @@ func SolveFit(s *Stack, r *Result, m *Memory, t Training, a Assumptions) Fit {
 // SolveCapacity gives the two answers that need no re-evaluation of the
 // stack (largest batch, fewest GPUs); it takes microseconds, so an editor
 // can run it on every keystroke and leave MaxWidth to the background.
+// Memory that is not estimated (a stack with errors) gets no answers.
 func SolveCapacity(r *Result, m *Memory, t Training) Fit {
 	var f Fit
-	if t.Budget <= 0 {
+	if t.Budget <= 0 || !m.Estimated {
 		return f
 	}
 	f.HasBudget = true

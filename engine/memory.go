@@ -1,6 +1,9 @@
 package engine
 
-import "math"
+import (
+	"fmt"
+	"math"
+)
 
 // Assumptions are the device facts the memory model needs that a stack
 // file does not say. DefaultAssumptions describes a CUDA GPU.
@@ -86,7 +89,13 @@ type Memory struct {
 	Total       int64
 	Budget      int64 // 0 when none
 	Reserve     int64 // the part of the budget kept free (headroom)
-	Fits        bool  // Total ≤ Budget − Reserve (true when there is no budget)
+	// Estimated is false when the stack has errors: the rows past the
+	// first error count nothing, so the figures are partial and no verdict
+	// is given (Fits is false, the fit solver gives no answers). Reason
+	// says why.
+	Estimated   bool
+	StackErrors int  // the errors that stopped the estimate (0 when Estimated)
+	Fits        bool // Estimated and Total ≤ Budget − Reserve (true when estimated with no budget)
 
 	ActPerSample     int64   // activation bytes per sample
 	ScratchPerSample int64   // backward scratch per sample
@@ -120,6 +129,15 @@ func (m *Memory) Categories() [6]struct {
 		{CatActivations, m.Activations}, {CatWorkspace, m.Workspace}, {CatOverhead, m.Overhead}}
 }
 
+// Reason says why the memory is not estimated ("the stack has 2
+// error(s)"), or "" when it is.
+func (m *Memory) Reason() string {
+	if m.Estimated {
+		return ""
+	}
+	return fmt.Sprintf("the stack has %d error(s)", m.StackErrors)
+}
+
 // Largest returns the name of the biggest category.
 func (m *Memory) Largest() string {
 	best, name := int64(-1), ""
@@ -132,7 +150,8 @@ func (m *Memory) Largest() string {
 }
 
 // Memory estimates the training memory of the evaluated stack under t into
-// m (reusing m's storage). Rows with unknown numbers count nothing.
+// m (reusing m's storage). Rows with unknown numbers count nothing; a
+// stack with errors is not estimated (m.Estimated is false).
 func (r *Result) Memory(t Training, a Assumptions, m *Memory) {
 	rows := m.Rows[:0]
 	m.MicroBatch = t.MicroBatch()
@@ -175,7 +194,10 @@ func (m *Memory) fill(r *Result, t Training) {
 	m.Total = total
 	m.Budget = t.Budget
 	m.Reserve = int64(math.Ceil(float64(t.Budget) * t.HeadroomShare()))
-	m.Fits = t.Budget == 0 || (!ov && m.Total <= t.Budget-m.Reserve)
+	// With errors the rows past the first one count nothing: partial
+	// figures are no estimate, and give no verdict.
+	m.Estimated, m.StackErrors = r.Errors == 0, r.Errors
+	m.Fits = m.Estimated && (t.Budget == 0 || (!ov && m.Total <= t.Budget-m.Reserve))
 }
 
 // activationProfile walks the rows once and returns the activation bytes

@@ -217,6 +217,9 @@ func (p *Param) Parse(s string) (Value, error) {
 	if err != nil {
 		if fe, ok := err.(*FieldError); ok && p.Want != "" {
 			fe.Want = p.Want
+			if p.Type == TChoice {
+				fe.Want += didYouMean(t, p.Choices)
+			}
 		}
 		return Value{}, err
 	}

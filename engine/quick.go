@@ -21,10 +21,14 @@ func ParseQuick(line string) (Layer, error) {
 	orig := strings.Fields(strings.TrimSpace(line))
 	k, ok := KindByName(toks[0])
 	if !ok {
+		kinds := names(Kinds())
+		if hint := Suggest(toks[0], kinds); hint != "" {
+			return Layer{}, fmt.Errorf("%w: unknown kind %q; did you mean %q?", ErrQuick, toks[0], hint)
+		}
 		if c := kindsWithPrefix(toks[0]); len(c) == 1 {
 			return Layer{}, fmt.Errorf("%w: unknown kind %q; did you mean %q?", ErrQuick, toks[0], c[0])
 		}
-		return Layer{}, fmt.Errorf("%w: unknown kind %q; kinds: %s", ErrQuick, toks[0], strings.Join(names(Kinds()), ", "))
+		return Layer{}, fmt.Errorf("%w: unknown kind %q; kinds: %s", ErrQuick, toks[0], strings.Join(kinds, ", "))
 	}
 	sp := SpecOf(k)
 	l := Layer{Kind: k}
@@ -47,6 +51,11 @@ func ParseQuick(line string) (Layer, error) {
 		} else if m.Optional {
 			m.set(&l, m.Default)
 		} else {
+			if m.Type == TChoice && len(rest) > 0 {
+				if hint := Suggest(rest[0], m.Choices); hint != "" {
+					return Layer{}, fmt.Errorf("%w: unknown %s %s %q; did you mean %q?", ErrQuick, sp.Key, m.Key, rest[0], hint)
+				}
+			}
 			return Layer{}, fmt.Errorf("%w: %s needs %s, e.g. %s", ErrQuick, sp.Key, m.Need, sp.Example)
 		}
 	}
@@ -127,6 +136,9 @@ func (s *Spec) quickOption(l *Layer, t string) (int, error) {
 		}
 	}
 	if best < 0 {
+		if hint := Suggest(t, s.quickWords()); hint != "" {
+			return 0, fmt.Errorf("%w: %q does not apply to %s; did you mean %q?", ErrQuick, t, s.Key, hint)
+		}
 		return 0, fmt.Errorf("%w: %q does not apply to %s; see the help (?) for its options", ErrQuick, t, s.Key)
 	}
 	p := &s.Params[best]
@@ -139,6 +151,28 @@ func (s *Spec) quickOption(l *Layer, t string) (int, error) {
 	}
 	p.set(l, v)
 	return best, nil
+}
+
+// quickWords lists the words quick entry reads after the kind: the
+// options' words and, for an optional main value, its choices (the
+// candidates of a "did you mean").
+func (s *Spec) quickWords() []string {
+	var out []string
+	if m := s.Main; m != nil && m.Optional && m.Type == TChoice {
+		out = append(out, m.Choices...)
+	}
+	for i := range s.Params {
+		p := &s.Params[i]
+		for _, w := range p.Words {
+			if w != "" {
+				out = append(out, w)
+			}
+		}
+		if p.Type == TChoice && p.Words == nil && p.Quick == "" {
+			out = append(out, p.Choices...)
+		}
+	}
+	return out
 }
 
 // quickWord reads t when it is one of the field's words.

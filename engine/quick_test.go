@@ -105,6 +105,68 @@ func TestQuickErrors(t *testing.T) {
 	}
 }
 
+// TestQuickDidYouMean: a slip in the kind, in a main word (activation,
+// pool mode, norm type) or in an option word gets the nearest word by edit
+// distance, and the names practitioners type from frameworks and papers
+// get stackfit's word (lrelu for PyTorch's LeakyReLU, swish for SiLU as
+// Ramachandran et al. 2017 name it, fc and linear for dense).
+func TestQuickDidYouMean(t *testing.T) {
+	tests := []struct{ line, want string }{
+		{"covn 32 k3", `unknown kind "covn"; did you mean "conv"?`},
+		{"desne 10", `unknown kind "desne"; did you mean "dense"?`},
+		{"fc 10", `unknown kind "fc"; did you mean "dense"?`},
+		{"linear 10", `unknown kind "linear"; did you mean "dense"?`},
+		{"act lrelu", `unknown act function "lrelu"; did you mean "leaky-relu"?`},
+		{"act lrelu 0.2", `unknown act function "lrelu"; did you mean "leaky-relu"?`},
+		{"act swish", `unknown act function "swish"; did you mean "silu"?`},
+		{"act rleu", `unknown act function "rleu"; did you mean "relu"?`},
+		{"act hardswish", `unknown act function "hardswish"; did you mean "hard-swish"?`},
+		{"pool mx k2", `unknown pool mode "mx"; did you mean "max"?`},
+		{"norm btach", `unknown norm type "btach"; did you mean "batch"?`},
+		{"norm bn", `unknown norm type "bn"; did you mean "batch"?`},
+		{"norm gn g32", `unknown norm type "gn"; did you mean "group"?`},
+		{"upsample 2 bilinaer", `"bilinaer" does not apply to upsample; did you mean "bilinear"?`},
+		{"global-pool mx", `"mx" does not apply to global-pool; did you mean "max"?`},
+		{"conv 64 k3 nobais", `"nobais" does not apply to conv; did you mean "nobias"?`},
+		{"block 2 residual then lrelu", `give none or one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid; did you mean "leaky-relu"?`},
+		// Nothing close: no guess, the list or the help instead.
+		{"act zzzzzz", "act needs a function: relu, leaky-relu"},
+		{"conv 64 k3 qqqq", `"qqqq" does not apply to conv; see the help (?) for its options`},
+	}
+	for _, tt := range tests {
+		_, err := engine.ParseQuick(tt.line)
+		if err == nil || !errors.Is(err, engine.ErrQuick) || !strings.Contains(err.Error(), tt.want) {
+			t.Errorf("%q: %v, want %q", tt.line, err, tt.want)
+		}
+	}
+}
+
+// TestSuggest: the one suggester behind every "did you mean": aliases
+// first, then edit distance within one edit per four letters (common
+// practice for typo hints), nothing when nothing is close.
+func TestSuggest(t *testing.T) {
+	acts := engine.SpecOf(engine.KindAct).Main.Choices
+	tests := []struct {
+		s          string
+		candidates []string
+		want       string
+	}{
+		{"lrelu", acts, "leaky-relu"}, // an alias beats relu at distance 1
+		{"LReLU", acts, "leaky-relu"}, // case does not matter
+		{"relu6", acts, "relu6"},
+		{"gleu", acts, "gelu"},              // a swap of neighbours costs one
+		{"lrelu", []string{"relu"}, "relu"}, // an alias whose word is no candidate falls back to distance
+		{"bathc", []string{"batch", "group"}, "batch"},
+		{"xyz", acts, ""},
+		{"", acts, ""},
+	}
+	for _, tt := range tests {
+		if got := engine.Suggest(tt.s, tt.candidates); got != tt.want {
+			t.Errorf("Suggest(%q) = %q, want %q", tt.s, got, tt.want)
+		}
+	}
+}
+
 // TestFieldsRoundTrip checks that every field reads back what it writes.
 func TestFieldsRoundTrip(t *testing.T) {
 	for _, k := range engine.Kinds() {

@@ -1,6 +1,7 @@
 package engine
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"strconv"
@@ -25,6 +26,8 @@ const (
 	SettingChoice                    // one of Options
 	SettingSize                      // a memory size such as 24GiB
 	SettingShare                     // a share such as 10% or 0.1
+	SettingFlag                      // yes or no (a stage setting)
+	SettingReal                      // a real number between bounds (a stage setting)
 )
 
 // Setting describes one training setting: its key, what it means, the
@@ -178,6 +181,9 @@ func (s Setting) Parse(t *Training, text string) error {
 		var b int64
 		if strings.TrimSpace(text) != "" {
 			if b, err = ParseBytes(text); err != nil {
+				if errors.Is(err, ErrNoUnit) {
+					return &FieldError{s.Key, text, err.Error()}
+				}
 				return &FieldError{s.Key, text, "give a size such as 24GiB, 24GB or 24000MiB (empty: default)"}
 			}
 		}

@@ -104,6 +104,8 @@ func TestSettingsParse(t *testing.T) {
 		{"headroom", "0", Training{Headroom: 0, HeadroomSet: true}}, // an explicit zero differs from the default
 		{"headroom", "0.1", Training{}},                             // reads as the default 10%: stays unset
 		{"gpus", "1", Training{}},                                   // the default: stays unset
+		{"budget", "0", Training{}},                                 // 0 needs no unit: no budget
+		{"overhead", "96B", Training{Overhead: 96}},                 // B: bytes, written out
 	}
 	for _, tt := range tests {
 		s, _ := SettingFor(tt.key)
@@ -131,6 +133,11 @@ func TestSettingsRefuse(t *testing.T) {
 		{"budget", "lots", `budget: "lots" is not valid; give a size such as 24GiB, 24GB or 24000MiB (empty: default)`},
 		{"headroom", "95%", `headroom: "95%" is not valid; give a share from 0% to 90%, e.g. 10%`},
 		{"headroom", "", `headroom: "" is not valid; give a share from 0% to 90%, e.g. 10%`},
+		// A size without a unit is refused, naming the fix (it used to mean bytes).
+		{"budget", "24", `budget: "24" is not valid; 24 has no unit; write 24GiB (or 24GB, 24000MiB)`},
+		{"budget", " 1.5 ", `budget: " 1.5 " is not valid; 1.5 has no unit; write 1.5GiB (or 1.5GB, 1500MiB)`},
+		{"workspace", "512", `workspace: "512" is not valid; 512 has no unit; write 512GiB (or 512GB, 512000MiB)`},
+		{"overhead", "734003200", `overhead: "734003200" is not valid; 734003200 has no unit; write 734003200B for bytes (or a size such as 24GiB)`},
 	}
 	for _, tt := range tests {
 		s, _ := SettingFor(tt.key)

@@ -1,13 +1,15 @@
 package engine
 
 // Stack is a whole network description: a name, the per-sample input shape,
-// the layers in order and the training settings.
+// the layers in order, the training settings and the settings of the
+// stage InsertStage adds.
 type Stack struct {
 	Name     string
 	Note     string
 	Input    Shape
 	Layers   []Layer
 	Training Training
+	Stage    Stage
 }
 
 // Clone returns a deep copy of the stack, safe to edit independently.

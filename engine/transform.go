@@ -83,37 +83,52 @@ func ScaleWidth(s *Stack, factor float64, m int64) (*Stack, error) {
 	return out, nil
 }
 
-// StageOptions shapes the stage InsertStage adds.
+// StageOptions shapes the stage InsertStage adds: how far its channels
+// may grow, how many layers it has at the new size, and the template each
+// repeat follows (a convolution, a norm and an activation). The zero value
+// is the fallback template: a 3×3 convolution without bias, batch norm and
+// ReLU, with no cap. StageTemplate builds the options from a stack.
 type StageOptions struct {
-	Cap    int64   // most channels the stage may reach; 0 means no cap
-	Repeat int     // layers (conv, norm, act) at the new resolution after the downsampling one
-	Kernel int64   // kernel size; 0 means 3
-	NoNorm bool    // leave out the batch norm after each convolution
-	Act    ActKind // activation after each convolution (default ReLU)
+	Cap    int64    // most channels the stage may reach; 0 means no cap
+	Repeat int      // repeats of the template at the new resolution after the downsampling one
+	Kernel int64    // the convolutions' kernel (odd); 0 means 3
+	Bias   Toggle   // the convolutions' bias; Unset: a bias only where no norm follows
+	NoNorm bool     // no norm after each convolution
+	Norm   NormKind // the norm after each convolution (batch by default)
+	Groups int64    // group norm's groups; 0 means DefaultStageGroups
+	NoAct  bool     // no activation after each norm
+	Act    ActKind  // the activation (ReLU by default)
+	Slope  float64  // leaky-relu's negative slope; 0 means its default, 0.01
 }
 
 // InsertStage returns a copy of s with a downsampling stage inserted after
-// layer index after (−1 inserts at the start): a stride-2 convolution that
-// halves the resolution and doubles the channels (up to opt.Cap, never
-// fewer than it had), then opt.Repeat convolutions at the new resolution,
-// each followed by batch norm (unless opt.NoNorm) and the activation.
-// It also returns how many layers were inserted.
+// top-level item after (−1 inserts at the start), as one block item: its
+// layers — a convolution (stride 2 and padding k/2, its filters double the
+// input's channels, up to opt.Cap but never fewer than the input has), the
+// norm and the activation of opt — run opt.Repeat + 1 times. A block's
+// later repeats run with stride 1 (strides: first), so the first repeat
+// halves the resolution and the others keep it: the same rows as the
+// convolution, norm and activation written out Repeat + 1 times. It also
+// returns how many items it inserted (1: the block, at index after + 1).
 func InsertStage(s *Stack, after int, opt StageOptions) (*Stack, int, error) {
 	if after < -1 || after >= len(s.Layers) {
 		return nil, 0, fmt.Errorf("%w: no layer %d to insert after (the stack has %d)", ErrTransform, after+1, len(s.Layers))
 	}
-	if opt.Repeat < 0 || opt.Repeat > 64 {
-		return nil, 0, fmt.Errorf("%w: stage repeat %d must be between 0 and 64", ErrTransform, opt.Repeat)
+	if opt.Repeat < 0 || opt.Repeat > MaxStageLayers {
+		return nil, 0, fmt.Errorf("%w: stage repeat %d must be between 0 and %d", ErrTransform, opt.Repeat, MaxStageLayers)
 	}
 	if opt.Cap < 0 {
 		return nil, 0, fmt.Errorf("%w: channel cap %d must not be negative", ErrTransform, opt.Cap)
 	}
 	k := opt.Kernel
 	if k == 0 {
-		k = 3
+		k = DefaultStageKernel
 	}
-	if k < 1 || k > maxStageKernel {
-		return nil, 0, fmt.Errorf("%w: kernel %d must be between 1 and %d", ErrTransform, k, maxStageKernel)
+	if k < 1 || k > MaxStageKernel || k%2 == 0 {
+		return nil, 0, fmt.Errorf("%w: kernel %d must be odd, from 1 to %d (the padding k/2 then keeps the size)", ErrTransform, k, MaxStageKernel)
+	}
+	if int(opt.Norm) >= len(normNames) || int(opt.Act) >= len(activations) || opt.Groups < 0 || !(opt.Slope >= 0 && opt.Slope < maxStageSlope) {
+		return nil, 0, fmt.Errorf("%w: the stage template is not valid (norm %d, groups %d, activation %d, slope %g)", ErrTransform, opt.Norm, opt.Groups, opt.Act, opt.Slope)
 	}
 	in := s.Input
 	if after >= 0 {
@@ -131,22 +146,31 @@ func InsertStage(s *Stack, after int, opt StageOptions) (*Stack, int, error) {
 	if opt.Cap > 0 {
 		c = max(in.C, min(c, opt.Cap))
 	}
-	pad := Padding{Size: Square(k / 2)}
-	var add []Layer
-	for i := 0; i <= opt.Repeat; i++ {
-		l := Layer{Kind: KindConv, Filters: c, Kernel: Square(k), Pad: pad, NoBias: !opt.NoNorm}
-		if i == 0 {
-			l.Stride = Square(2)
+	conv := Layer{Kind: KindConv, Filters: c, Kernel: Square(k), Stride: Square(2), Pad: Padding{Size: Square(k / 2)},
+		NoBias: !opt.Bias.Or(opt.NoNorm)}
+	body := []Layer{conv}
+	if !opt.NoNorm {
+		norm := Layer{Kind: KindNorm, Norm: opt.Norm}
+		if opt.Norm == NormGroup {
+			norm.NormGroups = opt.Groups
+			if norm.NormGroups == 0 {
+				norm.NormGroups = DefaultStageGroups
+			}
+			if c%norm.NormGroups != 0 {
+				return nil, 0, fmt.Errorf("%w: group norm's %d groups do not divide the stage's %d channels; set the stage's groups to a divisor of %d", ErrTransform, norm.NormGroups, c, c)
+			}
 		}
-		add = append(add, l)
-		if !opt.NoNorm {
-			add = append(add, Layer{Kind: KindNorm, Norm: NormBatch})
-		}
-		add = append(add, Layer{Kind: KindAct, Act: opt.Act})
+		body = append(body, norm)
 	}
+	if !opt.NoAct {
+		act := Layer{Kind: KindAct, Act: opt.Act}
+		if opt.Act == ActLeakyReLU {
+			act.Slope = opt.Slope
+		}
+		body = append(body, act)
+	}
+	block := Layer{Kind: KindBlock, Repeat: int64(opt.Repeat) + 1, Body: body}
 	out := s.Clone()
-	out.Layers = append(out.Layers[:after+1:after+1], append(add, s.Layers[after+1:]...)...)
-	return out, len(add), nil
+	out.Layers = append(out.Layers[:after+1:after+1], append([]Layer{block}, s.Layers[after+1:]...)...)
+	return out, 1, nil
 }
-
-const maxStageKernel = 15

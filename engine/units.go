@@ -21,19 +21,32 @@ var sizeUnits = []struct {
 	{"b", 1},
 }
 
+// ErrNoUnit is returned (wrapped, together with ErrSize) by ParseBytes for
+// a bare number other than 0, such as "24".
+var ErrNoUnit = errors.New("size without a unit")
+
+// noUnitError is a bare number given as a size; its message names the fix.
+type noUnitError struct{ msg string }
+
+func (e *noUnitError) Error() string   { return e.msg }
+func (e *noUnitError) Unwrap() []error { return []error{ErrSize, ErrNoUnit} }
+
 // ParseBytes reads a memory size such as "24GiB", "24GB", "24000MiB",
-// "1.5 GiB" or "80000000000". Binary units (KiB, MiB, GiB, TiB, and the bare
+// "1.5 GiB" or "96B". Binary units (KiB, MiB, GiB, TiB, and the bare
 // letters K, M, G, T) are powers of 1024; decimal units (KB, MB, GB, TB) are
-// powers of 1000. Case does not matter.
+// powers of 1000; B is bytes. Case does not matter. A bare number is
+// refused (wrapping ErrNoUnit) with a message naming the fix, since "24"
+// is far more often a slip for 24GiB than 24 bytes — except 0, which
+// needs no unit.
 func ParseBytes(s string) (int64, error) {
 	t := strings.ToLower(strings.TrimSpace(s))
 	if t == "" {
 		return 0, fmt.Errorf("%w: empty; write e.g. 24GiB", ErrSize)
 	}
-	mult := 1.0
+	mult, unit := 1.0, false
 	for _, u := range sizeUnits {
 		if strings.HasSuffix(t, u.suffix) {
-			mult = u.mult
+			mult, unit = u.mult, true
 			t = strings.TrimSpace(strings.TrimSuffix(t, u.suffix))
 			break
 		}
@@ -45,11 +58,25 @@ func ParseBytes(s string) (int64, error) {
 	if v < 0 {
 		return 0, fmt.Errorf("%w: %q is negative", ErrSize, s)
 	}
+	if !unit && v != 0 {
+		return 0, &noUnitError{noUnitHint(t, v)}
+	}
 	b := v * mult
 	if b >= math.MaxInt64 {
 		return 0, fmt.Errorf("%w: %q is too large", ErrSize, s)
 	}
 	return int64(math.Round(b)), nil
+}
+
+// noUnitHint says how to write the bare number text (value v) as a size:
+// with a unit of gigabytes for a number that reads as one, as bytes for a
+// number too large for that.
+func noUnitHint(text string, v float64) string {
+	if v >= 1<<20 {
+		return fmt.Sprintf("%s has no unit; write %sB for bytes (or a size such as 24GiB)", text, text)
+	}
+	thousand := strconv.FormatFloat(v*1000, 'f', -1, 64)
+	return fmt.Sprintf("%s has no unit; write %sGiB (or %sGB, %sMiB)", text, text, text, thousand)
 }
 
 // FormatBytes writes n in binary units with three significant digits, e.g.

@@ -12,6 +12,8 @@ import (
 
 	"github.com/charmbracelet/bubbles/key"
 	"gopkg.in/yaml.v3"
+
+	"stackfit/engine"
 )
 
 // ErrKeys is wrapped by every error about a keys file.
@@ -134,6 +136,9 @@ func Parse(data []byte, base KeyMap) (KeyMap, error) {
 	for _, name := range names {
 		b, ok := byName[name]
 		if !ok {
+			if hint := engine.Suggest(name, all); hint != "" {
+				return base, fmt.Errorf("%w: unknown action %q; did you mean %q? (actions: %s)", ErrKeys, name, hint, strings.Join(all, ", "))
+			}
 			return base, fmt.Errorf("%w: unknown action %q; actions: %s", ErrKeys, name, strings.Join(all, ", "))
 		}
 		node := raw[name]

@@ -78,7 +78,7 @@ func DefaultKeyMap() KeyMap {
 		Width:    b("*", "width multiplier", "*"),
 		Stage:    b("n", "new downsample stage", "n"),
 		Undo:     b("u", "undo", "u", "ctrl+z"),
-		Redo:     b("U", "redo", "U", "ctrl+y"),
+		Redo:     b("U/ctrl+r", "redo", "U", "ctrl+y", "ctrl+r"), // ctrl+r: vi's redo
 
 		Settings:  b("t", "training setup", "t"),
 		ChartView: b("p", "depth chart", "p"),

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -35,6 +36,36 @@ func TestArrowsAndVimKeys(t *testing.T) {
 		if !found {
 			t.Errorf("%v lacks %q", b.Keys(), pair[1])
 		}
+	}
+}
+
+// TestUndoRedoKeys: undo and redo answer the keys of the common editors
+// (common practice: ctrl+z / ctrl+y in most, u / ctrl+r in vi), and no
+// other action of the normal mode takes them.
+func TestUndoRedoKeys(t *testing.T) {
+	km := DefaultKeyMap()
+	tests := []struct {
+		action string
+		b      key.Binding
+		keys   []string
+	}{
+		{"undo", km.Undo, []string{"u", "ctrl+z"}},
+		{"redo", km.Redo, []string{"U", "ctrl+y", "ctrl+r"}},
+	}
+	for _, tt := range tests {
+		for _, k := range tt.keys {
+			if !slices.Contains(tt.b.Keys(), k) {
+				t.Errorf("%s lacks %q: %v", tt.action, k, tt.b.Keys())
+			}
+			for _, a := range km.Actions() {
+				if a.Name != tt.action && hasMode(a.Modes, Normal) && slices.Contains(a.Binding.Keys(), k) {
+					t.Errorf("%q is bound to %s as well as %s", k, a.Name, tt.action)
+				}
+			}
+		}
+	}
+	if h := km.Redo.Help().Key; !strings.Contains(h, "ctrl+r") {
+		t.Errorf("redo's help %q does not show ctrl+r", h)
 	}
 }
 
@@ -70,7 +101,8 @@ func TestOverrides(t *testing.T) {
 		t.Error("redo still enabled")
 	}
 	tests := []struct{ src, want string }{
-		{"ad: i\n", `unknown action "ad"`},
+		{"ad: i\n", `unknown action "ad"; did you mean "add"? (actions: up, down,`},
+		{"zzzz: i\n", `unknown action "zzzz"; actions: up, down,`},
 		{"add: j\n", `key "j" is bound to both "down" and "add" in normal mode`},
 		{"add: {x: 1}\n", "add: give a key or a list of keys"},
 		{"- a\n", "not a YAML mapping"},

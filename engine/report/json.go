@@ -22,12 +22,14 @@ type JSON struct {
 	Errors   []string    `json:"errors"`   // problems with the input itself
 	Warnings []string    `json:"warnings"` // reserved for stack-wide notes
 	Memory   *JSONMemory `json:"memory"`   // training memory per GPU (an estimate)
-	Fit      *JSONFit    `json:"fit"`      // null without a budget
+	Fit      *JSONFit    `json:"fit"`      // null without a budget, and when the memory is not estimated
 }
 
 // JSONMemory is the training-memory estimate for one GPU, in bytes.
 type JSONMemory struct {
-	Estimate    bool           `json:"estimate"` // always true: see the assumptions
+	Estimate    bool           `json:"estimate"`  // always true: see the assumptions
+	Estimated   bool           `json:"estimated"` // false when the stack has errors: the figures are partial, fits is false and fit null
+	Reason      string         `json:"reason"`    // why the memory is not estimated ("the stack has 2 error(s)"); "" when it is
 	Setup       JSONSetup      `json:"setup"`
 	Weights     int64          `json:"weights"`
 	Gradients   int64          `json:"gradients"`
@@ -176,7 +178,7 @@ func buildHead(an *engine.Analysis) *JSON {
 	}
 	t := an.Training
 	doc.Memory = &JSONMemory{
-		Estimate: true,
+		Estimate: true, Estimated: m.Estimated, Reason: m.Reason(),
 		Setup: JSONSetup{Batch: max(t.Batch, 1), MicroBatch: m.MicroBatch, GPUs: max(t.GPUs, 1),
 			Precision: t.Precision.String(), Optimizer: t.Optimizer.String(), Shard: t.Shard.String(),
 			Accumulate: max(t.Accumulate, 1), Checkpoint: t.Checkpoint},

@@ -125,6 +125,12 @@ func WriteMarkdown(w io.Writer, an *engine.Analysis) error {
 		}
 	}
 	t := an.Training
+	if !m.Estimated {
+		fmt.Fprintf(b, "\n**Training memory per GPU** at batch %d on %d GPU(s), %s, %s: %s; fix them (see the diagnostics) for an estimate.\n",
+			max(t.Batch, 1), max(t.GPUs, 1), t.Precision, t.Optimizer, NotEstimated(m))
+		writeDiagnostics(b, r)
+		return b.Flush()
+	}
 	fmt.Fprintf(b, "\n**Training memory per GPU (estimate)** at batch %d on %d GPU(s), %s, %s:\n\n",
 		max(t.Batch, 1), max(t.GPUs, 1), t.Precision, t.Optimizer)
 	b.WriteString("| category | size |\n| --- | --- |\n")
@@ -144,13 +150,18 @@ func WriteMarkdown(w io.Writer, an *engine.Analysis) error {
 		b.WriteString("\n\n")
 	}
 	b.WriteString("_" + Caution + "_\n")
+	writeDiagnostics(b, r)
+	return b.Flush()
+}
+
+// writeDiagnostics writes the markdown report's list of diagnostics.
+func writeDiagnostics(b *bufio.Writer, r *engine.Result) {
 	if len(r.Diags) > 0 {
 		b.WriteString("\n**Diagnostics**\n\n")
 		for _, d := range r.Diags {
 			fmt.Fprintf(b, "- %s: %s\n", d.Severity, mdEscape(r.Describe(d)))
 		}
 	}
-	return b.Flush()
 }
 
 func outText(r *engine.Result) string {

@@ -197,11 +197,16 @@ func prefix(p engine.Path, n int) engine.Path {
 	return p
 }
 
-// writeMemory writes the training-memory estimate and the fit answers.
+// writeMemory writes the training-memory estimate and the fit answers, or,
+// for a stack with errors, that there is no estimate.
 func writeMemory(w io.Writer, an *engine.Analysis) {
 	m, t := &an.Memory, an.Training
-	fmt.Fprintf(w, "\ntraining memory per GPU — estimate · batch %d on %d GPU%s (micro-batch %d) · %s · %s",
-		max(t.Batch, 1), max(t.GPUs, 1), plS(max(t.GPUs, 1)), m.MicroBatch, t.Precision, t.Optimizer)
+	est := " — estimate"
+	if !m.Estimated {
+		est = ""
+	}
+	fmt.Fprintf(w, "\ntraining memory per GPU%s · batch %d on %d GPU%s (micro-batch %d) · %s · %s",
+		est, max(t.Batch, 1), max(t.GPUs, 1), plS(max(t.GPUs, 1)), m.MicroBatch, t.Precision, t.Optimizer)
 	if t.Shard != engine.ShardNone {
 		fmt.Fprintf(w, " · %s sharded", t.Shard)
 	}
@@ -209,6 +214,10 @@ func writeMemory(w io.Writer, an *engine.Analysis) {
 		fmt.Fprintf(w, " · checkpoint every %d", t.Checkpoint)
 	}
 	fmt.Fprintln(w)
+	if !m.Estimated {
+		fmt.Fprintf(w, "  %s; fix them (listed below) for an estimate\n", NotEstimated(m))
+		return
+	}
 	tb := table{align: []byte("lrr")}
 	for _, c := range m.Categories() {
 		share := ""
@@ -237,6 +246,13 @@ func writeMemory(w io.Writer, an *engine.Analysis) {
 		}
 	}
 	fmt.Fprintf(w, "  %s Sizes in binary units (1 GiB = 1024³ bytes).\n", Caution)
+}
+
+// NotEstimated is the line every report gives instead of a memory verdict
+// when the stack has errors: "memory not estimated: the stack has 2
+// error(s)".
+func NotEstimated(m *engine.Memory) string {
+	return "memory not estimated: " + m.Reason()
 }
 
 func plS(n int64) string {

@@ -27,6 +27,8 @@ func FuzzLoad(f *testing.F) {
 	}
 	f.Add([]byte("stackfit: 1\ninput: [3, 8, 8]\nlayers: [{conv: 8, kernel: [3, 5], pad: same, groups: depthwise}]\n"))
 	f.Add([]byte("a: &a [*a, *a]\n"))
+	f.Add([]byte("stackfit: 1\ninput: [3, 8, 8]\nstage:\n  cap: 256   # board limit\n  layers: 0\n  kernel: 5\n  bias: true\n  norm: group\n  groups: 16\n  act: leaky-relu\n  slope: 0.2\nlayers: [{conv: 8, kernel: 3}]\n"))
+	f.Add([]byte("stackfit: 1\ninput: [3, 8, 8]\ntraining: {budget: 24GiB, workspace: 1000B}\nstage: {norm: none, act: none, cap: 512}\nlayers: []\n"))
 	f.Add([]byte("stackfit: 1\ninput: [8, 8, 8]\nlayers:\n  - block: 2\n    residual: true\n    shortcut: identity\n    drop-path: 0.1\n    layers:\n      - {conv: 16, kernel: 1}\n      - gate: channel\n        layers: [global-pool, {conv: 4, kernel: 1}, {act: relu}, {conv: 16, kernel: 1}, {act: sigmoid}]\n"))
 	f.Add([]byte("stackfit: 1\ninput: [3, 8, 8]\nlayers:\n  - block: 2\n    residual: true\n    layers: [{add: x}]\n"))
 	f.Add([]byte("stackfit: 1\ninput: [8, 8, 8]\nlayers:\n  - fork: copy\n    name: f\n    branches:\n      - [{conv: x2, kernel: 1, round: 8}]\n      - - {conv: /2, kernel: 3, pad: 1, relative-to: block}\n        - fork: split\n          branches: [[], [{conv: x1, kernel: 1}]]\n      - []\n      - {name: b, layers: [{dense: x4, per-position: true}]}\n  - {norm: layer, eps: 1.0e-06}\n"))

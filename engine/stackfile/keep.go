@@ -12,7 +12,7 @@ import (
 // last read or written. When old already reads as s it is returned
 // unchanged, byte for byte. Otherwise the result is the canonical form of
 // s carrying old's comments: those of the document, of each top-level key
-// and training setting, and of each layer item that still exists — matched
+// and training and stage setting, and of each layer item that still exists — matched
 // in its list by content (an unchanged layer), by name, or by position and
 // kind between unchanged neighbours (an edited one); a deleted layer's
 // comments go with it. The result always loads back as s: if the comments
@@ -46,7 +46,7 @@ func SaveOver(old []byte, s *engine.Stack) ([]byte, error) {
 		copyComments(k, nk)
 		copyComments(v, nv)
 		switch k.Value {
-		case "training":
+		case "training", "stage":
 			copyKeyComments(v, nv)
 		case "layers":
 			keepList(v, nv, prev.Layers, s.Layers)

@@ -228,7 +228,7 @@ func allowedKeys(sp *engine.Spec) []string {
 
 func (d *decoder) badKind(n *yaml.Node, where, got string) {
 	kinds := kindNames()
-	if hint := Suggest(got, kinds); hint != "" && got != "" {
+	if hint := engine.Suggest(got, kinds); hint != "" && got != "" {
 		d.fail(n, where, ErrUnknown, "unknown layer kind %q; did you mean %q? (kinds: %s)", got, hint, strings.Join(kinds, ", "))
 		return
 	}

@@ -2,6 +2,7 @@ package stackfile
 
 import (
 	"bytes"
+	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -234,7 +235,7 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 	}
 	s := &engine.Stack{}
 	var haveInput, haveLayers bool
-	top := []string{"stackfit", "name", "note", "input", "training", "layers"}
+	top := []string{"stackfit", "name", "note", "input", "training", "stage", "layers"}
 	for _, kv := range d.mapping(doc.Content[0], "file", "a stack (stackfit:, name:, input:, layers:)") {
 		k, v := kv[0], kv[1]
 		switch k.Value {
@@ -250,6 +251,8 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 			s.Input, haveInput = d.shape(v, "input")
 		case "training":
 			s.Training = d.training(v)
+		case "stage":
+			s.Stage = d.stage(v)
 		case "layers":
 			haveLayers = true
 			s.Layers = d.layers(v)
@@ -267,7 +270,7 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 }
 
 func (d *decoder) unknown(k *yaml.Node, field string, allowed []string) {
-	if hint := Suggest(k.Value, allowed); hint != "" {
+	if hint := engine.Suggest(k.Value, allowed); hint != "" {
 		d.fail(k, field, ErrUnknown, "unknown key %q; did you mean %q? (allowed: %s)", k.Value, hint, strings.Join(allowed, ", "))
 		return
 	}
@@ -370,7 +373,7 @@ func (d *decoder) choice(n *yaml.Node, field string, options []string) (int, boo
 			return i, true
 		}
 	}
-	if hint := Suggest(n.Value, options); hint != "" {
+	if hint := engine.Suggest(n.Value, options); hint != "" {
 		d.fail(n, field, ErrRange, "%q is not one of %s; did you mean %q?", n.Value, strings.Join(options, ", "), hint)
 	} else {
 		d.fail(n, field, ErrRange, "%q is not one of %s", n.Value, strings.Join(options, ", "))
@@ -456,6 +459,61 @@ func (d *decoder) training(n *yaml.Node) engine.Training {
 		}
 	}
 	return t
+}
+
+// StageKeys lists the keys of the stage section.
+func StageKeys() []string { return engine.StageSettingKeys() }
+
+// stage reads the stage section: the settings of the stage the editor's
+// stage key inserts. Keys, bounds and choices are those of
+// engine.StageSettings; the values are read as YAML scalars of their kind.
+func (d *decoder) stage(n *yaml.Node) engine.Stage {
+	var st engine.Stage
+	for _, kv := range d.mapping(n, "stage", "stage settings") {
+		k, v := kv[0], kv[1]
+		field := "stage → " + k.Value
+		s, ok := engine.StageSettingFor(k.Value)
+		if !ok {
+			d.unknown(k, "stage", StageKeys())
+			continue
+		}
+		var text string
+		switch s.Kind {
+		case engine.SettingCount:
+			c, ok := d.int(v, field, s.Min, s.Max)
+			if !ok {
+				continue
+			}
+			text = strconv.FormatInt(c, 10)
+		case engine.SettingChoice:
+			i, ok := d.choice(v, field, s.Options)
+			if !ok {
+				continue
+			}
+			text = s.Options[i]
+		case engine.SettingFlag:
+			b, ok := d.bool(v, field)
+			if !ok {
+				continue
+			}
+			text = strconv.FormatBool(b)
+		case engine.SettingReal:
+			f, ok := d.float(v, field, s.FMin, s.FMax)
+			if !ok {
+				continue
+			}
+			text = strconv.FormatFloat(f, 'g', -1, 64)
+		}
+		if err := s.Parse(&st, text); err != nil {
+			var fe *engine.FieldError
+			if errors.As(err, &fe) {
+				d.fail(v, field, ErrRange, "%s is out of range; %s", text, fe.Want)
+			} else {
+				d.fail(v, field, ErrRange, "%v", err)
+			}
+		}
+	}
+	return st
 }
 
 // settingFor finds the setting named key in settings.

@@ -29,6 +29,9 @@ func document(s *engine.Stack) *yaml.Node {
 	if t := training(s.Training); t != nil {
 		put(root, "training", t)
 	}
+	if st := stage(s.Stage); st != nil {
+		put(root, "stage", st)
+	}
 	put(root, "layers", layerSeq(s.Layers))
 	return &yaml.Node{Kind: yaml.DocumentNode, Content: []*yaml.Node{root}}
 }
@@ -147,6 +150,34 @@ func training(t engine.Training) *yaml.Node {
 		v := strNode(s.Format(t))
 		if s.Kind == engine.SettingCount {
 			v = &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!int", Value: s.Format(t)}
+		}
+		put(m, s.Key, v)
+	}
+	if len(m.Content) == 0 {
+		return nil
+	}
+	return m
+}
+
+// stage writes the stage settings that are set, in the order of
+// engine.StageSettings; nil when none is.
+func stage(st engine.Stage) *yaml.Node {
+	m := &yaml.Node{Kind: yaml.MappingNode}
+	for _, s := range engine.StageSettings() {
+		if s.IsDefault(st) {
+			continue
+		}
+		text := s.Format(st)
+		v := strNode(text)
+		switch s.Kind {
+		case engine.SettingCount:
+			v = &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!int", Value: text}
+		case engine.SettingFlag:
+			b, _ := engine.ParseBool(s.Key, text)
+			v = boolNode(b)
+		case engine.SettingReal:
+			f, _ := strconv.ParseFloat(text, 64)
+			v = floatNode(f)
 		}
 		put(m, s.Key, v)
 	}

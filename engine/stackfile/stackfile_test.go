@@ -62,6 +62,7 @@ note: "two\nlines"
 input: [3, 33, 47]
 training: {batch: 32, precision: bf16-mixed, optimizer: adamw, budget: 24GiB, gpus: 8, shard: gradients,
   accumulate: 2, checkpoint: 4, workspace: 1GiB, overhead: 600MiB, headroom: 12.5%}
+stage: {cap: 256, layers: 1, kernel: 5, bias: false, norm: group, groups: 8, act: leaky-relu, slope: 0.2}
 layers:
   - {conv: 32, kernel: [3, 5], stride: [1, 2], pad: [1, 2], dilation: 2, groups: 1, bias: false, name: stem, note: first}
   - {conv: 32, kernel: 3, groups: depthwise, pad: same}
@@ -98,6 +99,10 @@ layers:
 		tr.GPUs != 8 || tr.Shard != engine.ShardGradients || tr.Accumulate != 2 || tr.Checkpoint != 4 || tr.Workspace != 1<<30 ||
 		tr.Overhead != 600<<20 || !tr.HeadroomSet || tr.Headroom != 0.125 {
 		t.Errorf("training = %+v", tr)
+	}
+	if st := s.Stage; st != (engine.Stage{Cap: 256, Layers: 1, LayersSet: true, Kernel: 5, Bias: engine.Off, Norm: engine.NormGroup, NormSet: true,
+		Groups: 8, Act: engine.ActLeakyReLU, ActSet: true, Slope: 0.2}) {
+		t.Errorf("stage = %+v", st)
 	}
 	if !s.Layers[1].Depthwise || s.Layers[1].Pad.Mode != engine.PadSame || s.Layers[2].Pad.Mode != engine.PadValid {
 		t.Errorf("depthwise/same/valid not read: %+v %+v", s.Layers[1], s.Layers[2])
@@ -136,7 +141,7 @@ func TestLoadErrors(t *testing.T) {
 		{"unknown kind with hint", head + "  - {convv: 8, kernel: 3}\n",
 			ErrUnknown, `4:5: layer 1: unknown layer kind "convv"; did you mean "conv"? (kinds: conv, deconv, pool, global-pool, pool-to, upsample, norm, act, dropout, flatten, dense, reshape, block, concat, add, gate, scale, shuffle, fork, branch)`},
 		{"unknown top-level key", "stackfit: 1\ninput: [3, 32, 32]\nlayer:\n  - flatten\n",
-			ErrUnknown, `3:1: file: unknown key "layer"; did you mean "layers"? (allowed: stackfit, name, note, input, training, layers)`},
+			ErrUnknown, `3:1: file: unknown key "layer"; did you mean "layers"? (allowed: stackfit, name, note, input, training, stage, layers)`},
 		{"wrong type", head + "  - {conv: eight, kernel: 3}\n",
 			ErrType, `4:12: layer 1 (conv) → conv (filters): expected a whole number, found the text "eight"`},
 		{"negative", head + "  - {conv: 8, kernel: -3}\n",
@@ -151,6 +156,8 @@ func TestLoadErrors(t *testing.T) {
 			ErrMissing, `4:5: layer 1 (conv): needs a kernel; add e.g. kernel: 3 or kernel: [3, 5]`},
 		{"bad choice", head + "  - {act: rleu}\n",
 			ErrRange, `4:11: layer 1 (act) → act: "rleu" is not one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid; did you mean "relu"?`},
+		{"alias of a choice", head + "  - {act: lrelu}\n", // PyTorch's LeakyReLU, shortened; relu is one edit away but not meant
+			ErrRange, `4:11: layer 1 (act) → act: "lrelu" is not one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid; did you mean "leaky-relu"?`},
 		{"bad pad word", head + "  - {conv: 8, kernel: 3, pad: half}\n",
 			ErrRange, `4:31: layer 1 (conv) → pad: "half" is not one of same, valid`},
 		{"input shape", "stackfit: 1\ninput: [3, 32]\nlayers: []\n",

@@ -62,3 +62,49 @@ func TestTrainingLimits(t *testing.T) {
 		t.Errorf("unknown key: %v", err)
 	}
 }
+
+// TestTrainingSizesNeedUnits: a size in the training section needs a unit
+// (a bare 24 once read as 24 bytes); 0 needs none. The canonical save
+// always writes a unit — B for a size that is no whole KiB — so every
+// saved file loads again, and an old file with units loads unchanged.
+func TestTrainingSizesNeedUnits(t *testing.T) {
+	const head = "stackfit: 1\ninput: [3, 8, 8]\n"
+	refused := []struct{ training, want string }{
+		{"training: {budget: 24}\n", "3:20: training → budget: 24 has no unit; write 24GiB (or 24GB, 24000MiB)"},
+		{"training: {workspace: 1.5}\n", "3:23: training → workspace: 1.5 has no unit; write 1.5GiB (or 1.5GB, 1500MiB)"},
+		{"training:\n  overhead: 536870912\n", "4:13: training → overhead: 536870912 has no unit; write 536870912B for bytes (or a size such as 24GiB)"},
+	}
+	for _, tt := range refused {
+		_, err := Load([]byte(head + tt.training + "layers: []\n"))
+		if err == nil || err.Error() != tt.want {
+			t.Errorf("%q: %v; want %s", tt.training, err, tt.want)
+		}
+	}
+	// Saved and reloaded: each size is written with a unit.
+	for _, tr := range []engine.Training{
+		{Budget: 24 << 30, Workspace: 1000, Overhead: 700 << 20},
+		{Budget: 24e9 + 1, Workspace: 1, Overhead: 1536},
+	} {
+		data, err := Save(&engine.Stack{Input: engine.Shape{C: 3, H: 8, W: 8}, Training: tr})
+		if err != nil {
+			t.Fatal(err)
+		}
+		back, err := Load(data)
+		if err != nil || back.Training != tr {
+			t.Errorf("%+v saved as\n%s\nreads back as %+v, %v", tr, data, back.Training, err)
+		}
+		for _, line := range strings.Split(string(data), "\n") {
+			for _, k := range []string{"budget: ", "workspace: ", "overhead: "} {
+				if v, ok := strings.CutPrefix(strings.TrimSpace(line), k); ok && strings.Trim(v, "0123456789") == "" {
+					t.Errorf("saved %q without a unit", line)
+				}
+			}
+		}
+	}
+	// A file as saved before units were required: sizes with units, 0 bare.
+	old := head + "training:\n  budget: 24GiB\n  workspace: 1000B\n  overhead: 0\nlayers: []\n"
+	s, err := Load([]byte(old))
+	if err != nil || s.Training != (engine.Training{Budget: 24 << 30, Workspace: 1000}) {
+		t.Errorf("old file: %+v, %v", s, err)
+	}
+}

@@ -35,8 +35,8 @@ func runCheck(args []string, std IO) int {
 		status = ExitProblems
 	}
 	switch {
-	case r.Errors > 0:
-		fmt.Fprintf(std.Out, "%s: memory: not estimated: the stack has %d error(s)\n", name, r.Errors)
+	case !m.Estimated:
+		fmt.Fprintf(std.Out, "%s: memory: not estimated: %s\n", name, m.Reason())
 	case m.Budget == 0 && an.Stack.Training.Budget > 0:
 		fmt.Fprintf(std.Out, "%s: memory: %s per GPU at batch %d (estimate); not checked: --budget none removes the file's budget of %s\n",
 			name, engine.FormatBytes(m.Total), max(an.Training.Batch, 1), engine.FormatBytes(an.Stack.Training.Budget))

@@ -31,14 +31,28 @@ const (
 type IO struct {
 	In       io.Reader
 	Out, Err io.Writer
-	Terminal bool // In and Out are a terminal: the editor can run
+	Terminal bool   // In and Out are a terminal
+	Term     string // $TERM; "dumb" (a terminal without cursor control) counts as no terminal for the editor
+}
+
+// editorCan reports whether the editor can run on std: In and Out are a
+// terminal, and one that can move the cursor.
+func (std IO) editorCan() bool { return std.Terminal && !dumbTerminal(std.Term) }
+
+// plainInstead tells, on a terminal TERM=dumb keeps the editor off, that
+// plain output (what) comes instead of the editor.
+func plainInstead(std IO, what string) {
+	if std.Terminal && dumbTerminal(std.Term) {
+		fmt.Fprintf(std.Err, "stackfit: TERM=dumb: this terminal cannot move the cursor, so %s comes instead of the editor; for the editor use a terminal that supports cursor control (e.g. TERM=xterm-256color)\n", what)
+	}
 }
 
 // Run executes stackfit with args (without the program name) and returns
 // the exit status.
 func Run(args []string, std IO) int {
 	if len(args) == 0 {
-		if !std.Terminal {
+		if !std.editorCan() {
+			plainInstead(std, "the example's report")
 			return showExample(std)
 		}
 		return runEditor("", examples.FruitGrader(), std)
@@ -70,6 +84,10 @@ func Run(args []string, std IO) int {
 			fmt.Fprintf(std.Err, "stackfit: the editor needs a terminal; for a printout use: stackfit report %s\n", textsafe.Line(args[0]))
 			return ExitUsage
 		}
+		if dumbTerminal(std.Term) {
+			fmt.Fprintf(std.Err, "stackfit: %s\n", dumbRefusal(args[0]))
+			return ExitUsage
+		}
 		return runEditor(args[0], nil, std)
 	}
 	fmt.Fprintf(std.Err, "stackfit: unknown command %q%s (commands: %s; a stack file name needs its extension, e.g. net.yaml)\n\n%s", args[0], didYouMean(args[0]), strings.Join(commands, ", "), usage)
@@ -84,7 +102,7 @@ var commands = []string{"report", "check", "export", "example", "help"}
 // substitutions and swaps of neighbours count one each), or the one
 // command it begins, as "; did you mean %q?" — or "".
 func didYouMean(name string) string {
-	best := stackfile.Suggest(name, commands)
+	best := engine.Suggest(name, commands)
 	if lower := strings.ToLower(name); best == "" && len(lower) >= 2 {
 		var prefixed []string
 		for _, c := range commands {
@@ -226,9 +244,10 @@ func runExample(args []string, std IO) int {
 		}
 		fmt.Fprintf(std.Out, "wrote %q; edit it with: stackfit %q\n", *out, *out)
 		return ExitOK
-	case std.Terminal:
+	case std.editorCan():
 		return runEditor("", e.Data(), std)
 	}
+	plainInstead(std, "the example's stack file")
 	_, err = std.Out.Write(e.Data())
 	if err != nil {
 		return ExitUsage
@@ -393,5 +412,5 @@ func parseInterleaved(fs *flag.FlagSet, args []string) ([]string, error) {
 
 // Main runs stackfit on the process's arguments and streams.
 func Main() int {
-	return Run(os.Args[1:], IO{In: os.Stdin, Out: os.Stdout, Err: os.Stderr, Terminal: interactive()})
+	return Run(os.Args[1:], IO{In: os.Stdin, Out: os.Stdout, Err: os.Stderr, Terminal: interactive(), Term: os.Getenv("TERM")})
 }

@@ -240,3 +240,34 @@ func TestExampleCommand(t *testing.T) {
 		t.Errorf("an existing file (exit %d, now %q): %s", code, data, errs)
 	}
 }
+
+// TestNotEstimatedEverywhere: one rule for a stack with errors in every
+// output — the memory is not estimated, and no output gives a verdict
+// (the partial totals once read "fits; 4.97 GiB left" in the text report,
+// "fits": true in JSON, and raised a share-of-parameters warning).
+func TestNotEstimatedEverywhere(t *testing.T) {
+	broken := "stackfit: 1\ninput: [3, 32, 32]\ntraining: {batch: 8, budget: 24GiB}\n" +
+		"layers: [{conv: 8, kernel: 3, pad: 1}, {conv: 64, kernel: 3, pad: 1}, {conv: 8, kernel: 99}, {conv: 512, kernel: 3}]\n"
+	const says = "memory not estimated: the stack has 1 error(s)"
+	tests := []struct {
+		args    []string
+		want    string
+		notWant []string
+	}{
+		{[]string{"report", "-"}, says, []string{"fits", "left", "holds"}},
+		{[]string{"report", "-", "--format", "markdown"}, says, []string{"fits", "holds"}},
+		{[]string{"report", "-", "--format", "json"}, `"estimated":false,"reason":"the stack has 1 error(s)"`, []string{`"fits":true`, `"fit": {`, "holds"}},
+		{[]string{"check", "-"}, "<stdin>: memory: not estimated: the stack has 1 error(s)", []string{"fits", "holds"}},
+	}
+	for _, tt := range tests {
+		out, errs, code := run(t, broken, tt.args...)
+		if code != ExitProblems || !strings.Contains(out, tt.want) {
+			t.Errorf("%v: exit %d, lacks %q:\n%s%s", tt.args, code, tt.want, out, errs)
+		}
+		for _, w := range tt.notWant {
+			if strings.Contains(out, w) {
+				t.Errorf("%v: has %q:\n%s", tt.args, w, out)
+			}
+		}
+	}
+}

@@ -15,6 +15,7 @@ import (
 
 	"stackfit/engine"
 	"stackfit/engine/stackfile"
+	"stackfit/engine/textsafe"
 	"stackfit/keymap"
 	"stackfit/ui/editor"
 	"stackfit/ui/store"
@@ -53,9 +54,39 @@ func readEnvironment() environment {
 // example stack file builtin (not saved until the user picks a file).
 func runEditor(path string, builtin []byte, std IO) int {
 	env := readEnvironment()
+	opt, release, code := editorOptions(path, builtin, env, std)
+	defer release()
+	if code != ExitOK {
+		return code
+	}
+	lipgloss.SetColorProfile(env.color)
+	m := editor.New(opt)
+	p := tea.NewProgram(m, tea.WithAltScreen(), tea.WithInput(std.In), tea.WithOutput(std.Out))
+	if _, err := p.Run(); err != nil {
+		fmt.Fprintf(std.Err, "stackfit: %v\n", err)
+		return ExitUsage
+	}
+	return ExitOK
+}
+
+// editorOptions gathers what the editor starts with: the keys (the keys
+// file's, or the defaults when it cannot be used — said on standard error
+// and in the notice the editor shows at start, where the full screen does
+// not hide it), the stack, the journals and what earlier sessions left.
+// release lets go of the journals held; a status other than ExitOK means
+// the editor must not start.
+func editorOptions(path string, builtin []byte, env environment, std IO) (editor.Options, func(), int) {
+	var held []*store.Journal
+	release := func() {
+		for _, j := range held {
+			j.Release()
+		}
+	}
 	km, err := keymap.LoadFile(env.paths.Keys, keymap.DefaultKeyMap())
+	var keysNote string
 	if err != nil {
-		fmt.Fprintf(std.Err, "stackfit: %v\n(using the default keys; fix or remove the file)\n", err)
+		keysNote = keysNotice(err)
+		fmt.Fprintf(std.Err, "stackfit: %s\n", textsafe.Text(keysNote))
 	}
 	opt := editor.Options{Path: path, Keys: km, Styles: styles.DefaultStyles(), KeysPath: env.paths.Keys, Files: store.Disk{}}
 	switch {
@@ -63,7 +94,7 @@ func runEditor(path string, builtin []byte, std IO) int {
 		s, err := stackfile.Load(builtin)
 		if err != nil {
 			fmt.Fprintf(std.Err, "stackfit: built-in example: %v\n", err)
-			return ExitUsage
+			return opt, release, ExitUsage
 		}
 		opt.Stack = s
 	default:
@@ -77,30 +108,54 @@ func runEditor(path string, builtin []byte, std IO) int {
 			opt.Stack = &engine.Stack{Name: name, Input: engine.Shape{C: 3, H: 224, W: 224}}
 		default:
 			fmt.Fprintf(std.Err, "stackfit: %v\n", err)
-			return ExitUsage
+			return opt, release, ExitUsage
 		}
 	}
-	var held []*store.Journal
-	defer func() {
-		for _, j := range held {
-			j.Release()
-		}
-	}()
 	opt.JournalFor = func(p string) editor.Journal {
 		j := store.JournalFor(p, env.paths.State)
 		j.Hold() // best effort: without it other sessions cannot see this one
 		held = append(held, j)
 		return j
 	}
-	opt.Recovery, opt.Notice = recovery(path, env.paths.State, opt.Base, opt.Stack, opt.NewFile)
-	lipgloss.SetColorProfile(env.color)
-	m := editor.New(opt)
-	p := tea.NewProgram(m, tea.WithAltScreen(), tea.WithInput(std.In), tea.WithOutput(std.Out))
-	if _, err := p.Run(); err != nil {
-		fmt.Fprintf(std.Err, "stackfit: %v\n", err)
-		return ExitUsage
+	var notice string
+	opt.Recovery, notice = recovery(path, env.paths.State, opt.Base, opt.Stack, opt.NewFile)
+	opt.Notice = joinNotices(keysNote, notice)
+	return opt, release, ExitOK
+}
+
+// keysNotice says that the keys file could not be used and the default
+// keys apply instead. err comes from keymap.LoadFile, which names the file
+// and the problem; what matters most comes first, since the editor's
+// status line cuts a long message at the window's edge.
+func keysNotice(err error) string {
+	return "the default keys apply, not the keys file's: " + err.Error() + " — fix or remove the keys file"
+}
+
+// joinNotices joins the notices that are not empty, "; " between them.
+func joinNotices(notes ...string) string {
+	var out []string
+	for _, n := range notes {
+		if n != "" {
+			out = append(out, n)
+		}
 	}
-	return ExitOK
+	return strings.Join(out, "; ")
+}
+
+// dumbTerminal reports whether term, the value of $TERM, names a terminal
+// that cannot move the cursor ("dumb": Emacs shells, some CI consoles),
+// where the full-screen editor would print its escape codes as text.
+func dumbTerminal(term string) bool {
+	return strings.EqualFold(strings.TrimSpace(term), "dumb")
+}
+
+// dumbRefusal is what stackfit says when TERM=dumb keeps the editor from
+// starting on file.
+func dumbRefusal(file string) string {
+	f := textsafe.Line(file)
+	return "TERM=dumb: this terminal cannot move the cursor, so the full-screen editor cannot run; " +
+		"use a terminal that supports cursor control (e.g. TERM=xterm-256color), or stackfit report " + f +
+		" or stackfit check " + f + " for plain output"
 }
 
 // recovery looks for what earlier sessions left of path: a live session is

@@ -87,11 +87,33 @@ func TestOutputIsNotInput(t *testing.T) {
 	}
 }
 
+// TestSizeFlagsNeedUnits: a size flag without a unit is refused (it used
+// to mean bytes, so --budget 24 checked against 24 bytes), naming the fix;
+// with a unit, or B for bytes, it is taken.
+func TestSizeFlagsNeedUnits(t *testing.T) {
+	tests := []struct {
+		flag, value, want string
+	}{
+		{"--budget", "24", `stackfit check: --budget "24": 24 has no unit; write 24GiB (or 24GB, 24000MiB)`},
+		{"--budget", "0.2", `stackfit check: --budget "0.2": 0.2 has no unit; write 0.2GiB (or 0.2GB, 200MiB)`},
+		{"--workspace", "512", `stackfit check: --workspace "512": 512 has no unit; write 512GiB (or 512GB, 512000MiB)`},
+		{"--overhead", "734003200", `stackfit check: --overhead "734003200": 734003200 has no unit; write 734003200B for bytes (or a size such as 24GiB)`},
+		{"--budget", "24GiB", ""},
+		{"--overhead", "734003200B", ""},
+	}
+	for _, tt := range tests {
+		_, errs, code := run(t, "", "check", example, tt.flag, tt.value)
+		if tt.want == "" && code != ExitOK || tt.want != "" && (code != ExitUsage || !strings.Contains(errs, tt.want)) {
+			t.Errorf("%s %s: exit %d, %q; want %q", tt.flag, tt.value, code, errs, tt.want)
+		}
+	}
+}
+
 // TestBudgetZero: --budget 0 (or any size of 0 bytes, or empty) is
 // refused with the three ways to say what was meant; --budget none
 // removes the file's budget, so check reports no budget.
 func TestBudgetZero(t *testing.T) {
-	for _, v := range []string{"0", "0GiB", "", "0.2"} {
+	for _, v := range []string{"0", "0GiB", "", "0.2B"} {
 		_, errs, code := run(t, "", "check", example, "--budget", v)
 		want := `--budget "` + v + `": a budget of 0 bytes holds nothing; give a size such as 24GiB, auto (ask nvidia-smi), or none to check no budget, not even the file's`
 		if code != ExitUsage || !strings.Contains(errs, want) {
