@@ -8,6 +8,7 @@ import (
 	"testing"
 	"time"
 
+	"stackfit/engine"
 	"stackfit/engine/examples"
 	"stackfit/engine/stackfile"
 	"stackfit/ui/store"
@@ -104,7 +105,7 @@ func TestCrashRecovery(t *testing.T) {
 		t.Fatalf("journals: %+v", found)
 	}
 	kept := found[0].Stack
-	if len(kept.Layers) != 36 || kept.Layers[0].Filters != 64 {
+	if len(kept.Layers) != 28 || kept.Layers[0].Filters != 64 { // 27 items and the stage's block
 		t.Fatalf("journal holds %d layers", len(kept.Layers))
 	}
 	tm.start("two", dir, bin, file)
@@ -149,13 +150,13 @@ func TestRealTerminal(t *testing.T) {
 	waitFor("Fruit grader")
 	keys("j", "j", "n")
 	waitFor("added a stage")
-	keys("k", "k", ">")
+	keys("j", ">") // the stage's first convolution, inside its block
 	waitFor("widened conv 64")
 	keys("u")
 	waitFor("undid: widened")
 	keys("w")
 	s := waitFor("saved grader.yaml")
-	for _, want := range []string{"36 layers", "conv 64 k3 s2 p1 nobias", "fits · memory"} {
+	for _, want := range []string{"30 layers, 1 block", "block ×3", "conv 64 k3 s2 p1 nobias", "fits · memory"} {
 		if !strings.Contains(s, want) {
 			t.Errorf("screen lacks %q:\n%s", want, s)
 		}
@@ -165,16 +166,14 @@ func TestRealTerminal(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(saved.Layers) != 36 {
-		t.Errorf("saved %d layers, want 36", len(saved.Layers))
+	if len(saved.Layers) != 28 {
+		t.Errorf("saved %d items, want 28 (27 and the stage)", len(saved.Layers))
 	}
-	// The stage: stride-2 convolution to 64 channels, then two more at 64;
-	// the undone widen left them at 64.
-	if l := saved.Layers[3]; l.Filters != 64 || l.Stride.H != 2 {
-		t.Errorf("stage entry %+v", l)
-	}
-	if saved.Layers[9].Filters != 64 {
-		t.Errorf("layer 10 has %d filters; the widen was undone", saved.Layers[9].Filters)
+	// The stage: a block of three repeats of a stride-2 convolution to 64
+	// channels (later repeats run with stride 1), norm and act; the undone
+	// widen left it at 64.
+	if b := saved.Layers[3]; b.Kind != engine.KindBlock || b.Repeat != 3 || len(b.Body) != 3 || b.Body[0].Filters != 64 || b.Body[0].Stride.H != 2 {
+		t.Errorf("stage %+v", b)
 	}
 	// The file is in canonical form and reloads identically.
 	data, _ := os.ReadFile(file)

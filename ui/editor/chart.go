@@ -3,6 +3,7 @@ package editor
 import (
 	"fmt"
 	"math"
+	"stackfit/ui/editor/cells"
 	"strings"
 
 	"stackfit/engine"
@@ -11,11 +12,11 @@ import (
 // chartView plots, along the depth of the stack, each row's activation
 // volume (C·H·W) and parameter count on log scales, with the rows where the
 // resolution drops marked: the shape of a network at a glance.
-func (m *Model) chartView(h int) string {
-	rows := m.res.Rows
-	w := m.width - 8
+func (fr *frame) chartView(h int) string {
+	rows := fr.res.Rows
+	w := fr.width - 8
 	if len(rows) == 0 || w < 10 {
-		return pad([]string{"nothing to chart: the stack is empty"}, h, m.width)
+		return cells.Block([]string{"nothing to chart: the stack is empty"}, h, fr.width)
 	}
 	// Short stacks get up to three columns a row; long ones share columns,
 	// each showing the largest value of its rows.
@@ -24,7 +25,7 @@ func (m *Model) chartView(h int) string {
 	vol := make([]float64, cols)
 	par := make([]float64, cols)
 	stage := make([]bool, cols)
-	prevH := m.res.Input.H
+	prevH := fr.res.Input.H
 	for i := range rows {
 		r := &rows[i]
 		if r.Status != engine.StatusOK {
@@ -44,17 +45,17 @@ func (m *Model) chartView(h int) string {
 	}
 	plotH := max((h-5)/2, 2)
 	var lines []string
-	lines = append(lines, m.st.Label.Render("activation volume per layer (C·H·W, log scale)"))
-	lines = append(lines, m.bars(vol, plotH, m.st.Gauge[3].Render)...)
-	lines = append(lines, m.axis(stage))
-	lines = append(lines, m.st.Label.Render("parameters per layer (log scale)"))
-	lines = append(lines, m.bars(par, plotH, m.st.Gauge[0].Render)...)
-	lines = append(lines, m.st.Dim.Render(fmt.Sprintf("%d rows over %d columns · ┃ marks where the resolution drops · p or esc returns", len(rows), cols)))
-	return pad(lines, h, m.width)
+	lines = append(lines, fr.st.Label.Render("activation volume per layer (C·H·W, log scale)"))
+	lines = append(lines, fr.bars(vol, plotH, fr.st.Gauge[3].Render)...)
+	lines = append(lines, fr.axis(stage))
+	lines = append(lines, fr.st.Label.Render("parameters per layer (log scale)"))
+	lines = append(lines, fr.bars(par, plotH, fr.st.Gauge[0].Render)...)
+	lines = append(lines, fr.st.Dim.Render(fmt.Sprintf("%d rows over %d columns · ┃ marks where the resolution drops · p or esc returns", len(rows), cols)))
+	return cells.Block(lines, h, fr.width)
 }
 
 // bars draws values as vertical bars h cells tall, on a log scale.
-func (m *Model) bars(vals []float64, h int, paint func(...string) string) []string {
+func (fr *frame) bars(vals []float64, h int, paint func(...string) string) []string {
 	top, bottom := 0.0, math.Inf(1)
 	for _, v := range vals {
 		top = math.Max(top, v)
@@ -87,12 +88,12 @@ func (m *Model) bars(vals []float64, h int, paint func(...string) string) []stri
 		case y == h-1 && bottom < top:
 			label = fmt.Sprintf("%6s", engine.FormatCount(int64(bottom)))
 		}
-		out[y] = m.st.Dim.Render(label) + " " + paint(b.String())
+		out[y] = fr.st.Dim.Render(label) + " " + paint(b.String())
 	}
 	return out
 }
 
-func (m *Model) axis(stage []bool) string {
+func (fr *frame) axis(stage []bool) string {
 	var b strings.Builder
 	for _, s := range stage {
 		if s {
@@ -101,5 +102,5 @@ func (m *Model) axis(stage []bool) string {
 			b.WriteString("─")
 		}
 	}
-	return m.st.Dim.Render("       " + b.String())
+	return fr.st.Dim.Render("       " + b.String())
 }

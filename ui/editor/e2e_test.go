@@ -32,27 +32,27 @@ func TestEndToEnd(t *testing.T) {
 	wait("Fruit grader")
 	send("j", "j", "n")
 	wait("added a stage")
-	send("k", "k", ">")
+	send("j", ">") // the stage's first convolution, inside its block
 	wait("widened conv")
 	send("u")
 	wait("undid: widened")
 	send("q", "n")
 	fm := tm.FinalModel(t, teatest.WithFinalTimeout(5*time.Second)).(*Model)
-	if got := len(fm.stack.Layers); got != 27+9 {
-		t.Errorf("%d layers, want 36", got)
+	if got := len(fm.stack.Layers); got != 27+1 {
+		t.Errorf("%d items, want 28 (27 and the stage)", got)
 	}
-	if fm.stack.Layers[9].Filters != 64 {
-		t.Errorf("the widen was not undone: %d", fm.stack.Layers[9].Filters)
+	if f := fm.stack.Layers[3].Body[0].Filters; f != 64 {
+		t.Errorf("the widen was not undone: %d", f)
 	}
 	fm.quitting = false
 	v := view(fm)
-	for _, want := range []string{"36 layers", "undid: widened conv 64 k3 p1 nobias", "fits · memory"} {
+	for _, want := range []string{"30 layers, 1 block", "undid: widened conv 64 k3 s2 p1 nobias", "fits · memory"} {
 		if !strings.Contains(v, want) {
 			t.Errorf("final view lacks %q:\n%s", want, v)
 		}
 	}
 	// The background width search reported back.
-	if fm.fit.MaxWidth <= 0 {
+	if fm.nums.fit.MaxWidth <= 0 {
 		t.Error("no width answer arrived")
 	}
 }
@@ -65,11 +65,11 @@ func TestWidthSearchIsCurrent(t *testing.T) {
 	old := cmd().(widthMsg)
 	press(m, ">") // a change starts a newer search
 	m.Update(old)
-	if m.fit.MaxWidth == old.width && old.gen != m.widthGen {
+	if m.nums.fit.MaxWidth == old.width && old.gen != m.nums.widthGen {
 		t.Error("a stale width answer was shown")
 	}
-	m.Update(widthMsg{gen: m.widthGen, width: 1.5, limit: engine.CatActivations, exact: true})
-	if m.fit.MaxWidth != 1.5 {
+	m.Update(widthMsg{gen: m.nums.widthGen, width: 1.5, limit: engine.CatActivations, exact: true})
+	if m.nums.fit.MaxWidth != 1.5 {
 		t.Error("the current answer was dropped")
 	}
 	_ = tea.Quit

@@ -3,6 +3,7 @@ package editor
 import (
 	"errors"
 	"fmt"
+	"strings"
 
 	tea "github.com/charmbracelet/bubbletea"
 
@@ -17,7 +18,7 @@ import (
 // replaces goes to the history untouched, so the background width search
 // can read the current stack while later changes are made.
 func (m *Model) change(what string, fn func(s *engine.Stack) (addr, error)) tea.Cmd {
-	before := snapshot{stack: m.stack, cursor: m.cursor, what: what}
+	before := snapshot{stack: m.stack, cursor: m.tree.cursor, what: what}
 	next := m.stack.Clone()
 	sel, err := fn(next)
 	if err != nil {
@@ -27,20 +28,20 @@ func (m *Model) change(what string, fn func(s *engine.Stack) (addr, error)) tea.
 	// The journal writes the stack file's form after every change; a
 	// change past the size a stack file may have is refused here, so the
 	// editor never holds what it could not save.
-	wasUnprotected := m.unprotected
+	wasUnprotected := m.file.unprotected
 	recErr := m.recordStack(next)
 	if errors.Is(recErr, stackfile.ErrTooLarge) {
-		m.unprotected = wasUnprotected // the journal still holds the stack before
+		m.file.unprotected = wasUnprotected // the journal still holds the stack before
 		m.setStatus("refused: "+recErr.Error(), statusError)
 		return nil
 	}
 	m.stack = next
 	m.hist.push(before, next)
-	m.dirty = true
-	m.anchor = -1
+	m.file.dirty = true
+	m.tree.anchor = -1
 	m.recompute()
 	if sel != nil {
-		m.selectAddr(sel)
+		m.tree.selectAddr(sel, m.stack, &m.nums.res)
 	}
 	if err := recErr; err != nil {
 		m.setStatus(what+" — but no recovery copy could be written ("+err.Error()+"); save soon", statusError)
@@ -57,39 +58,17 @@ func (m *Model) record() error { return m.recordStack(m.stack) }
 
 // recordStack writes s to the journal.
 func (m *Model) recordStack(s *engine.Stack) error {
-	if m.journal == nil {
+	if m.file.journal == nil {
 		return nil
 	}
-	err := m.journal.Record(s)
-	m.unprotected = err != nil
+	err := m.file.journal.Record(s)
+	m.file.unprotected = err != nil
 	return err
-}
-
-// selectAddr moves the cursor to the item at a, unfolding its blocks.
-func (m *Model) selectAddr(a addr) {
-	unfolded := false
-	for n := 1; n < len(a); n++ {
-		k := addr(a[:n]).key()
-		if m.folded[k] {
-			delete(m.folded, k)
-			unfolded = true
-		}
-	}
-	if unfolded {
-		m.rebuild()
-	}
-	want := a.key()
-	for i := range m.items {
-		if m.items[i].addr.key() == want {
-			m.cursor = i
-			return
-		}
-	}
 }
 
 // undo and redo swap whole snapshots.
 func (m *Model) undo() tea.Cmd {
-	s, ok := m.hist.back(snapshot{stack: m.stack, cursor: m.cursor})
+	s, ok := m.hist.back(snapshot{stack: m.stack, cursor: m.tree.cursor})
 	if !ok {
 		m.setStatus("nothing to undo", statusError)
 		return nil
@@ -98,7 +77,7 @@ func (m *Model) undo() tea.Cmd {
 }
 
 func (m *Model) redo() tea.Cmd {
-	s, ok := m.hist.forward(snapshot{stack: m.stack, cursor: m.cursor})
+	s, ok := m.hist.forward(snapshot{stack: m.stack, cursor: m.tree.cursor})
 	if !ok {
 		m.setStatus("nothing to redo", statusError)
 		return nil
@@ -107,9 +86,9 @@ func (m *Model) redo() tea.Cmd {
 }
 
 func (m *Model) restore(s snapshot, verb string) tea.Cmd {
-	m.stack, m.cursor = s.stack, s.cursor
-	m.dirty = true
-	m.anchor = -1
+	m.stack, m.tree.cursor = s.stack, s.cursor
+	m.file.dirty = true
+	m.tree.anchor = -1
 	m.recompute()
 	if err := m.record(); err != nil {
 		m.setStatus(verb+s.what+" — but no recovery copy could be written ("+err.Error()+")", statusError)
@@ -119,46 +98,93 @@ func (m *Model) restore(s snapshot, verb string) tea.Cmd {
 	return m.widthCmd()
 }
 
-// insertAfter places l after the selected item, in the same list; on an
+// edit is a change to make, as Model.change takes it: what it does, for
+// the status line and the undo history, and the function that makes it
+// on a copy of the stack.
+type edit struct {
+	what string
+	fn   func(s *engine.Stack) (addr, error)
+}
+
+// apply makes an edit the stack view worked out, or says why there is
+// none.
+func (m *Model) apply(e edit, err error) tea.Cmd {
+	if err != nil {
+		m.setStatus(err.Error(), statusError)
+		return nil
+	}
+	return m.change(e.what, e.fn)
+}
+
+// insertAfter places l after the selected item as one change (see
+// placeAfter).
+func (m *Model) insertAfter(l engine.Layer, what string) tea.Cmd {
+	if _, err := m.tree.editable(); err != nil && m.tree.current() != nil {
+		return m.apply(edit{}, fmt.Errorf("select a layer of the stack to add below it; %w", err))
+	}
+	return m.change(what, func(s *engine.Stack) (addr, error) { return m.tree.placeAfter(s, l) })
+}
+
+// placeAfter puts l after the selected item of s, in the same list; on an
 // empty block, gate or branch it goes inside. Inside a fork's list of
 // branches a layer becomes a new branch of its own, and a branch can only
-// go into a fork.
-func (m *Model) insertAfter(l engine.Layer, what string) tea.Cmd {
-	cur := m.current()
-	return m.change(what, func(s *engine.Stack) (addr, error) {
+// go into a fork. It returns where l went.
+func (t *stackTree) placeAfter(s *engine.Stack, l engine.Layer) (addr, error) {
+	cur := t.current()
+	if cur == nil || cur.gen != nil {
+		if l.Kind == engine.KindBranch {
+			return nil, errBranchOutside
+		}
 		if cur == nil {
-			if l.Kind == engine.KindBranch {
-				return nil, errBranchOutside
-			}
 			s.Layers = append(s.Layers, l)
 			return addr{len(s.Layers) - 1}, nil
 		}
-		if c := at(s, cur.addr); c != nil && engine.SpecOf(c.Kind).Body && len(c.Body) == 0 {
-			item, err := placed(l, c.Kind == engine.KindFork)
-			if err != nil {
-				return nil, err
-			}
-			if err := m.checkDepth(s, append(cur.addr, 0), item); err != nil {
-				return nil, err
-			}
-			c.Body = append(c.Body, item)
-			return append(cur.addr, 0), nil
-		}
-		ls, i := list(s, cur.addr)
-		if ls == nil {
-			return nil, errors.New("the selected layer is gone")
-		}
-		parent := at(s, cur.addr.parent())
-		item, err := placed(l, parent != nil && parent.Kind == engine.KindFork)
+	}
+	if c := at(s, cur.addr); c != nil && engine.SpecOf(c.Kind).Body && len(c.Body) == 0 {
+		item, err := placed(l, c.Kind == engine.KindFork)
 		if err != nil {
 			return nil, err
 		}
-		if err := m.checkDepth(s, cur.addr, item); err != nil {
+		if err := checkDepth(s, append(cur.addr, 0), item); err != nil {
 			return nil, err
 		}
-		*ls = append((*ls)[:i+1], append([]engine.Layer{item}, (*ls)[i+1:]...)...)
-		return cur.addr.with(i + 1), nil
-	})
+		c.Body = append(c.Body, item)
+		return append(cur.addr, 0), nil
+	}
+	ls, i := list(s, cur.addr)
+	if ls == nil {
+		return nil, errors.New("the selected layer is gone")
+	}
+	parent := at(s, cur.addr.parent())
+	item, err := placed(l, parent != nil && parent.Kind == engine.KindFork)
+	if err != nil {
+		return nil, err
+	}
+	if err := checkDepth(s, cur.addr, item); err != nil {
+		return nil, err
+	}
+	*ls = append((*ls)[:i+1], append([]engine.Layer{item}, (*ls)[i+1:]...)...)
+	return cur.addr.with(i + 1), nil
+}
+
+// errGenerated says why a line the engine makes cannot be edited.
+func errGenerated(it *item) error {
+	return errors.New(it.gen.what + " follows from its block's settings: edit the block's own line or the layers of its first repeat")
+}
+
+// errEmpty is the answer of an edit on an empty stack.
+var errEmpty = errors.New("the stack is empty: add a layer with a or :")
+
+// editable returns the selected item when it is one of the stack's own.
+func (t *stackTree) editable() (*item, error) {
+	cur := t.current()
+	switch {
+	case cur == nil:
+		return nil, errEmpty
+	case cur.gen != nil:
+		return nil, errGenerated(cur)
+	}
+	return cur, nil
 }
 
 var errBranchOutside = errors.New("a branch goes inside a fork; add a fork (its branches come with it) or select one of its branches")
@@ -177,7 +203,7 @@ func placed(l engine.Layer, inFork bool) (engine.Layer, error) {
 
 // checkDepth refuses an item that would nest deeper than a stack file may
 // when placed at a, or a list longer than a stack file may hold.
-func (m *Model) checkDepth(s *engine.Stack, a addr, l engine.Layer) error {
+func checkDepth(s *engine.Stack, a addr, l engine.Layer) error {
 	if ls, _ := list(s, a); ls != nil && len(*ls) >= engine.MaxSegment {
 		return fmt.Errorf("this list already holds %d items, the most a stack file takes; put some in a block", len(*ls))
 	}
@@ -211,43 +237,46 @@ func stripNames(l *engine.Layer) {
 	}
 }
 
+// duplicate copies the selected item (names cleared) below it.
 func (m *Model) duplicate() tea.Cmd {
-	cur := m.current()
-	if cur == nil {
-		return nil
+	cur, err := m.tree.editable()
+	if err != nil {
+		return m.apply(edit{}, err)
 	}
 	c := engine.CloneLayers([]engine.Layer{*cur.layer})[0]
 	stripNames(&c)
 	return m.insertAfter(c, "copied "+engine.Summary(cur.layer))
 }
 
+// errRange is the answer of a range edit on a range that is not one list.
+var errRange = errors.New("a range must stay inside one list and hold only the stack's own layers; press v to clear it")
+
 // selection returns the selected sibling range (the cursor item alone
 // when no range is marked): the list's parent address and index bounds.
-func (m *Model) selection() (parent addr, lo, hi int, ok bool) {
-	cur := m.current()
-	if cur == nil {
-		return nil, 0, 0, false
+func (t *stackTree) selection() (parent addr, lo, hi int, err error) {
+	cur, err := t.editable()
+	if err != nil {
+		return nil, 0, 0, err
 	}
 	lo = cur.addr[len(cur.addr)-1]
 	hi = lo
-	if m.anchor >= 0 && m.anchor < len(m.items) {
-		a := m.items[m.anchor].addr
-		if len(a) != len(cur.addr) || a.parent().key() != cur.addr.parent().key() {
-			return nil, 0, 0, false
+	if t.anchor >= 0 && t.anchor < len(t.items) {
+		a := t.items[t.anchor].addr
+		if t.items[t.anchor].gen != nil || len(a) != len(cur.addr) || a.parent().key() != cur.addr.parent().key() {
+			return nil, 0, 0, errRange
 		}
 		lo, hi = min(lo, a[len(a)-1]), max(hi, a[len(a)-1])
 	}
-	return cur.addr.parent(), lo, hi, true
+	return cur.addr.parent(), lo, hi, nil
 }
 
-func (m *Model) remove() tea.Cmd {
-	parent, lo, hi, ok := m.selection()
-	if !ok {
-		m.setStatus("a range must stay inside one list; press v to clear it", statusError)
-		return nil
+// remove deletes the selected item or range.
+func (t *stackTree) remove() (edit, error) {
+	parent, lo, hi, err := t.selection()
+	if err != nil {
+		return edit{}, err
 	}
-	what := fmt.Sprintf("deleted %d layer%s", hi-lo+1, plural(hi-lo+1))
-	return m.change(what, func(s *engine.Stack) (addr, error) {
+	return edit{fmt.Sprintf("deleted %d layer%s", hi-lo+1, plural(hi-lo+1)), func(s *engine.Stack) (addr, error) {
 		ls, _ := list(s, append(parent, lo))
 		*ls = append((*ls)[:lo], (*ls)[hi+1:]...)
 		if len(*ls) == 0 {
@@ -257,15 +286,16 @@ func (m *Model) remove() tea.Cmd {
 			return nil, nil
 		}
 		return append(parent, min(lo, len(*ls)-1)), nil
-	})
+	}}, nil
 }
 
-func (m *Model) move(dir int) tea.Cmd {
-	cur := m.current()
-	if cur == nil {
-		return nil
+// move swaps the selected item with its neighbour (dir −1 up, +1 down).
+func (t *stackTree) move(dir int) (edit, error) {
+	cur, err := t.editable()
+	if err != nil {
+		return edit{}, err
 	}
-	return m.change("moved "+engine.Summary(cur.layer), func(s *engine.Stack) (addr, error) {
+	return edit{"moved " + engine.Summary(cur.layer), func(s *engine.Stack) (addr, error) {
 		ls, i := list(s, cur.addr)
 		j := i + dir
 		if j < 0 || j >= len(*ls) {
@@ -273,43 +303,42 @@ func (m *Model) move(dir int) tea.Cmd {
 		}
 		(*ls)[i], (*ls)[j] = (*ls)[j], (*ls)[i]
 		return cur.addr.with(j), nil
-	})
+	}}, nil
 }
 
-func (m *Model) wrap() tea.Cmd {
-	parent, lo, hi, ok := m.selection()
-	if !ok {
-		m.setStatus("a range must stay inside one list; press v to clear it", statusError)
-		return nil
+// wrap puts the selected item or range into a new block.
+func (t *stackTree) wrap(st *engine.Stack) (edit, error) {
+	parent, lo, hi, err := t.selection()
+	if err != nil {
+		return edit{}, err
 	}
-	if p := at(m.stack, parent); p != nil && p.Kind == engine.KindFork {
-		m.setStatus("these are a fork's branches; select layers inside one branch to wrap them", statusError)
-		return nil
+	if p := at(st, parent); p != nil && p.Kind == engine.KindFork {
+		return edit{}, errors.New("these are a fork's branches; select layers inside one branch to wrap them")
 	}
-	return m.change(fmt.Sprintf("wrapped %d layer%s in a block", hi-lo+1, plural(hi-lo+1)), func(s *engine.Stack) (addr, error) {
+	return edit{fmt.Sprintf("wrapped %d layer%s in a block", hi-lo+1, plural(hi-lo+1)), func(s *engine.Stack) (addr, error) {
 		ls, _ := list(s, append(parent, lo))
 		body := append([]engine.Layer(nil), (*ls)[lo:hi+1]...)
 		b := engine.Layer{Kind: engine.KindBlock, Repeat: 1, Body: body}
-		if err := m.checkDepth(s, append(parent, lo), b); err != nil {
+		if err := checkDepth(s, append(parent, lo), b); err != nil {
 			return nil, err
 		}
 		*ls = append((*ls)[:lo], append([]engine.Layer{b}, (*ls)[hi+1:]...)...)
 		return append(parent, lo), nil
-	})
+	}}, nil
 }
 
 // scaleFilters multiplies (num/den) the width of the selected layer, or of
 // every weighted layer inside the selected block.
-func (m *Model) scaleFilters(num, den int64) tea.Cmd {
-	cur := m.current()
-	if cur == nil {
-		return nil
+func (t *stackTree) scaleFilters(num, den int64) (edit, error) {
+	cur, err := t.editable()
+	if err != nil {
+		return edit{}, err
 	}
 	verb := "widened"
 	if den > num {
 		verb = "narrowed"
 	}
-	return m.change(verb+" "+engine.Summary(cur.layer), func(s *engine.Stack) (addr, error) {
+	return edit{verb + " " + engine.Summary(cur.layer), func(s *engine.Stack) (addr, error) {
 		l := at(s, cur.addr)
 		n := 0
 		var walk func(l *engine.Layer)
@@ -327,7 +356,7 @@ func (m *Model) scaleFilters(num, den int64) tea.Cmd {
 			return nil, fmt.Errorf("%s has no absolute widths; widen works on conv, deconv, dense and the items holding them (relative widths such as x6 follow their input)", l.Kind)
 		}
 		return cur.addr, nil
-	})
+	}}, nil
 }
 
 func (m *Model) scaleWidth(factor float64) tea.Cmd {
@@ -341,22 +370,41 @@ func (m *Model) scaleWidth(factor float64) tea.Cmd {
 	})
 }
 
-// insertStage adds a downsampling stage after the selected top-level item.
+// insertStage adds a downsampling stage after the selected top-level
+// item, as one foldable block: its settings are the stack's (the setup
+// form's stage fields, saved with the file), its layers copied from the
+// convolution, norm and activation nearest before it (engine.StageTemplate).
 func (m *Model) insertStage() tea.Cmd {
 	after := -1
-	if cur := m.current(); cur != nil {
+	if cur := m.tree.current(); cur != nil {
 		after = cur.addr[0]
 	}
-	opt := m.stage
-	return m.change(fmt.Sprintf("added a stage: halve the size, double the channels (cap %d), %d more layer%s", opt.Cap, opt.Repeat, plural(opt.Repeat)),
-		func(s *engine.Stack) (addr, error) {
-			out, n, err := engine.InsertStage(s, after, opt)
-			if err != nil {
-				return nil, err
-			}
-			*s = *out
-			return addr{after + n}, nil
-		})
+	opt := engine.StageTemplate(m.stack, after)
+	what := fmt.Sprintf("added a stage: halve the size, double the channels (cap %d), %d more repeat%s of %s", opt.Cap, opt.Repeat, plural(opt.Repeat), stageKinds(opt))
+	return m.change(what, func(s *engine.Stack) (addr, error) {
+		out, n, err := engine.InsertStage(s, after, opt)
+		if err != nil {
+			return nil, err
+		}
+		*s = *out
+		return addr{after + n}, nil
+	})
+}
+
+// stageKinds names a stage's layers, e.g. "conv k3, norm batch, act leaky-relu 0.2".
+func stageKinds(opt engine.StageOptions) string {
+	parts := []string{fmt.Sprintf("conv k%d", max(opt.Kernel, 3))}
+	if !opt.NoNorm {
+		parts = append(parts, "norm "+opt.Norm.String())
+	}
+	if !opt.NoAct {
+		a := "act " + opt.Act.String()
+		if opt.Act == engine.ActLeakyReLU && opt.Slope > 0 {
+			a += fmt.Sprintf(" %g", opt.Slope)
+		}
+		parts = append(parts, a)
+	}
+	return strings.Join(parts, ", ")
 }
 
 // replaceLayer puts l at a.

@@ -81,19 +81,44 @@ func typeText(m *Model, s string) {
 
 func view(m *Model) string { return ansi.Strip(m.View()) }
 
-// TestGoldenViews renders the example at both standard sizes, including the
-// detail panel's arithmetic and the budget gauge.
+// TestGoldenViews renders the example at four sizes, without colour and
+// with the 16 basic colours, including the detail panel's arithmetic and
+// the budget gauge; the coloured goldens keep their escape codes. Every
+// view is exactly the window: as many lines, none wider.
 func TestGoldenViews(t *testing.T) {
-	for _, size := range []struct {
-		name string
-		w, h int
-	}{{"80x24", 80, 24}, {"120x40", 120, 40}} {
-		t.Run(size.name, func(t *testing.T) {
-			m := newModel(t, example(t), size.w, size.h)
-			press(m, "j", "j", "j", "j", "j", "j")         // the stride-2 convolution
-			m.fit.MaxWidth, m.fit.WidthExact = 23.62, true // the background search's answer
-			golden.RequireEqual(t, []byte(view(m)))
-		})
+	for _, colour := range []bool{false, true} {
+		for _, size := range []struct {
+			name string
+			w, h int
+		}{{"60x18", 60, 18}, {"80x24", 80, 24}, {"120x40", 120, 40}, {"200x50", 200, 50}} {
+			name := size.name
+			if colour {
+				name += "-colour"
+			}
+			t.Run(name, func(t *testing.T) {
+				if colour {
+					lipgloss.SetColorProfile(termenv.ANSI)
+					defer lipgloss.SetColorProfile(termenv.Ascii)
+				}
+				m := newModel(t, example(t), size.w, size.h)
+				press(m, "j", "j", "j", "j", "j", "j")                   // the stride-2 convolution
+				m.nums.fit.MaxWidth, m.nums.fit.WidthExact = 23.62, true // the background search's answer
+				m.nums.widthState = widthDone
+				out := m.View()
+				if !colour {
+					out = ansi.Strip(out)
+				}
+				if got := strings.Count(out, "\n") + 1; got != size.h {
+					t.Errorf("%d lines, want %d", got, size.h)
+				}
+				for i, l := range strings.Split(ansi.Strip(out), "\n") {
+					if w := ansi.StringWidth(l); w > size.w {
+						t.Errorf("line %d is %d wide", i+1, w)
+					}
+				}
+				golden.RequireEqual(t, []byte(out))
+			})
+		}
 	}
 }
 
@@ -112,7 +137,8 @@ func TestGoldenPanels(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			m := newModel(t, example(t), 80, 24)
-			m.fit.MaxWidth, m.fit.WidthExact = 23.62, true
+			m.nums.fit.MaxWidth, m.nums.fit.WidthExact = 23.62, true
+			m.nums.widthState = widthDone
 			press(m, tc.keys...)
 			golden.RequireEqual(t, []byte(view(m)))
 		})
@@ -133,20 +159,20 @@ func TestTooSmall(t *testing.T) {
 func TestCursorAndScroll(t *testing.T) {
 	m := newModel(t, example(t), 80, 24)
 	press(m, "end")
-	if m.cursor != len(m.items)-1 || m.offset == 0 {
-		t.Errorf("cursor %d offset %d", m.cursor, m.offset)
+	if m.tree.cursor != len(m.tree.items)-1 || m.tree.offset == 0 {
+		t.Errorf("cursor %d offset %d", m.tree.cursor, m.tree.offset)
 	}
 	press(m, "home")
-	if m.cursor != 0 || m.offset != 0 {
-		t.Errorf("cursor %d offset %d", m.cursor, m.offset)
+	if m.tree.cursor != 0 || m.tree.offset != 0 {
+		t.Errorf("cursor %d offset %d", m.tree.cursor, m.tree.offset)
 	}
 	press(m, "k") // stays at the top
-	if m.cursor != 0 {
+	if m.tree.cursor != 0 {
 		t.Error("moved above the first layer")
 	}
 	press(m, "pgdown")
-	if m.cursor != m.listHeight()-1 {
-		t.Errorf("page down to %d", m.cursor)
+	if m.tree.cursor != m.listHeight()-1 {
+		t.Errorf("page down to %d", m.tree.cursor)
 	}
 }
 
@@ -154,18 +180,22 @@ func TestCursorAndScroll(t *testing.T) {
 // the quick widen, and that undo takes each back as one step.
 func TestStageWidenUndo(t *testing.T) {
 	m := newModel(t, example(t), 80, 24)
-	n0, p0 := len(m.stack.Layers), m.res.Totals.Params
+	n0, p0 := len(m.stack.Layers), m.nums.res.Totals.Params
 	press(m, "j", "j") // after the first act relu: 32×64×64
 	press(m, "n")
-	if got := len(m.stack.Layers); got != n0+9 {
-		t.Fatalf("stage inserted %d layers, want 9 (conv, norm, act, then 2 more triples)", got-n0)
+	if got := len(m.stack.Layers); got != n0+1 {
+		t.Fatalf("stage inserted %d items, want 1 (a block)", got-n0)
 	}
-	stage := m.res.Rows[3]
+	b := m.stack.Layers[3]
+	if b.Kind != engine.KindBlock || b.Repeat != 3 || len(b.Body) != 3 {
+		t.Fatalf("the stage is %s, want a block of 3 repeats of conv, norm, act", engine.Summary(&b))
+	}
+	stage := m.nums.res.Rows[3]
 	if stage.Out != (engine.Shape{C: 64, H: 32, W: 32}) {
 		t.Errorf("stage entry %v, want 64×32×32", stage.Out)
 	}
-	if m.cursor != 11 || !m.dirty {
-		t.Errorf("cursor %d dirty %v", m.cursor, m.dirty)
+	if cur := m.tree.current(); cur.addr.key() != "3" || !m.file.dirty {
+		t.Errorf("selected %v, dirty %v", cur.addr, m.file.dirty)
 	}
 	press(m, "home", ">")
 	if m.stack.Layers[0].Filters != 64 {
@@ -176,11 +206,11 @@ func TestStageWidenUndo(t *testing.T) {
 		t.Errorf("narrowed to %d", m.stack.Layers[0].Filters)
 	}
 	press(m, "u", "u", "u", "u")
-	if len(m.stack.Layers) != n0 || m.res.Totals.Params != p0 {
-		t.Errorf("after undo: %d layers, %d params", len(m.stack.Layers), m.res.Totals.Params)
+	if len(m.stack.Layers) != n0 || m.nums.res.Totals.Params != p0 {
+		t.Errorf("after undo: %d layers, %d params", len(m.stack.Layers), m.nums.res.Totals.Params)
 	}
 	press(m, "U")
-	if len(m.stack.Layers) != n0+9 {
+	if len(m.stack.Layers) != n0+1 {
 		t.Error("redo did not bring the stage back")
 	}
 }
@@ -214,8 +244,8 @@ func TestEditOperations(t *testing.T) {
 		t.Error("delete")
 	}
 	press(m, "home", "J")
-	if m.stack.Layers[1].Name != "stem" || m.cursor != 1 {
-		t.Errorf("move down: cursor %d", m.cursor)
+	if m.stack.Layers[1].Name != "stem" || m.tree.cursor != 1 {
+		t.Errorf("move down: cursor %d", m.tree.cursor)
 	}
 	press(m, "K")
 	if m.stack.Layers[0].Name != "stem" {
@@ -227,8 +257,8 @@ func TestEditOperations(t *testing.T) {
 	if b.Kind != engine.KindBlock || len(b.Body) != 3 || len(m.stack.Layers) != n0-2 {
 		t.Fatalf("wrap: %v with %d layers", b.Kind, len(b.Body))
 	}
-	if m.res.Rows[0].Path.String() != "1.1.1" || m.res.Errors != 0 {
-		t.Errorf("first row %s errors %d", m.res.Rows[0].Path, m.res.Errors)
+	if m.nums.res.Rows[0].Path.String() != "1.1.1" || m.nums.res.Errors != 0 {
+		t.Errorf("first row %s errors %d", m.nums.res.Rows[0].Path, m.nums.res.Errors)
 	}
 	// Blocks nest at most three deep: wrapping the inner layer again and
 	// again stops there.
@@ -238,8 +268,8 @@ func TestEditOperations(t *testing.T) {
 	}
 	press(m, "u", "u", "home")
 	press(m, "space")
-	if len(m.items) != len(m.stack.Layers) {
-		t.Errorf("folded block still shows %d items", len(m.items))
+	if len(m.tree.items) != len(m.stack.Layers) {
+		t.Errorf("folded block still shows %d items", len(m.tree.items))
 	}
 	press(m, "space")
 	press(m, "*")
@@ -257,18 +287,18 @@ func TestEditOperations(t *testing.T) {
 func TestFormFieldSelection(t *testing.T) {
 	m := newModel(t, example(t), 80, 24)
 	press(m, "enter")
-	if m.form == nil || m.form.fields[0].input.Value() != "32" || m.form.fields[1].key != "kernel" {
-		t.Fatalf("expected the conv 32 form with kernel second, got %+v", m.form)
+	if formOf(m) == nil || formOf(m).Values()[0] != "32" || formOf(m).Keys()[1] != "kernel" {
+		t.Fatalf("expected the conv 32 form with kernel second, got %+v", m.overlay)
 	}
 	typeText(m, "48")
 	press(m, "tab")
 	typeText(m, "5")
-	if got := m.form.values()[:2]; got[0] != "48" || got[1] != "5" {
+	if got := formOf(m).Values()[:2]; got[0] != "48" || got[1] != "5" {
 		t.Errorf("typing into selected fields gave %q, want [48 5]", got)
 	}
 	press(m, "shift+tab", "end")
 	typeText(m, "0")
-	if got := m.form.values()[0]; got != "480" {
+	if got := formOf(m).Values()[0]; got != "480" {
 		t.Errorf("a cursor key should keep the value for editing: got %q, want 480", got)
 	}
 	press(m, "enter")
@@ -291,21 +321,21 @@ func TestFormLive(t *testing.T) {
 	press(m, "tab")
 	press(m, "backspace")
 	typeText(m, "x")
-	if m.form.fields[1].err == "" || !strings.Contains(m.form.fields[1].err, "kernel") {
-		t.Errorf("kernel x accepted: %q", m.form.fields[1].err)
+	if formOf(m).Errors()[1] == "" || !strings.Contains(formOf(m).Errors()[1], "kernel") {
+		t.Errorf("kernel x accepted: %q", formOf(m).Errors()[1])
 	}
 	press(m, "enter") // refused
-	if m.mode != modeForm || m.stack.Layers[0].Filters != 32 {
+	if m.Mode() != modeForm || m.stack.Layers[0].Filters != 32 {
 		t.Error("an invalid form was applied")
 	}
 	press(m, "backspace")
 	typeText(m, "5")
 	press(m, "enter")
-	if l := m.stack.Layers[0]; m.mode != modeNormal || l.Filters != 64 || l.Kernel != engine.Square(5) {
+	if l := m.stack.Layers[0]; m.Mode() != modeNormal || l.Filters != 64 || l.Kernel != engine.Square(5) {
 		t.Errorf("applied %+v", l)
 	}
 	press(m, "enter", "esc")
-	if m.stack.Layers[0].Filters != 64 || m.mode != modeNormal {
+	if m.stack.Layers[0].Filters != 64 || m.Mode() != modeNormal {
 		t.Error("cancel changed the layer")
 	}
 }
@@ -313,27 +343,27 @@ func TestFormLive(t *testing.T) {
 func TestPickerAndQuickEntry(t *testing.T) {
 	m := newModel(t, example(t), 80, 24)
 	press(m, "a", "d", "d") // jumps to deconv, then dropout
-	if m.picker.kinds[m.picker.sel] != engine.KindDropout {
-		t.Errorf("letter jump to %v", m.picker.kinds[m.picker.sel])
+	if engine.Kinds()[pickerOf(m).Selected()] != engine.KindDropout {
+		t.Errorf("letter jump to %v", engine.Kinds()[pickerOf(m).Selected()])
 	}
 	press(m, "enter", "enter")
-	if m.stack.Layers[1].Kind != engine.KindDropout || m.mode != modeNormal {
+	if m.stack.Layers[1].Kind != engine.KindDropout || m.Mode() != modeNormal {
 		t.Errorf("picker inserted %v", m.stack.Layers[1].Kind)
 	}
 	press(m, ":")
 	typeText(m, "pool mx k2")
-	if !m.prompt.bad || !strings.Contains(m.prompt.hint, "pool needs max or avg") {
-		t.Errorf("hint %q", m.prompt.hint)
+	if !promptBad(m) || !strings.Contains(promptHint(m), `did you mean "max"`) {
+		t.Errorf("hint %q", promptHint(m))
 	}
 	press(m, "enter") // refused: stays open
-	if m.mode != modePrompt {
+	if m.Mode() != modePrompt {
 		t.Error("a bad line was accepted")
 	}
 	press(m, "ctrl+u")
 	typeText(m, "glo")
 	press(m, "tab")
-	if m.prompt.input.Value() != "global-pool " {
-		t.Errorf("completion gave %q", m.prompt.input.Value())
+	if promptOf(m).Value() != "global-pool " {
+		t.Errorf("completion gave %q", promptOf(m).Value())
 	}
 	press(m, "esc", ":")
 	typeText(m, "conv 48 k3 p1 @extra")
@@ -347,11 +377,11 @@ func TestSettingsAndBaseline(t *testing.T) {
 	m := newModel(t, example(t), 80, 24)
 	press(m, "m")
 	press(m, ">")
-	if !strings.Contains(view(m), "fits · memory 1.62G (+256M) / 24.0G · params 852k (+10.1k) · MACs 231M (+41.3M)") {
-		t.Error("no baseline delta in the footer")
+	if v := view(m); !strings.Contains(v, "fits · 1.62GiB (+256MiB) / 21.6GiB · params 852k (+10.1k) · MACs 231M (+41.3M)") {
+		t.Errorf("no baseline delta in the footer:\n%s", v)
 	}
 	press(m, "t")
-	for m.form.fields[m.form.focus].key != "budget" {
+	for formOf(m).Keys()[formOf(m).Focused()] != "budget" {
 		press(m, "tab")
 	}
 	press(m, "ctrl+u")
@@ -360,8 +390,8 @@ func TestSettingsAndBaseline(t *testing.T) {
 		t.Error("1 GiB should not fit batch 256")
 	}
 	press(m, "enter")
-	if m.stack.Training.Budget != 1<<30 || m.mem.Fits {
-		t.Errorf("budget %d fits %v", m.stack.Training.Budget, m.mem.Fits)
+	if m.stack.Training.Budget != 1<<30 || m.nums.mem.Fits {
+		t.Errorf("budget %d fits %v", m.stack.Training.Budget, m.nums.mem.Fits)
 	}
 	if !strings.Contains(view(m), "does not fit") {
 		t.Error("the footer does not say it does not fit")
@@ -377,13 +407,13 @@ func TestFilesAndQuit(t *testing.T) {
 	p := filepath.Join(dir, "grader.yaml")
 	m := newModel(t, example(t), 80, 24)
 	press(m, ">", "w") // no path yet: asks
-	if m.mode != modePrompt || m.prompt.kind != promptSaveAs {
+	if m.Mode() != modePrompt || promptOf(m).Tag().(promptKind) != promptSaveAs {
 		t.Fatal("save without a path did not ask for one")
 	}
 	press(m, "ctrl+u")
 	typeText(m, p)
 	press(m, "enter")
-	if m.dirty || m.path != p {
+	if m.file.dirty || m.file.path != p {
 		t.Fatalf("not saved: %s", m.status)
 	}
 	back, err := store.LoadFile(p)
@@ -398,11 +428,11 @@ func TestFilesAndQuit(t *testing.T) {
 	}
 	// Quit with unsaved changes asks; esc stays; n quits.
 	press(m, "<", "q")
-	if m.mode != modeConfirm {
+	if m.Mode() != modeConfirm {
 		t.Fatal("quit with unsaved changes did not ask")
 	}
 	press(m, "esc")
-	if m.quitting || m.mode != modeNormal {
+	if m.quitting || m.Mode() != modeNormal {
 		t.Error("esc did not stay")
 	}
 	cmds := press(m, "q", "n")
@@ -414,13 +444,13 @@ func TestFilesAndQuit(t *testing.T) {
 	press(m2, "o")
 	typeText(m2, p)
 	press(m2, "enter")
-	if m2.path != p || m2.stack.Layers[0].Filters != 64 {
+	if m2.file.path != p || m2.stack.Layers[0].Filters != 64 {
 		t.Errorf("open: %s", m2.status)
 	}
 	press(m2, "o")
 	typeText(m2, filepath.Join(dir, "nope.yaml"))
 	press(m2, "enter")
-	if m2.mode != modePrompt || !m2.prompt.bad {
+	if m2.Mode() != modePrompt || !promptBad(m2) {
 		t.Error("opening a missing file did not say so")
 	}
 }
@@ -429,7 +459,7 @@ func TestNewFile(t *testing.T) {
 	p := filepath.Join(t.TempDir(), "new.yaml")
 	m := New(Options{Path: p, NewFile: true, Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(), Files: store.Disk{}})
 	m.Update(tea.WindowSizeMsg{Width: 80, Height: 24})
-	if m.mode != modePrompt || m.prompt.kind != promptInput {
+	if m.Mode() != modePrompt || promptOf(m).Tag().(promptKind) != promptInput {
 		t.Fatal("a new file does not ask for the input")
 	}
 	press(m, "ctrl+u")
@@ -474,7 +504,7 @@ func TestPromptSuggestion(t *testing.T) {
 			}
 			press(m, tt.keys...)
 			typeText(m, tt.typed)
-			if m.mode == modePrompt {
+			if m.Mode() == modePrompt {
 				press(m, "enter")
 			}
 			if m.stack.Input != tt.want {
@@ -564,8 +594,8 @@ func TestForkEditing(t *testing.T) {
 	typeText(m, "fork copy")
 	press(m, "enter")
 	f := m.stack.Layers[0]
-	if f.Kind != engine.KindFork || len(f.Body) != 2 || m.res.Errors != 0 || m.res.Output != (engine.Shape{C: 16, H: 32, W: 32}) {
-		t.Fatalf("quick entry gave %+v, output %v, %v", f, m.res.Output, m.res.Diags)
+	if f.Kind != engine.KindFork || len(f.Body) != 2 || m.nums.res.Errors != 0 || m.nums.res.Output != (engine.Shape{C: 16, H: 32, W: 32}) {
+		t.Fatalf("quick entry gave %+v, output %v, %v", f, m.nums.res.Output, m.nums.res.Diags)
 	}
 	press(m, "j") // branch 1
 	press(m, ":")
@@ -575,8 +605,8 @@ func TestForkEditing(t *testing.T) {
 	if len(f.Body) != 3 || f.Body[1].Kind != engine.KindBranch || f.Body[1].Body[0].Filters != 8 {
 		t.Fatalf("a layer among the branches: %+v", f.Body)
 	}
-	if m.res.Output.C != 24 {
-		t.Errorf("three branches join to %d channels, want 8 + 8 + 8", m.res.Output.C)
+	if m.nums.res.Output.C != 24 {
+		t.Errorf("three branches join to %d channels, want 8 + 8 + 8", m.nums.res.Output.C)
 	}
 	// An empty branch takes the next layer inside.
 	m.stack.Layers[0].Body = append(m.stack.Layers[0].Body, engine.Layer{Kind: engine.KindBranch})
@@ -584,14 +614,14 @@ func TestForkEditing(t *testing.T) {
 	if !strings.Contains(view(m), "empty: the map itself") {
 		t.Errorf("an empty branch is not marked:\n%s", view(m))
 	}
-	m.selectAddr(addr{0, 3})
+	m.tree.selectAddr(addr{0, 3}, m.stack, &m.nums.res)
 	press(m, ":")
 	typeText(m, "act relu")
 	press(m, "enter")
 	if b := m.stack.Layers[0].Body[3]; len(b.Body) != 1 || b.Body[0].Kind != engine.KindAct {
 		t.Errorf("the empty branch got %+v", b)
 	}
-	m.selectAddr(addr{0})
+	m.tree.selectAddr(addr{0}, m.stack, &m.nums.res)
 	press(m, ":")
 	typeText(m, "branch")
 	press(m, "enter")
@@ -606,8 +636,8 @@ func TestForkEditing(t *testing.T) {
 	if err != nil {
 		t.Fatalf("the saved fork does not load: %v\n%s", err, data)
 	}
-	if r := engine.Evaluate(back); r.Output != m.res.Output || r.Totals != m.res.Totals {
-		t.Errorf("reloaded: %v %v, editor %v %v", r.Output, r.Totals, m.res.Output, m.res.Totals)
+	if r := engine.Evaluate(back); r.Output != m.nums.res.Output || r.Totals != m.nums.res.Totals {
+		t.Errorf("reloaded: %v %v, editor %v %v", r.Output, r.Totals, m.nums.res.Output, m.nums.res.Totals)
 	}
 }
 

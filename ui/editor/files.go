@@ -5,55 +5,19 @@ import (
 	"fmt"
 	"path/filepath"
 
-	"github.com/charmbracelet/bubbles/key"
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
 	"stackfit/ui/store"
 )
 
-// confirm asks a yes/no question; yes and no run their actions.
-type confirm struct {
-	question string
-	yes, no  func() tea.Cmd
-	reload   func() tea.Cmd // offered only when set
-}
-
-func (m *Model) ask(q string, yes, no func() tea.Cmd) {
-	m.confirm = &confirm{question: q, yes: yes, no: no}
-	m.mode = modeConfirm
-}
-
-func (m *Model) updateConfirm(msg tea.KeyMsg) tea.Cmd {
-	c := m.confirm
-	switch {
-	case key.Matches(msg, m.keys.ForceQuit):
-		return m.quit()
-	case key.Matches(msg, m.keys.Yes):
-		m.confirm, m.mode = nil, modeNormal
-		return c.yes()
-	case c.reload != nil && key.Matches(msg, m.keys.Reload):
-		m.confirm, m.mode = nil, modeNormal
-		return c.reload()
-	case key.Matches(msg, m.keys.No):
-		m.confirm, m.mode = nil, modeNormal
-		if c.no != nil {
-			return c.no()
-		}
-	case key.Matches(msg, m.keys.Cancel):
-		m.confirm, m.mode = nil, modeNormal
-		m.setStatus("", statusInfo)
-	}
-	return nil
-}
-
 // save writes the stack to its file, or asks for one.
 func (m *Model) save() tea.Cmd {
-	if m.path == "" {
+	if m.file.path == "" {
 		m.openPrompt(promptSaveAs, "save as", "net.yaml")
 		return nil
 	}
-	return m.saveTo(m.path)
+	return m.saveTo(m.file.path)
 }
 
 // saveTo writes the stack to path atomically; the old file stays whole if
@@ -62,21 +26,22 @@ func (m *Model) save() tea.Cmd {
 func (m *Model) saveTo(path string) tea.Cmd { return m.saveWith(path, store.SaveMode{}) }
 
 func (m *Model) saveWith(path string, mode store.SaveMode) tea.Cmd {
-	if m.files == nil {
+	if m.file.files == nil {
 		m.setStatus("not saved: this editor was started without file access; run stackfit FILE to edit a file", statusError)
 		return nil
 	}
-	base := m.base
-	if path != m.path {
+	base := m.file.base
+	if path != m.file.path {
 		base = nil // another file: it must not exist yet
 	}
-	data, note, err := m.files.Save(path, m.stack, base, mode)
+	data, note, err := m.file.files.Save(path, m.stack, base, mode)
 	switch {
-	case errors.Is(err, store.ErrChanged) && path == m.path && m.path != "":
-		m.ask(fmt.Sprintf("%s changed on disk since you read it — y: overwrite · n: save as another file · r: reload it · esc: keep editing", filepath.Base(path)),
-			func() tea.Cmd { mode.Overwrite = true; return m.saveWith(path, mode) },
-			func() tea.Cmd { m.openPrompt(promptSaveAs, "save as", path+".mine"); return nil })
-		m.confirm.reload = func() tea.Cmd { return m.reload(path) }
+	case errors.Is(err, store.ErrChanged) && path == m.file.path && m.file.path != "":
+		m.askWith(fmt.Sprintf("%s changed on disk since you read it — y: overwrite · n: save as another file · r: reload it · esc: keep editing", filepath.Base(path)), question{
+			yes:    func() tea.Cmd { mode.Overwrite = true; return m.saveWith(path, mode) },
+			no:     func() tea.Cmd { m.openPrompt(promptSaveAs, "save as", path+".mine"); return nil },
+			reload: func() tea.Cmd { return m.reload(path) },
+		})
 		return nil
 	case errors.Is(err, store.ErrChanged):
 		m.ask(fmt.Sprintf("%s exists and was not read here — y: replace it · n: another name · esc: keep editing", filepath.Base(path)),
@@ -92,15 +57,15 @@ func (m *Model) saveWith(path string, mode store.SaveMode) tea.Cmd {
 		m.setStatus("not saved: "+err.Error(), statusError)
 		return nil
 	}
-	moved := path != m.path
-	m.path, m.base = path, data
-	m.dirty, m.unprotected = false, false // what is saved needs no recovery copy
-	if m.journal != nil {
-		err := m.journal.Clear()
-		if moved && m.journalFor != nil {
-			m.journal = m.journalFor(path)
+	moved := path != m.file.path
+	m.file.path, m.file.base = path, data
+	m.file.dirty, m.file.unprotected = false, false // what is saved needs no recovery copy
+	if m.file.journal != nil {
+		err := m.file.journal.Clear()
+		if moved && m.file.journalFor != nil {
+			m.file.journal = m.file.journalFor(path)
 		}
-		m.journal.Rebase(data)
+		m.file.journal.Rebase(data)
 		if err != nil {
 			m.setStatus("saved, but the recovery copy could not be removed: "+err.Error(), statusError)
 			return nil
@@ -110,14 +75,14 @@ func (m *Model) saveWith(path string, mode store.SaveMode) tea.Cmd {
 		m.setStatus("saved; "+note, statusError)
 		return nil
 	}
-	m.setStatus(fmt.Sprintf("saved %s (%d rows)", filepath.Base(path), len(m.res.Rows)), statusInfo)
+	m.setStatus(fmt.Sprintf("saved %s (%d rows)", filepath.Base(path), len(m.nums.res.Rows)), statusInfo)
 	return nil
 }
 
 // reload reads the file again after it changed on disk, as one undoable
 // change: u brings the edits made here back.
 func (m *Model) reload(path string) tea.Cmd {
-	s, data, err := m.files.Load(path)
+	s, data, err := m.file.files.Load(path)
 	if err != nil {
 		m.setStatus("not reloaded: "+err.Error(), statusError)
 		return nil
@@ -126,35 +91,37 @@ func (m *Model) reload(path string) tea.Cmd {
 		*st = *s
 		return nil, nil
 	})
-	m.base = data
-	if m.journal != nil {
-		m.journal.Rebase(data)
+	m.file.base = data
+	if m.file.journal != nil {
+		m.file.journal.Rebase(data)
 	}
-	m.dirty = false
+	m.file.dirty = false
 	return cmd
 }
 
 // load replaces the stack with s, read from path as data; undo history
 // starts afresh.
 func (m *Model) load(s *engine.Stack, data []byte, path string) {
-	if m.journal != nil {
-		m.journal.Clear() // the user chose to leave the unsaved edits
+	if m.file.journal != nil {
+		m.file.journal.Clear() // the user chose to leave the unsaved edits
 	}
-	m.stack, m.path, m.base, m.dirty = s, path, data, false
-	if m.journalFor != nil {
-		m.journal = m.journalFor(path)
-		m.journal.Rebase(data)
+	m.stack, m.file.path, m.file.base, m.file.dirty = s, path, data, false
+	if m.file.journalFor != nil {
+		m.file.journal = m.file.journalFor(path)
+		m.file.journal.Rebase(data)
 	}
 	m.hist = history{}
-	m.cursor, m.offset, m.anchor = 0, 0, -1
-	m.folded = map[string]bool{}
+	m.tree.cursor, m.tree.offset, m.tree.anchor = 0, 0, -1
+	m.tree.folded = map[string]bool{}
 	m.baseline = nil
 	m.recompute()
 	m.setStatus("opened "+path, statusInfo)
 }
 
-func (m *Model) open() {
-	if !m.dirty {
+// openFile asks for a file to open (first whether to drop unsaved
+// changes).
+func (m *Model) openFile() {
+	if !m.file.dirty {
 		m.openPrompt(promptOpen, "open", "")
 		return
 	}
@@ -164,20 +131,20 @@ func (m *Model) open() {
 
 // requestQuit quits, or asks first when there are unsaved changes.
 func (m *Model) requestQuit() tea.Cmd {
-	if !m.dirty {
+	if !m.file.dirty {
 		return m.quit()
 	}
 	m.ask("save changes before quitting? (y: save and quit · n: quit without saving · esc: stay)",
 		func() tea.Cmd {
 			m.save()
-			if m.dirty {
+			if m.file.dirty {
 				return nil // not saved: the status line says why
 			}
 			return m.quit()
 		},
 		func() tea.Cmd {
-			if m.journal != nil {
-				m.journal.Clear()
+			if m.file.journal != nil {
+				m.file.journal.Clear()
 			}
 			return m.quit()
 		})
@@ -186,8 +153,8 @@ func (m *Model) requestQuit() tea.Cmd {
 
 func (m *Model) quit() tea.Cmd {
 	m.quitting = true
-	if !m.dirty && m.journal != nil {
-		m.journal.Clear()
+	if !m.file.dirty && m.file.journal != nil {
+		m.file.journal.Clear()
 	}
 	return tea.Quit
 }

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"os"
 	"path/filepath"
+	"sort"
 	"strings"
 	"testing"
 
@@ -18,6 +19,18 @@ import (
 // memFiles is file access held in memory: what the editor saved and can
 // open.
 type memFiles map[string]*engine.Stack
+
+// Names completes from the names held, in order.
+func (f memFiles) Names(prefix string) []string {
+	var out []string
+	for n := range f {
+		if strings.HasPrefix(n, prefix) {
+			out = append(out, n)
+		}
+	}
+	sort.Strings(out)
+	return out
+}
 
 func (f memFiles) Load(path string) (*engine.Stack, []byte, error) {
 	if s, ok := f[path]; ok {
@@ -38,26 +51,26 @@ func TestFilesOption(t *testing.T) {
 	m := New(Options{Stack: example(t), Path: "a.yaml", Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(), Files: files})
 	m.Update(tea.WindowSizeMsg{Width: 80, Height: 24})
 	press(m, ">", "w")
-	if m.dirty || files["a.yaml"] == nil || !sameStack(files["a.yaml"], m.stack) {
+	if m.file.dirty || files["a.yaml"] == nil || !sameStack(files["a.yaml"], m.stack) {
 		t.Fatalf("save did not reach Files: %s", m.status)
 	}
 	press(m, "o")
 	typeText(m, "a.yaml")
 	press(m, "enter")
-	if m.mode != modeNormal || m.path != "a.yaml" {
+	if m.Mode() != modeNormal || m.file.path != "a.yaml" {
 		t.Errorf("open did not read from Files: %s", m.status)
 	}
 
 	bare := New(Options{Stack: example(t), Path: "b.yaml", Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles()})
 	bare.Update(tea.WindowSizeMsg{Width: 80, Height: 24})
 	press(bare, ">", "w")
-	if !bare.dirty || bare.statusK != statusError || !strings.Contains(bare.status, "without file access") {
-		t.Errorf("save without Files: dirty %v, %q", bare.dirty, bare.status)
+	if !bare.file.dirty || bare.statusK != statusError || !strings.Contains(bare.status, "without file access") {
+		t.Errorf("save without Files: dirty %v, %q", bare.file.dirty, bare.status)
 	}
 	press(bare, "o")
 	typeText(bare, "a.yaml")
 	press(bare, "enter")
-	if bare.mode != modePrompt || !bare.prompt.bad || !strings.Contains(bare.prompt.hint, "without file access") {
+	if bare.Mode() != modePrompt || !promptBad(bare) || !strings.Contains(promptHint(bare), "without file access") {
 		t.Errorf("open without Files was not refused")
 	}
 }
@@ -70,8 +83,8 @@ func TestHelpNamesKeysPath(t *testing.T) {
 	t.Setenv("XDG_CONFIG_HOME", "/elsewhere")
 	t.Setenv(keymap.EnvPath, "/other/keys.yaml")
 	for _, tt := range []struct{ path, want string }{
-		{"/k.yaml", "override keys in /k.yaml)"},
-		{"", "override keys in $" + keymap.EnvPath + ")"},
+		{"/k.yaml", "put overrides in /k.yaml,"},
+		{"", "put overrides in $" + keymap.EnvPath + ","},
 	} {
 		m := New(Options{Stack: example(t), Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(), KeysPath: tt.path})
 		m.Update(tea.WindowSizeMsg{Width: 100, Height: 40})
@@ -113,38 +126,38 @@ func TestTwoEditorsOneFile(t *testing.T) {
 		t.Errorf("A's save lost the comments:\n%s", afterA)
 	}
 	press(b, "j", ">", "w")
-	if b.mode != modeConfirm || !strings.Contains(b.confirm.question, "changed on disk") {
+	if b.Mode() != modeConfirm || !strings.Contains(questionOf(b).Question, "changed on disk") {
 		t.Fatalf("B saved over A's edit without asking: %q", b.status)
 	}
 	if data, _ := os.ReadFile(p); string(data) != string(afterA) {
 		t.Fatalf("B's save reached the file before the answer")
 	}
 	press(b, "n")
-	if b.mode != modePrompt || !strings.HasSuffix(b.prompt.input.Value(), "net.yaml.mine") {
-		t.Fatalf("n did not offer another name: mode %v", b.mode)
+	if b.Mode() != modePrompt || !strings.HasSuffix(promptOf(b).Value(), "net.yaml.mine") {
+		t.Fatalf("n did not offer another name: mode %v", b.Mode())
 	}
 	press(b, "enter")
-	if _, err := os.Stat(p + ".mine"); err != nil || b.dirty {
-		t.Fatalf("save as: %v, dirty %v, %q", err, b.dirty, b.status)
+	if _, err := os.Stat(p + ".mine"); err != nil || b.file.dirty {
+		t.Fatalf("save as: %v, dirty %v, %q", err, b.file.dirty, b.status)
 	}
 	// An outside append to A's file, then A saves again.
 	f, _ := os.OpenFile(p, os.O_APPEND|os.O_WRONLY, 0)
 	f.WriteString("# appended outside\n")
 	f.Close()
 	press(a, ">", "w")
-	if a.mode != modeConfirm {
+	if a.Mode() != modeConfirm {
 		t.Fatalf("A saved over the outside change without asking: %q", a.status)
 	}
 	press(a, "y")
-	if data, _ := os.ReadFile(p); a.dirty || !strings.Contains(string(data), "# stem") {
-		t.Errorf("overwrite: dirty %v:\n%s", a.dirty, data)
+	if data, _ := os.ReadFile(p); a.file.dirty || !strings.Contains(string(data), "# stem") {
+		t.Errorf("overwrite: dirty %v:\n%s", a.file.dirty, data)
 	}
 	// Another outside change; this time A reloads, and undo brings its
 	// own edit back.
 	os.WriteFile(p, []byte(orig), 0o644)
 	press(a, ">", "w", "r")
-	if a.mode != modeNormal || a.stack.Layers[0].Filters != 8 || a.dirty {
-		t.Fatalf("reload: filters %d, dirty %v, %q", a.stack.Layers[0].Filters, a.dirty, a.status)
+	if a.Mode() != modeNormal || a.stack.Layers[0].Filters != 8 || a.file.dirty {
+		t.Fatalf("reload: filters %d, dirty %v, %q", a.stack.Layers[0].Filters, a.file.dirty, a.status)
 	}
 	press(a, "u")
 	if a.stack.Layers[0].Filters == 8 {

@@ -219,3 +219,24 @@ func undoHistoryChild(t *testing.T) {
 	}
 	runtime.KeepAlive(m)
 }
+
+// BenchmarkUnfold folds and unfolds a residual block of 100 repeats (its
+// first repeat's layers, the rows the engine adds and 99 repeat headers),
+// drawing a frame after each, at 120×40.
+func BenchmarkUnfold(b *testing.B) {
+	body := []engine.Layer{
+		{Kind: engine.KindConv, Filters: 64, Kernel: engine.Square(3), Pad: engine.Padding{Size: engine.Square(1)}, NoBias: true},
+		{Kind: engine.KindNorm}, {Kind: engine.KindAct},
+		{Kind: engine.KindConv, Filters: 64, Kernel: engine.Square(3), Pad: engine.Padding{Size: engine.Square(1)}, NoBias: true},
+		{Kind: engine.KindNorm},
+	}
+	s := &engine.Stack{Input: engine.Shape{C: 64, H: 56, W: 56}, Training: engine.Training{Batch: 32, Budget: 80 << 30},
+		Layers: []engine.Layer{{Kind: engine.KindBlock, Repeat: 100, Residual: true, HasPostAct: true, Body: body}}}
+	m := newModel(b, s, 120, 40)
+	space := keyMsg("space")
+	b.ReportAllocs()
+	for b.Loop() {
+		m.Update(space)
+		_ = m.View()
+	}
+}

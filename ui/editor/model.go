@@ -56,6 +56,9 @@ type Files interface {
 	// permissions protect with store.ErrReadOnly. It returns the bytes
 	// written and a note for the status line ("" when none).
 	Save(path string, s *engine.Stack, base []byte, mode store.SaveMode) ([]byte, string, error)
+	// Names completes a file name: the stack files and folders whose
+	// names start with prefix (folders end in "/"), sorted.
+	Names(prefix string) []string
 }
 
 // Recovery is what an earlier session's journal held.
@@ -99,8 +102,30 @@ type Model struct {
 	width, height int
 
 	stack *engine.Stack
-	path  string
-	base  []byte // the file's content as last read or written; nil when never
+	file  fileState // the stack's file and its recovery journal
+	nums  numbers   // the current stack's figures, recomputed on every change
+	tree  stackTree // the visible lines of the stack view and the cursor
+
+	help    help.Model // built once; its width follows the window
+	overlay overlay    // the open form, picker, prompt, question, help or chart; nil when none
+
+	// While a form is open, the numbers of its preview; previewBlocked
+	// when a field is invalid, so nothing is estimated.
+	preview        *engine.Analysis
+	previewBlocked bool
+
+	hist     history
+	baseline *baseline
+	status   string
+	statusK  statusKind
+	quitting bool
+}
+
+// fileState is where the stack lives: its file, what the editor last read
+// or wrote there, and the journal that keeps unsaved edits.
+type fileState struct {
+	path string
+	base []byte // the file's content as last read or written; nil when never
 	// unprotected: the last journal write failed, so a crash would lose
 	// the unsaved edits; the header says so until a write succeeds.
 	unprotected bool
@@ -109,59 +134,43 @@ type Model struct {
 	journalFor  func(string) Journal
 	files       Files
 	keysFile    string
+}
 
-	// Numbers of the current stack, recomputed on every change.
-	res    engine.Result
-	mem    engine.Memory
-	fit    engine.Fit
-	cumAct []int64 // activation bytes of rows 0..i
-	assume engine.Assumptions
+// numbers are the current stack's figures, recomputed once per change.
+type numbers struct {
+	res        engine.Result
+	mem        engine.Memory
+	fit        engine.Fit
+	cumAct     []int64 // activation bytes of rows 0..i
+	assume     engine.Assumptions
+	widthGen   int        // generation of the background width search
+	widthState widthState // whether its answer is in
+}
 
-	widthGen int // generation of the background width search
-
-	// The stack view.
+// stackTree is the stack view's state: the visible lines, the cursor,
+// the scroll position, a marked range and what is folded.
+type stackTree struct {
 	items    []item
 	numWidth int // digits of the largest item number
 	cursor   int
 	offset   int
-	anchor   int // start of a selected range, −1 when none
-	folded   map[string]bool
-
-	help    help.Model // built once; its width follows the window
-	mode    keymap.Mode
-	form    *form
-	picker  *picker
-	prompt  *prompt
-	confirm *confirm
-
-	// While a form is open, the numbers of its preview.
-	preview *engine.Analysis
-
-	hist     history
-	baseline *baseline
-	status   string
-	statusK  statusKind
-	stage    engine.StageOptions
-	quitting bool
+	anchor   int             // start of a selected range, −1 when none
+	folded   map[string]bool // items of the stack shown closed
+	opened   map[string]bool // later repeats of blocks shown open (repeatKey)
+	counts   counts          // of the stack's items, for the header
 }
 
 // New returns an editor for opt.
 func New(opt Options) *Model {
 	m := &Model{
-		keys:       opt.Keys,
-		st:         opt.Styles,
-		stack:      opt.Stack,
-		path:       opt.Path,
-		base:       opt.Base,
-		journalFor: opt.JournalFor,
-		files:      opt.Files,
-		keysFile:   opt.KeysPath,
-		anchor:     -1,
-		folded:     map[string]bool{},
-		assume:     engine.DefaultAssumptions(),
-		stage:      engine.StageOptions{Cap: 512, Repeat: 2},
-		width:      80,
-		height:     24,
+		keys:   opt.Keys,
+		st:     opt.Styles,
+		stack:  opt.Stack,
+		file:   fileState{path: opt.Path, base: opt.Base, journalFor: opt.JournalFor, files: opt.Files, keysFile: opt.KeysPath},
+		tree:   stackTree{anchor: -1, folded: map[string]bool{}, opened: map[string]bool{}},
+		nums:   numbers{assume: engine.DefaultAssumptions()},
+		width:  80,
+		height: 24,
 	}
 	if m.stack == nil {
 		m.stack = &engine.Stack{Input: engine.Shape{C: 3, H: 224, W: 224}}
@@ -172,9 +181,9 @@ func New(opt Options) *Model {
 	m.help.FullSeparator = "   "
 	m.help.Styles.ShortKey, m.help.Styles.ShortDesc, m.help.Styles.ShortSeparator = m.st.Label, m.st.Help, m.st.Help
 	m.help.Styles.FullKey, m.help.Styles.FullDesc = m.st.Label, m.st.Help
-	if m.journalFor != nil {
-		m.journal = m.journalFor(m.path)
-		m.journal.Rebase(m.base)
+	if m.file.journalFor != nil {
+		m.file.journal = m.file.journalFor(m.file.path)
+		m.file.journal.Rebase(m.file.base)
 	}
 	m.recompute()
 	if opt.NewFile {
@@ -201,10 +210,10 @@ func (m *Model) offerRecovery(r *Recovery) {
 	m.ask(q, func() tea.Cmd {
 		what := "restored the unsaved edits"
 		if r.AsNew != "" {
-			m.path, m.base = r.AsNew, nil
-			if m.journalFor != nil {
-				m.journal = m.journalFor(m.path)
-				m.journal.Rebase(nil)
+			m.file.path, m.file.base = r.AsNew, nil
+			if m.file.journalFor != nil {
+				m.file.journal = m.file.journalFor(m.file.path)
+				m.file.journal.Rebase(nil)
 			}
 			what += " as " + r.AsNew + " (not saved yet)"
 		}
@@ -235,13 +244,10 @@ func (m *Model) Init() tea.Cmd { return m.widthCmd() }
 func (m *Model) Stack() *engine.Stack { return m.stack }
 
 // Dirty reports unsaved changes.
-func (m *Model) Dirty() bool { return m.dirty }
+func (m *Model) Dirty() bool { return m.file.dirty }
 
 // Cursor returns the index of the selected item.
-func (m *Model) Cursor() int { return m.cursor }
-
-// Mode returns the current mode.
-func (m *Model) Mode() keymap.Mode { return m.mode }
+func (m *Model) Cursor() int { return m.tree.cursor }
 
 // StatusLine returns the message line.
 func (m *Model) StatusLine() string { return m.status }
@@ -251,29 +257,21 @@ func (m *Model) setStatus(s string, k statusKind) { m.status, m.statusK = s, k }
 // recompute re-evaluates the stack, its memory and the quick fit answers,
 // and rebuilds the visible items. It runs once per change, never in View.
 func (m *Model) recompute() {
-	m.res.Evaluate(m.stack)
-	m.res.Memory(m.stack.Training, m.assume, &m.mem)
-	w, lim, ok := m.fit.MaxWidth, m.fit.WidthLimit, m.fit.WidthExact
-	m.fit = engine.SolveCapacity(&m.res, &m.mem, m.stack.Training)
-	m.fit.MaxWidth, m.fit.WidthLimit, m.fit.WidthExact = w, lim, ok
-	m.cumAct = m.cumAct[:0]
+	m.nums.res.Evaluate(m.stack)
+	m.nums.res.Memory(m.stack.Training, m.nums.assume, &m.nums.mem)
+	w, lim, ok := m.nums.fit.MaxWidth, m.nums.fit.WidthLimit, m.nums.fit.WidthExact
+	m.nums.fit = engine.SolveCapacity(&m.nums.res, &m.nums.mem, m.stack.Training)
+	m.nums.fit.MaxWidth, m.nums.fit.WidthLimit, m.nums.fit.WidthExact = w, lim, ok
+	m.nums.cumAct = m.nums.cumAct[:0]
 	var sum int64
-	for _, b := range m.mem.Rows {
+	for _, b := range m.nums.mem.Rows {
 		sum += b
-		m.cumAct = append(m.cumAct, sum)
+		m.nums.cumAct = append(m.nums.cumAct, sum)
 	}
-	m.rebuild()
-}
-
-// rebuild lists the visible items again (after a change or a fold).
-func (m *Model) rebuild() {
-	m.items = buildItems(m.stack, &m.res, m.folded, m.items)
-	most := 0
-	for i := range m.items {
-		most = max(most, m.items[i].addr[len(m.items[i].addr)-1]+1)
-	}
-	m.numWidth = len(fmt.Sprint(most))
-	m.clampCursor()
+	m.tree.counts = counts{}
+	countItems(m.stack.Layers, &m.tree.counts)
+	m.tree.rebuild(m.stack, &m.nums.res)
+	m.matchBaseline()
 }
 
 // widthMsg carries a finished background width search.
@@ -284,48 +282,38 @@ type widthMsg struct {
 	exact bool
 }
 
+// widthState says where the background width search stands.
+type widthState uint8
+
+const (
+	widthNone      widthState = iota // no search: no budget, or memory not estimated
+	widthSearching                   // started; the answer is not in
+	widthDone                        // the answer is in (0: nothing fits)
+)
+
 // widthCmd starts the width search for the current stack (it re-evaluates
 // the stack a few dozen times, so it runs off the keystroke path).
 func (m *Model) widthCmd() tea.Cmd {
-	m.widthGen++
-	gen := m.widthGen
-	if m.stack.Training.Budget <= 0 || m.res.Errors > 0 {
-		m.fit.MaxWidth, m.fit.WidthLimit = 0, ""
+	m.nums.widthGen++
+	gen := m.nums.widthGen
+	if m.stack.Training.Budget <= 0 || !m.nums.mem.Estimated {
+		m.nums.fit.MaxWidth, m.nums.fit.WidthLimit, m.nums.widthState = 0, "", widthNone
 		return nil
 	}
+	m.nums.widthState = widthSearching
 	s := m.stack // never edited in place (see change), so safe to share
-	t, a := m.stack.Training, m.assume
+	t, a := m.stack.Training, m.nums.assume
 	return func() tea.Msg {
 		w, lim, exact := engine.MaxWidth(s, t, a)
 		return widthMsg{gen, w, lim, exact}
 	}
 }
 
-func (m *Model) clampCursor() {
-	if m.cursor >= len(m.items) {
-		m.cursor = len(m.items) - 1
-	}
-	if m.cursor < 0 {
-		m.cursor = 0
-	}
-	if m.anchor >= len(m.items) {
-		m.anchor = -1
-	}
-}
-
-// current returns the selected item, or nil for an empty stack.
-func (m *Model) current() *item {
-	if m.cursor < 0 || m.cursor >= len(m.items) {
-		return nil
-	}
-	return &m.items[m.cursor]
-}
-
 // channelsAt returns the channels flowing out of the selected item (the
 // input's when the stack is empty).
 func (m *Model) channelsAt() int64 {
-	if it := m.current(); it != nil && it.last >= 0 && m.res.Rows[it.last].Status == engine.StatusOK {
-		return m.res.Rows[it.last].Out.C
+	if it := m.tree.current(); it != nil && it.last >= 0 && m.nums.res.Rows[it.last].Status == engine.StatusOK {
+		return m.nums.res.Rows[it.last].Out.C
 	}
 	return m.stack.Input.C
 }

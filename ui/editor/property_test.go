@@ -50,7 +50,7 @@ func TestRandomEditsUndoAll(t *testing.T) {
 			a := actions[rng.Intn(len(actions))]
 			before := len(m.hist.undo)
 			press(m, a...)
-			if m.mode != modeNormal { // a refused form or prompt: leave it
+			if m.Mode() != modeNormal { // a refused form or prompt: leave it
 				press(m, "esc")
 			}
 			changes += len(m.hist.undo) - before
@@ -123,11 +123,11 @@ func TestJournalAndRecovery(t *testing.T) {
 	discarded := 0
 	opts.Recovery = &Recovery{Stack: edited, About: "unsaved edits from Dec 2 01:02:03 (5 layers)", Discard: func() error { discarded++; return nil }}
 	m2 := New(opts)
-	if m2.mode != modeConfirm || !reflect.DeepEqual(len(m2.stack.Layers), 27) {
+	if m2.Mode() != modeConfirm || !reflect.DeepEqual(len(m2.stack.Layers), 27) {
 		t.Fatal("no recovery question")
 	}
 	press(m2, "y")
-	if len(m2.stack.Layers) != 5 || !m2.dirty || discarded != 1 {
+	if len(m2.stack.Layers) != 5 || !m2.file.dirty || discarded != 1 {
 		t.Errorf("restore gave %d layers, discarded the old journal %d times", len(m2.stack.Layers), discarded)
 	}
 	press(m2, "u") // the file's version is one undo away
@@ -144,12 +144,12 @@ func TestJournalAndRecovery(t *testing.T) {
 	// An untrusted journal is restored under a new name; the file stays.
 	opts.Recovery.AsNew = "g.recovered.yaml"
 	m4 := New(opts)
-	if !strings.Contains(m4.confirm.question, "restore as g.recovered.yaml") {
-		t.Errorf("question %q", m4.confirm.question)
+	if !strings.Contains(questionOf(m4).Question, "restore as g.recovered.yaml") {
+		t.Errorf("question %q", questionOf(m4).Question)
 	}
 	press(m4, "y")
-	if m4.path != "g.recovered.yaml" || m4.base != nil || len(m4.stack.Layers) != 5 {
-		t.Errorf("restored as %q with %d layers", m4.path, len(m4.stack.Layers))
+	if m4.file.path != "g.recovered.yaml" || m4.file.base != nil || len(m4.stack.Layers) != 5 {
+		t.Errorf("restored as %q with %d layers", m4.file.path, len(m4.stack.Layers))
 	}
 }
 
@@ -176,7 +176,7 @@ func TestUnprotectedMark(t *testing.T) {
 	}
 	j.fail = errors.New("read-only file system")
 	press(m, ">", "w")
-	if strings.Contains(view(m), "no recovery copy") || m.dirty {
+	if strings.Contains(view(m), "no recovery copy") || m.file.dirty {
 		t.Errorf("the mark stayed after a save: %q", m.status)
 	}
 }

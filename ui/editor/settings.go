@@ -1,21 +1,27 @@
 package editor
 
 import (
-	"strconv"
+	"fmt"
+	"strings"
+
+	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
+	"stackfit/ui/editor/form"
 )
 
-// settingSpec is one field of the training-setup form.
+// settingSpec is one field of the setup form that edits the training
+// setup or the stage settings.
 type settingSpec struct {
 	key, help string
-	get       func(t *engine.Training, so *engine.StageOptions) string
-	set       func(t *engine.Training, so *engine.StageOptions, v string) error
+	get       func(s *engine.Stack) string
+	set       func(s *engine.Stack, v string) error
 }
 
 // settingsSpecs lists the training settings, as engine.Settings describes
-// them, and then the stage options, which only the editor has. The form
-// leaves out workspace and overhead (set in the stack file or by flag).
+// them, then the stage settings, as engine.StageSettings does (saved with
+// the stack, keyed "stage KEY" in the form). The form leaves out
+// workspace and overhead (set in the stack file or by flag).
 func settingsSpecs() []settingSpec {
 	var specs []settingSpec
 	for _, s := range engine.Settings() {
@@ -27,21 +33,113 @@ func settingsSpecs() []settingSpec {
 			help += " (empty: none)"
 		}
 		specs = append(specs, settingSpec{s.Key, help,
-			func(t *engine.Training, _ *engine.StageOptions) string { return s.Format(*t) },
-			func(t *engine.Training, _ *engine.StageOptions, v string) error { return s.Parse(t, v) }})
+			func(st *engine.Stack) string { return s.Format(st.Training) },
+			func(st *engine.Stack, v string) error { return s.Parse(&st.Training, v) }})
 	}
-	return append(specs,
-		settingSpec{"stage cap", "most channels a new stage may reach",
-			func(_ *engine.Training, so *engine.StageOptions) string { return strconv.FormatInt(so.Cap, 10) },
-			func(_ *engine.Training, so *engine.StageOptions, v string) (err error) {
-				so.Cap, err = engine.ParseInt("stage cap", v, 1, engine.MaxChannels)
-				return
+	for _, s := range engine.StageSettings() {
+		help := s.Help
+		if s.Default == "" {
+			help += " (empty: as the stack around the stage)"
+		} else {
+			help += " (default " + s.Default + ")"
+		}
+		specs = append(specs, settingSpec{"stage " + s.Key, help,
+			func(st *engine.Stack) string { return s.Format(st.Stage) },
+			func(st *engine.Stack, v string) error { return s.Parse(&st.Stage, v) }})
+	}
+	return specs
+}
+
+// stackSpecs are the stack's own fields at the head of the setup form:
+// its name, its note and the input shape.
+func stackSpecs() []stackSpec {
+	return []stackSpec{
+		{"name", "the stack's name (shown in reports and the export)",
+			func(s *engine.Stack) string { return s.Name },
+			func(s *engine.Stack, v string) error {
+				if len(v) > engine.MaxNoteLen {
+					return fmt.Errorf("name: at most %d characters", engine.MaxNoteLen)
+				}
+				s.Name = strings.TrimSpace(v)
+				return nil
 			}},
-		settingSpec{"stage layers", "layers after a stage's downsampling one",
-			func(_ *engine.Training, so *engine.StageOptions) string { return strconv.Itoa(so.Repeat) },
-			func(_ *engine.Training, so *engine.StageOptions, v string) error {
-				n, err := engine.ParseInt("stage layers", v, 0, 64)
-				so.Repeat = int(n)
+		{"note", "free text kept with the stack (" + lineBreak + " marks a line break)",
+			func(s *engine.Stack) string {
+				return strings.ReplaceAll(strings.TrimSuffix(s.Note, "\n"), "\n", lineBreak)
+			},
+			func(s *engine.Stack, v string) error {
+				note := strings.ReplaceAll(v, lineBreak, "\n")
+				if strings.HasSuffix(s.Note, "\n") && note != "" {
+					note += "\n" // as the file had it
+				}
+				if len(note) > engine.MaxNoteLen {
+					return fmt.Errorf("note: at most %d characters", engine.MaxNoteLen)
+				}
+				s.Note = note
+				return nil
+			}},
+		{"input", "one sample, channels×height×width, e.g. 3x256x256",
+			func(s *engine.Stack) string { return s.Input.String() },
+			func(s *engine.Stack, v string) error {
+				in, err := engine.ParseShape("input", v)
+				s.Input = in
 				return err
-			}})
+			}},
+	}
+}
+
+// lineBreak stands for a line break of a note in its one-line field.
+const lineBreak = " ⏎ "
+
+// stackSpec is one of the stack's own fields in the setup form.
+type stackSpec struct {
+	key, help string
+	get       func(s *engine.Stack) string
+	set       func(s *engine.Stack, v string) error
+}
+
+// editSettings opens the setup form: the stack's name, note and input,
+// the training setup, and the stage options.
+func (m *Model) editSettings() {
+	s0 := m.stack
+	own, specs := stackSpecs(), settingsSpecs()
+	var fields []form.Field
+	for _, sp := range own {
+		fields = append(fields, form.Field{Key: sp.key, Help: sp.help, Value: sp.get(s0)})
+	}
+	for _, sp := range specs {
+		fields = append(fields, form.Field{Key: sp.key, Help: sp.help, Value: sp.get(s0)})
+	}
+	build := func(values []string) (*engine.Stack, []string) {
+		s := s0.Clone()
+		errs := make([]string, len(values))
+		for i, sp := range own {
+			if err := sp.set(s, values[i]); err != nil {
+				errs[i] = err.Error()
+			}
+		}
+		for i, sp := range specs {
+			if err := sp.set(s, values[len(own)+i]); err != nil {
+				errs[len(own)+i] = err.Error()
+			}
+		}
+		return s, errs
+	}
+	check := func(values []string) ([]string, []bool) {
+		s, errs := build(values)
+		m.preview, m.previewBlocked = m.analyzeQuick(s), anyText(errs)
+		return errs, nil
+	}
+	commit := func(values []string) tea.Cmd {
+		s, _ := build(values)
+		if s.Name == s0.Name && s.Note == s0.Note && s.Input == s0.Input && s.Training == s0.Training && s.Stage == s0.Stage {
+			m.setStatus("setup unchanged", statusInfo)
+			return nil
+		}
+		return m.change("changed the setup", func(st *engine.Stack) (addr, error) {
+			st.Name, st.Note, st.Input, st.Training, st.Stage = s.Name, s.Note, s.Input, s.Training, s.Stage
+			return nil, nil
+		})
+	}
+	m.openForm("stack setup: name, input, training and stages", fields, check, formJob{commit: commit, cancelled: "setup unchanged"})
 }

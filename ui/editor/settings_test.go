@@ -14,43 +14,45 @@ func TestSetupFormFromSettings(t *testing.T) {
 	m := newModel(t, example(t), 120, 40)
 	t0 := m.stack.Training
 	press(m, "t")
-	if m.form == nil {
+	if formOf(m) == nil {
 		t.Fatal("t did not open the setup form")
 	}
-	var want []string
+	want := []string{"name", "note", "input"}
 	for _, s := range engine.Settings() {
 		if s.Key != "workspace" && s.Key != "overhead" {
 			want = append(want, s.Key)
 		}
 	}
-	want = append(want, "stage cap", "stage layers")
-	if len(m.form.fields) != len(want) {
-		t.Fatalf("%d fields, want %v", len(m.form.fields), want)
+	for _, k := range engine.StageSettingKeys() {
+		want = append(want, "stage "+k)
+	}
+	keys, vals := formOf(m).Keys(), formOf(m).Values()
+	if len(keys) != len(want) {
+		t.Fatalf("%d fields, want %v", len(keys), want)
 	}
 	for i, k := range want {
-		f := m.form.fields[i]
-		if f.key != k {
-			t.Errorf("field %d is %q, want %q", i, f.key, k)
+		if keys[i] != k {
+			t.Errorf("field %d is %q, want %q", i, keys[i], k)
 		}
-		if s, ok := engine.SettingFor(k); ok && f.input.Value() != s.Format(t0) {
-			t.Errorf("%s shows %q, want %q", k, f.input.Value(), s.Format(t0))
+		if s, ok := engine.SettingFor(k); ok && vals[i] != s.Format(t0) {
+			t.Errorf("%s shows %q, want %q", k, vals[i], s.Format(t0))
 		}
 	}
 	press(m, "enter")
-	if m.stack.Training != t0 || m.dirty {
-		t.Errorf("accepting the form untouched changed the training to %+v (dirty %v)", m.stack.Training, m.dirty)
+	if m.stack.Training != t0 || m.file.dirty {
+		t.Errorf("accepting the form untouched changed the training to %+v (dirty %v)", m.stack.Training, m.file.dirty)
 	}
 	if t0.GPUs != 0 {
 		t.Fatalf("the example sets gpus; this test wants it unset")
 	}
 	press(m, "t")
-	for m.form.fields[m.form.focus].key != "gpus" {
+	for formOf(m).Keys()[formOf(m).Focused()] != "gpus" {
 		press(m, "tab")
 	}
 	press(m, "ctrl+u")
 	typeText(m, "1")
 	press(m, "enter")
-	if m.stack.Training.GPUs != 0 || m.dirty {
-		t.Errorf("gpus 1, the default, was written: %+v (dirty %v)", m.stack.Training, m.dirty)
+	if m.stack.Training.GPUs != 0 || m.file.dirty {
+		t.Errorf("gpus 1, the default, was written: %+v (dirty %v)", m.stack.Training, m.file.dirty)
 	}
 }

@@ -5,6 +5,9 @@ import (
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
+	"stackfit/ui/editor/confirm"
+	"stackfit/ui/editor/form"
+	"stackfit/ui/editor/prompt"
 )
 
 // Update handles window sizes, keys and finished background work.
@@ -13,57 +16,54 @@ func (m *Model) Update(msg tea.Msg) (tea.Model, tea.Cmd) {
 	case tea.WindowSizeMsg:
 		m.width, m.height = msg.Width, msg.Height
 		m.help.Width = msg.Width
-		m.scrollToCursor()
+		m.sizeOverlay()
+		m.tree.scroll(m.listHeight())
 		return m, nil
 	case widthMsg:
-		if msg.gen == m.widthGen {
-			m.fit.MaxWidth, m.fit.WidthLimit, m.fit.WidthExact = msg.width, msg.limit, msg.exact
+		if msg.gen == m.nums.widthGen {
+			m.nums.fit.MaxWidth, m.nums.fit.WidthLimit, m.nums.fit.WidthExact = msg.width, msg.limit, msg.exact
+			m.nums.widthState = widthDone
 		}
 		return m, nil
 	case tea.KeyMsg:
 		// Keys typed faster than the terminal is read arrive as one message
 		// of several runes; outside text fields each is its own command.
-		if msg.Type == tea.KeyRunes && len(msg.Runes) > 1 && !msg.Paste && m.mode != modeForm && m.mode != modePrompt {
+		if msg.Type == tea.KeyRunes && len(msg.Runes) > 1 && !msg.Paste && !m.typing() {
 			var cmds []tea.Cmd
 			for _, r := range msg.Runes {
 				cmds = append(cmds, m.key(tea.KeyMsg{Type: tea.KeyRunes, Runes: []rune{r}, Alt: msg.Alt}))
-				m.scrollToCursor()
+				m.tree.scroll(m.listHeight())
 			}
 			return m, tea.Batch(cmds...)
 		}
 		cmd := m.key(msg)
-		m.scrollToCursor()
+		m.tree.scroll(m.listHeight())
 		return m, cmd
 	}
 	return m, nil
 }
 
-// key dispatches a key to the mode that owns it.
+// key gives a key to the open overlay, or to the stack view.
 func (m *Model) key(msg tea.KeyMsg) tea.Cmd {
-	if key.Matches(msg, m.keys.ForceQuit) && m.mode != modeConfirm {
+	if key.Matches(msg, m.keys.ForceQuit) {
+		if _, asking := m.overlay.(*confirm.Model); asking {
+			return m.quit() // ctrl+c on a question quits at once
+		}
 		return m.requestQuit()
 	}
-	switch m.mode {
-	case modeForm:
-		return m.updateForm(msg)
-	case modePicker:
-		return m.updatePicker(msg)
-	case modePrompt:
-		return m.updatePrompt(msg)
-	case modeConfirm:
-		return m.updateConfirm(msg)
-	case modeChart:
-		if key.Matches(msg, m.keys.ChartView, m.keys.Cancel) {
-			m.mode = modeNormal
-		}
-		return nil
-	case modeHelp:
-		if key.Matches(msg, m.keys.ShowHelp, m.keys.Cancel) {
-			m.mode = modeNormal
-		}
-		return nil
+	if m.overlay != nil {
+		return m.routeOverlay(msg)
 	}
 	return m.normal(msg)
+}
+
+// typing reports whether a text field has the keys (a form or a prompt).
+func (m *Model) typing() bool {
+	switch m.overlay.(type) {
+	case *form.Model, *prompt.Model:
+		return true
+	}
+	return false
 }
 
 // normal handles the keys of the stack view.
@@ -72,17 +72,17 @@ func (m *Model) normal(msg tea.KeyMsg) tea.Cmd {
 	page := max(m.listHeight()-1, 1)
 	switch {
 	case key.Matches(msg, k.Up):
-		m.cursor--
+		m.tree.cursor--
 	case key.Matches(msg, k.Down):
-		m.cursor++
+		m.tree.cursor++
 	case key.Matches(msg, k.PageUp):
-		m.cursor -= page
+		m.tree.cursor -= page
 	case key.Matches(msg, k.PageDown):
-		m.cursor += page
+		m.tree.cursor += page
 	case key.Matches(msg, k.Top):
-		m.cursor = 0
+		m.tree.cursor = 0
 	case key.Matches(msg, k.Bottom):
-		m.cursor = len(m.items) - 1
+		m.tree.cursor = len(m.tree.items) - 1
 	case key.Matches(msg, k.Fold):
 		m.toggleFold()
 	case key.Matches(msg, k.Edit):
@@ -94,25 +94,25 @@ func (m *Model) normal(msg tea.KeyMsg) tea.Cmd {
 	case key.Matches(msg, k.Copy):
 		return m.duplicate()
 	case key.Matches(msg, k.Delete):
-		return m.remove()
+		return m.apply(m.tree.remove())
 	case key.Matches(msg, k.MoveUp):
-		return m.move(-1)
+		return m.apply(m.tree.move(-1))
 	case key.Matches(msg, k.MoveDown):
-		return m.move(+1)
+		return m.apply(m.tree.move(+1))
 	case key.Matches(msg, k.Select):
-		if m.anchor >= 0 {
-			m.anchor = -1
+		if m.tree.anchor >= 0 {
+			m.tree.anchor = -1
 			m.setStatus("range cleared", statusInfo)
 		} else {
-			m.anchor = m.cursor
+			m.tree.anchor = m.tree.cursor
 			m.setStatus("range started: move, then b wraps it in a block or x deletes it (v clears)", statusInfo)
 		}
 	case key.Matches(msg, k.Wrap):
-		return m.wrap()
+		return m.apply(m.tree.wrap(m.stack))
 	case key.Matches(msg, k.Widen):
-		return m.scaleFilters(2, 1)
+		return m.apply(m.tree.scaleFilters(2, 1))
 	case key.Matches(msg, k.Narrow):
-		return m.scaleFilters(1, 2)
+		return m.apply(m.tree.scaleFilters(1, 2))
 	case key.Matches(msg, k.Width):
 		m.openPrompt(promptWidth, "multiply every width by", "1.5")
 	case key.Matches(msg, k.Stage):
@@ -124,59 +124,50 @@ func (m *Model) normal(msg tea.KeyMsg) tea.Cmd {
 	case key.Matches(msg, k.Settings):
 		m.editSettings()
 	case key.Matches(msg, k.ChartView):
-		m.mode = modeChart
+		m.clearPreview()
+		m.open(&chart{keys: m.keys})
 	case key.Matches(msg, k.Baseline):
 		m.toggleBaseline()
 	case key.Matches(msg, k.ShowHelp):
-		m.mode = modeHelp
+		m.openHelp()
 	case key.Matches(msg, k.Save):
 		return m.save()
 	case key.Matches(msg, k.SaveAs):
-		name := m.path
+		name := m.file.path
 		if name == "" {
 			name = "net.yaml"
 		}
 		m.openPrompt(promptSaveAs, "save as", name)
 	case key.Matches(msg, k.Open):
-		m.open()
+		m.openFile()
 	case key.Matches(msg, k.Quit):
 		return m.requestQuit()
 	}
-	m.clampCursor()
+	m.tree.clamp()
 	return nil
 }
 
 func (m *Model) toggleFold() {
-	it := m.current()
-	if it == nil || !engine.SpecOf(it.layer.Kind).Body {
-		m.setStatus("space folds blocks and gates; this is a "+kindName(it), statusError)
+	it := m.tree.current()
+	switch {
+	case it != nil && it.gen != nil && it.gen.repeat > 0:
+		m.tree.opened[it.gen.key] = !m.tree.opened[it.gen.key]
+	case it == nil || it.gen != nil || !engine.SpecOf(it.layer.Kind).Body:
+		m.setStatus("space folds blocks, gates, forks and later repeats; this is "+kindName(it), statusError)
 		return
+	default:
+		k := it.addr.key()
+		m.tree.folded[k] = !m.tree.folded[k]
 	}
-	k := it.addr.key()
-	m.folded[k] = !m.folded[k]
-	m.rebuild()
+	m.tree.rebuild(m.stack, &m.nums.res)
 }
 
 func kindName(it *item) string {
-	if it == nil {
-		return "empty stack"
+	switch {
+	case it == nil:
+		return "an empty stack"
+	case it.gen != nil:
+		return it.gen.what
 	}
-	return it.layer.Kind.String()
-}
-
-// scrollToCursor keeps the cursor inside the visible rows.
-func (m *Model) scrollToCursor() {
-	h := max(m.listHeight(), 1)
-	if m.cursor < m.offset {
-		m.offset = m.cursor
-	}
-	if m.cursor >= m.offset+h {
-		m.offset = m.cursor - h + 1
-	}
-	if m.offset > max(len(m.items)-h, 0) {
-		m.offset = max(len(m.items)-h, 0)
-	}
-	if m.offset < 0 {
-		m.offset = 0
-	}
+	return "a " + it.layer.Kind.String()
 }
