@@ -113,10 +113,11 @@ type Action struct {
 // and its modes.
 func (k *KeyMap) Actions() []Action {
 	n := []Mode{Normal}
-	nav := []Mode{Normal, Picker}
+	nav := []Mode{Normal, Picker, Help}
+	ends := []Mode{Normal, Help}
 	return []Action{
 		{"up", nav, &k.Up}, {"down", nav, &k.Down}, {"page-up", nav, &k.PageUp}, {"page-down", nav, &k.PageDown},
-		{"top", n, &k.Top}, {"bottom", n, &k.Bottom}, {"fold", n, &k.Fold},
+		{"top", ends, &k.Top}, {"bottom", ends, &k.Bottom}, {"fold", n, &k.Fold},
 		{"edit", n, &k.Edit}, {"add", n, &k.Add}, {"quick-add", n, &k.QuickAdd}, {"copy", n, &k.Copy},
 		{"delete", n, &k.Delete}, {"move-up", n, &k.MoveUp}, {"move-down", n, &k.MoveDown},
 		{"select", n, &k.Select}, {"wrap", n, &k.Wrap}, {"widen", n, &k.Widen}, {"narrow", n, &k.Narrow},
