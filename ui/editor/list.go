@@ -121,7 +121,7 @@ func (t *stackTree) header(d drawing, lay layout) string {
 func (t *stackTree) view(d drawing, lay layout, empty string) string {
 	var b strings.Builder
 	if len(t.items) == 0 {
-		b.WriteString(lipgloss.Place(d.width, lay.listH, lipgloss.Center, lipgloss.Center, d.st.Dim.Render(empty)))
+		b.WriteString(lipgloss.Place(d.width, lay.listH, lipgloss.Center, lipgloss.Center, d.st.Dim.Render(ansi.Wrap(empty, max(d.width-4, 20), " "))))
 		b.WriteByte('\n')
 		return b.String()
 	}

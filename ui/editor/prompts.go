@@ -199,7 +199,7 @@ func (m *Model) submitPrompt(k promptKind, v string) tea.Cmd {
 func (m *Model) promptCancelled(k promptKind) {
 	switch k {
 	case promptInput:
-		m.setStatus("kept the input "+m.stack.Input.String()+"; change it, the name or the note any time in the setup form ("+m.keys.Settings.Help().Key+")", statusInfo)
+		m.setStatus("kept "+m.stack.Input.String()+" as the input; "+m.keys.Settings.Help().Key+" (setup) changes it, the name and the note", statusInfo)
 	case promptWidth:
 		m.setStatus("widths unchanged", statusInfo)
 	default:

@@ -7,8 +7,11 @@
 package form
 
 import (
+	"strings"
+
 	"github.com/charmbracelet/bubbles/key"
 	tea "github.com/charmbracelet/bubbletea"
+	"github.com/charmbracelet/x/ansi"
 
 	"stackfit/engine/textsafe"
 	"stackfit/keymap"
@@ -213,7 +216,18 @@ func (f *Model) View(width, height int) string {
 		if r.err != "" {
 			note = f.st.Error.Render("✗ " + textsafe.Line(r.err))
 		}
-		lines = append(lines, mark+f.st.Label.Render(cells.Fit(r.Key, labelW))+"  "+cells.Fit(r.input.View(f.st.Cursor), 18)+"  "+note)
+		line := mark + f.st.Label.Render(cells.Fit(r.Key, labelW)) + "  " + cells.Fit(r.input.View(f.st.Cursor), 18) + "  "
+		if i != f.focus || r.err == "" || cells.Width(line+note) <= width {
+			lines = append(lines, line+note)
+		} else {
+			// The focused field's message whole, under it: the fix is
+			// at its end.
+			lines = append(lines, line+f.st.Error.Render("✗"))
+			indent := cells.Width(line)
+			for _, l := range strings.Split(ansi.Wrap(textsafe.Line(r.err), max(width-indent, 20), " "), "\n") {
+				lines = append(lines, strings.Repeat(" ", indent)+f.st.Error.Render(l))
+			}
+		}
 	}
 	return cells.Block(lines, height, width)
 }
