@@ -470,3 +470,19 @@ func TestStageFollowsTheStack(t *testing.T) {
 		t.Errorf("the stage settings are not saved (%v):\n%s", err, data)
 	}
 }
+
+// TestLongStatusShownWhole: a message longer than the window (a keys-file
+// problem at start) is shown whole over the footer until the next key.
+func TestLongStatusShownWhole(t *testing.T) {
+	msg := "the default keys apply, not the keys file's: /home/someone/.config/stackfit/keys.yaml: unknown action \"foo\" — fix or remove the keys file"
+	m := New(Options{Stack: example(t), Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(), Notice: msg})
+	m.Update(tea.WindowSizeMsg{Width: 80, Height: 24})
+	flat := strings.Join(strings.Fields(view(m)), " ")
+	if !strings.Contains(flat, "fix or remove the keys file") {
+		t.Errorf("the notice is cut:\n%s", view(m))
+	}
+	press(m, "j")
+	if v := view(m); !strings.Contains(v, "batch 256") {
+		t.Errorf("after a key the footer is still covered:\n%s", v)
+	}
+}

@@ -8,11 +8,12 @@ import (
 	"stackfit/ui/editor/cells"
 )
 
-// footer draws totals, the budget gauge and the fit answers. Sizes
+// footer draws totals, the budget gauge and the fit answers; the lines in
+// over (at most three) take the place of its last ones. Sizes
 // are in the units the reports use (GiB, MiB). With errors in the stack,
 // or an invalid field in the open form, memory is not estimated and the
 // footer says so instead of giving a verdict.
-func (fr *frame) footer() string {
+func (fr *frame) footer(over []string) string {
 	res, mem, ft, s := fr.shown()
 	t := s.Training
 	var dp, dm, dmem string
@@ -53,6 +54,7 @@ func (fr *frame) footer() string {
 		lines[2] = fr.legend(mem)
 		lines[3] = fr.fitLine(mem, ft, max(t.Batch, 1))
 	}
+	copy(lines[len(lines)-len(over):], over) // the first lines of a long status message
 	var b strings.Builder
 	for _, l := range lines {
 		b.WriteString(cells.Fit(l, fr.width))

@@ -114,11 +114,12 @@ type Model struct {
 	preview        *engine.Analysis
 	previewBlocked bool
 
-	hist     history
-	baseline *baseline
-	status   string
-	statusK  statusKind
-	quitting bool
+	hist      history
+	baseline  *baseline
+	status    string
+	statusK   statusKind
+	statusNew bool // set since the last key: a long message shows whole
+	quitting  bool
 }
 
 // fileState is where the stack lives: its file, what the editor last read
@@ -252,7 +253,7 @@ func (m *Model) Cursor() int { return m.tree.cursor }
 // StatusLine returns the message line.
 func (m *Model) StatusLine() string { return m.status }
 
-func (m *Model) setStatus(s string, k statusKind) { m.status, m.statusK = s, k }
+func (m *Model) setStatus(s string, k statusKind) { m.status, m.statusK, m.statusNew = s, k, true }
 
 // recompute re-evaluates the stack, its memory and the quick fit answers,
 // and rebuilds the visible items. It runs once per change, never in View.

@@ -45,6 +45,7 @@ func (m *Model) Update(msg tea.Msg) (tea.Model, tea.Cmd) {
 
 // key gives a key to the open overlay, or to the stack view.
 func (m *Model) key(msg tea.KeyMsg) tea.Cmd {
+	m.statusNew = false
 	if key.Matches(msg, m.keys.ForceQuit) {
 		if _, asking := m.overlay.(*confirm.Model); asking {
 			return m.quit() // ctrl+c on a question quits at once

@@ -6,6 +6,7 @@ import (
 
 	"github.com/charmbracelet/bubbles/key"
 	"github.com/charmbracelet/lipgloss"
+	"github.com/charmbracelet/x/ansi"
 
 	"stackfit/engine"
 	"stackfit/engine/textsafe"
@@ -56,9 +57,31 @@ func (m *Model) View() string {
 	}
 	b.WriteString(m.rule("memory per GPU — estimate"))
 	b.WriteByte('\n')
-	b.WriteString(fr.footer())
-	b.WriteString(m.bottomView())
+	status := m.statusLines()
+	b.WriteString(fr.footer(status[:len(status)-1]))
+	b.WriteString(m.bottomView(status[len(status)-1]))
 	return b.String()
+}
+
+// statusLines is the status message wrapped to the window: its last line
+// goes on the status line, any before it over the footer's last lines, so
+// a long message (a keys-file problem at start, say) is read whole rather
+// than cut — until the next key, when it shrinks to its line.
+func (m *Model) statusLines() []string {
+	status := textsafe.Line(m.status) // messages quote names, file names and errors
+	lines := []string{status}
+	if m.statusNew && cells.Width(status) > m.width {
+		lines = strings.Split(ansi.Wrap(status, m.width, " "), "\n")
+		if len(lines) > 3 {
+			lines = append(lines[:2], cells.Fit(strings.Join(lines[2:], " "), m.width))
+		}
+	}
+	if m.statusK == statusError {
+		for i := range lines {
+			lines[i] = m.st.Error.Render(lines[i])
+		}
+	}
+	return lines
 }
 
 // emptyText is what the stack view shows while the stack is empty.
@@ -136,17 +159,13 @@ func (m *Model) titleLine() string {
 }
 
 // bottomView is the status line and the hint bar, or the open prompt, or
-// the open question and its answers.
-func (m *Model) bottomView() string {
+// the open question and its answers; status is the status line's text.
+func (m *Model) bottomView(status string) string {
 	switch o := m.overlay.(type) {
 	case *prompt.Model:
 		return o.View(m.width)
 	case *confirm.Model:
 		return o.View(m.width) + "\n" + m.hintBar(o.Keys.ShortHelp(), nil)
-	}
-	status := textsafe.Line(m.status) // messages quote names, file names and errors
-	if m.statusK == statusError {
-		status = m.st.Error.Render(status)
 	}
 	var hints, keep []key.Binding
 	switch o := m.overlay.(type) {
