@@ -186,6 +186,10 @@ func (m *Model) bottomView(status string) string {
 // many as fit, the least important (the last) left out first.
 func (m *Model) hintBar(bindings, keep []key.Binding) string {
 	const sep = " · "
+	sepW := cells.Width(sep)
+	// Widths from the plain text: styles are rendered only for the hints
+	// that are shown, once.
+	width := func(b key.Binding) int { return cells.Width(b.Help().Key) + 1 + cells.Width(b.Help().Desc) + sepW }
 	part := func(b key.Binding) string {
 		return m.st.Label.Render(b.Help().Key) + " " + m.st.Help.Render(b.Help().Desc)
 	}
@@ -197,38 +201,42 @@ func (m *Model) hintBar(bindings, keep []key.Binding) string {
 		}
 		return false
 	}
-	var tail []string
 	used := 0
+	var tail []key.Binding
 	for _, k := range keep {
-		if !k.Enabled() {
-			continue
+		if k.Enabled() {
+			tail = append(tail, k)
+			used += width(k)
 		}
-		tail = append(tail, part(k))
-		used += cells.Width(part(k)) + cells.Width(sep)
 	}
-	var head []string
+	var head []key.Binding
 	more := false
 	for _, b := range bindings {
 		if !b.Enabled() || isKept(b) {
 			continue
 		}
-		w := cells.Width(part(b)) + cells.Width(sep)
-		if used+w > m.width-2 { // room for the "…" that says some are left out
+		if used+width(b) > m.width-2 { // room for the "…" that says some are left out
 			more = true
 			break
 		}
-		head = append(head, part(b))
-		used += w
+		head = append(head, b)
+		used += width(b)
 	}
-	parts := append(head, tail...)
-	line := strings.Join(parts, m.st.Help.Render(sep))
+	join := func(bs []key.Binding) string {
+		parts := make([]string, len(bs))
+		for i, b := range bs {
+			parts[i] = part(b)
+		}
+		return strings.Join(parts, m.st.Help.Render(sep))
+	}
+	line := join(append(head, tail...))
 	if more {
-		line = strings.Join(head, m.st.Help.Render(sep))
+		line = join(head)
 		if len(head) > 0 {
 			line += m.st.Help.Render(" …")
 		}
 		if len(tail) > 0 {
-			line += m.st.Help.Render(sep) + strings.Join(tail, m.st.Help.Render(sep))
+			line += m.st.Help.Render(sep) + join(tail)
 		}
 	}
 	return cells.Fit(line, m.width)
