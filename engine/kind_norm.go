@@ -70,10 +70,20 @@ func normEps(l *Layer) float64 {
 }
 
 // savedNorm: a norm keeps its input, and group, instance and layer norm
-// their per-sample statistics (fp32) as well.
+// their per-sample statistics (fp32) as well. Under autocast layer and
+// group norm run in fp32 (on CUDA and the CPU alike, per PyTorch's
+// autocast op lists), so what they keep is an fp32 copy of the input, a
+// tensor of its own (checked with bf16 autocast on the CPU,
+// testdata/memory/step_reference.json).
 func savedNorm(row *Row, s *saving) int64 {
 	l, ov := row.Layer, &s.ov
-	b := s.input(row)
+	var b int64
+	if s.autocast && (l.Norm == NormLayer || l.Norm == NormGroup) {
+		in, _ := row.In.Elements()
+		b = mul(ov, in, 4)
+	} else {
+		b = s.input(row)
+	}
 	switch l.Norm {
 	case NormGroup:
 		b += mul(ov, 2*l.NormGroups, 4) // mean and reciprocal std per group

@@ -16,11 +16,16 @@ type Assumptions struct {
 // 8-byte pooling indices, as PyTorch keeps them on CUDA devices.
 func DefaultAssumptions() Assumptions { return Assumptions{MaskBytes: 1, IndexBytes: 8} }
 
-// bytesPer gives the bytes per parameter of the compute copy, the gradient,
-// the fp32 master copy (mixed precision only) and one optimizer-state slot.
+// bytesPer gives the bytes per parameter of the weights (under autocast
+// the fp32 parameter and its cached half-precision copy, 4 + 2; counted
+// for every parameter, though norms' stay uncast), the gradient, the fp32
+// master copy (master settings only) and one optimizer-state slot. See
+// Precision for the schemes.
 func bytesPer(p Precision) (weight, grad, master, slot int64) {
 	switch p {
 	case FP16Mixed, BF16Mixed:
+		return 6, 4, 0, 4
+	case FP16Master, BF16Master:
 		return 2, 2, 4, 4
 	case BF16:
 		return 2, 2, 0, 2
@@ -97,14 +102,24 @@ type Memory struct {
 	StackErrors int  // the errors that stopped the estimate (0 when Estimated)
 	Fits        bool // Estimated and Total ≤ Budget − Reserve (true when estimated with no budget)
 
-	ActPerSample     int64   // activation bytes per sample
-	ScratchPerSample int64   // backward scratch per sample
+	ActPerSample     int64   // activation bytes per sample kept for backward
+	ScratchPerSample int64   // what the step's peak adds to them per sample: live outputs and gradient buffers
 	LivePerSample    int64   // most activation elements alive at once in inference, per sample
 	Inference        int64   // weights at compute precision plus the largest set of live activations
 	Rows             []int64 // activation bytes each row keeps, at the micro-batch
 
-	seen []int32 // scratch: storage → last epoch counted
-	sv   saving  // scratch: the saved-bytes counter
+	// PeakPerSample is the step simulation's peak of activation memory per
+	// sample (kept tensors, live outputs and gradient buffers); PeakPhase
+	// and PeakRow say where it falls (PeakRow −1: not simulated, as under
+	// checkpointing, where it is a bound). ScratchPerSample is what the
+	// peak adds to the kept tensors.
+	PeakPerSample int64
+	PeakPhase     Phase
+	PeakRow       int
+
+	seen []int32     // scratch: storage → last epoch counted
+	sv   saving      // scratch: the saved-bytes counter
+	step stepScratch // scratch: the step simulation
 }
 
 // Category names, in display order.
@@ -186,7 +201,7 @@ func (m *Memory) fill(r *Result, t Training) {
 	for _, c := range m.Categories() {
 		total = add(&ov, total, c.Bytes)
 	}
-	w, _, _, _ := bytesPer(t.Precision)
+	w := ActivationBytes(t.Precision) // inference runs on the weights in the compute precision
 	m.Inference = add(&ov, add(&ov, mul(&ov, r.Totals.Params, w), mul(&ov, r.Totals.Buffers, bufBytes)), mul(&ov, mul(&ov, m.LivePerSample, e), m.MicroBatch))
 	if ov {
 		total = math.MaxInt64
@@ -231,16 +246,31 @@ func (r *Result) activationProfile(t Training, a Assumptions, m *Memory, rows *[
 	micro := m.MicroBatch
 	sv := &m.sv
 	sv.a, sv.e, sv.seen, sv.epoch, sv.ov = a, e, seen, 0, false
+	sv.autocast = t.Precision == FP16Mixed || t.Precision == BF16Mixed
+	k := int64(t.Checkpoint)
+	sv.step = nil
+	if k <= 0 {
+		m.step.reset(n)
+		sv.step = &m.step
+	}
 	sv.rows, sv.in = r.Rows, r.Input
 	ov := &sv.ov
-	k := int64(t.Checkpoint)
 	var segment, segMax, kept int64
 	var largest int64
 	for i := range r.Rows {
 		row := &r.Rows[i]
 		var b int64
 		if row.Status == StatusOK {
+			sv.row, sv.stored = int32(i), 0
 			b = r.savedBytes(row, sv)
+			if sv.step != nil {
+				sv.step.extras[i] = b - sv.stored // masks, indices, statistics
+			}
+		}
+		if sv.step != nil {
+			sv.step.note(r, i, e, ov)
+		}
+		if row.Status == StatusOK {
 			out, _ := row.Out.Elements()
 			largest = max(largest, out)
 		}
@@ -264,9 +294,21 @@ func (r *Result) activationProfile(t Training, a Assumptions, m *Memory, rows *[
 	if k > 0 {
 		perSample = add(ov, kept, segMax)
 	}
-	// Backward scratch: the gradient arriving at and leaving the widest row.
-	scratch = mul(ov, mul(ov, 2, largest), e)
-	peakLive = r.peakLive(seen)
+	// The step's peak beyond the kept tensors: simulated; under
+	// checkpointing bounded by the gradient arriving at and leaving the
+	// widest row.
+	m.PeakRow = -1
+	if k <= 0 {
+		p := r.simulateStep(&m.step, e, ov)
+		m.PeakPhase, m.PeakRow = p.phase, p.row
+		scratch = max(p.bytes-perSample, 0)
+		peakLive = p.infer / e
+	} else {
+		scratch = mul(ov, mul(ov, 2, largest), e)
+		m.PeakPhase = PhaseBackward
+		peakLive = r.peakLive(seen)
+	}
+	m.PeakPerSample = add(ov, perSample, scratch)
 	if *ov {
 		return math.MaxInt64 / 8, 0, 0
 	}
@@ -283,6 +325,12 @@ type saving struct {
 	ov    bool    // a product overflowed
 	rows  []Row   // the rows, for the size of a storage
 	in    Shape   // the network input
+
+	autocast bool // mixed precision as torch.autocast runs it (see savedNorm)
+
+	step   *stepScratch // where each kept tensor is recorded (nil: not simulated)
+	row    int32        // the row being counted
+	stored int64        // its bytes counted as tensors (the rest are extras)
 }
 
 // keep counts a tensor (by storage) once per epoch and returns its bytes.
@@ -291,7 +339,12 @@ func (s *saving) keep(store int32, elems int64) int64 {
 		return 0
 	}
 	s.seen[store+1] = s.epoch
-	return mul(&s.ov, elems, s.e)
+	b := mul(&s.ov, elems, s.e)
+	s.stored += b
+	if s.step != nil {
+		s.step.savedAt[store+1], s.step.savedB[store+1] = s.row, b
+	}
+	return b
 }
 
 // input counts the row's input tensor: its whole storage, which is larger
@@ -326,12 +379,8 @@ func (r *Result) savedBytes(row *Row, s *saving) int64 {
 	return 0
 }
 
-// peakLive returns the most activation elements (per sample) alive at once
-// in a forward pass that keeps nothing for backward: at each row its input,
-// its output and every earlier tensor still to be read later (skips waiting
-// for their merge, block inputs waiting for their shortcut). seen is
-// scratch of length len(r.Rows)+1.
-func (r *Result) peakLive(lastUse []int32) int64 {
+// lastUses fills lastUse (storage → last reading row, −1 none).
+func (r *Result) lastUses(lastUse []int32) {
 	n := len(r.Rows)
 	for i := range lastUse {
 		lastUse[i] = -1
@@ -352,6 +401,17 @@ func (r *Result) peakLive(lastUse []int32) int64 {
 		}
 		use(row.OutStore, i)
 	}
+}
+
+// peakLive returns the most activation elements (per sample) alive at once
+// in a forward pass that keeps nothing for backward: at each row its input,
+// its output and every earlier tensor still to be read later (skips waiting
+// for their merge, block inputs waiting for their shortcut). lastUse is
+// scratch of length len(r.Rows)+1. Without checkpointing the step
+// simulation gives the same figure in its forward pass.
+func (r *Result) peakLive(lastUse []int32) int64 {
+	n := len(r.Rows)
+	r.lastUses(lastUse)
 	// Sweep: a storage is alive from the row that writes it (the input from
 	// the start) to its last use.
 	var live, peak int64

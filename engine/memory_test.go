@@ -14,7 +14,7 @@ import (
 // 1.9 GB per device with nothing, optimizer state, + gradients and
 // + parameters sharded (GB = 10⁹ bytes).
 func TestModelStateZeRO(t *testing.T) {
-	w, g, o := engine.ModelState(1_500_000_000, engine.Training{Precision: engine.FP16Mixed, Optimizer: engine.Adam})
+	w, g, o := engine.ModelState(1_500_000_000, engine.Training{Precision: engine.FP16Master, Optimizer: engine.Adam})
 	if w+g+o != 24e9 {
 		t.Errorf("1.5 B params: %d bytes, want 24e9", w+g+o)
 	}
@@ -28,7 +28,7 @@ func TestModelStateZeRO(t *testing.T) {
 		{engine.ShardNone, 120}, {engine.ShardOptimizer, 31.4}, {engine.ShardGradients, 16.6}, {engine.ShardParameters, 1.9},
 	}
 	for _, tt := range tests {
-		w, g, o := engine.ModelState(7_500_000_000, engine.Training{Precision: engine.FP16Mixed, Optimizer: engine.Adam, GPUs: 64, Shard: tt.shard})
+		w, g, o := engine.ModelState(7_500_000_000, engine.Training{Precision: engine.FP16Master, Optimizer: engine.Adam, GPUs: 64, Shard: tt.shard})
 		if got := math.Round(float64(w+g+o)/1e8) / 10; got != tt.gb {
 			t.Errorf("shard %v: %.1f GB, want %.1f (ZeRO worked example)", tt.shard, got, tt.gb)
 		}
@@ -47,8 +47,10 @@ func TestModelStatePrecisions(t *testing.T) {
 		{engine.FP32, engine.SGD, 4, 4, 0},
 		{engine.FP32, engine.Momentum, 4, 4, 4},
 		{engine.FP32, engine.AdamW, 4, 4, 8},
-		{engine.BF16Mixed, engine.AdamW, 6, 2, 8},
-		{engine.FP16Mixed, engine.RMSprop, 6, 2, 4},
+		{engine.BF16Mixed, engine.AdamW, 6, 4, 8}, // autocast: fp32 params + bf16 copies, fp32 grads and moments
+		{engine.FP16Mixed, engine.RMSprop, 6, 4, 4},
+		{engine.FP16Master, engine.AdamW, 6, 2, 8}, // fp16 weights + fp32 master, fp16 grads (ZeRO's accounting)
+		{engine.BF16Master, engine.Momentum, 6, 2, 4},
 		{engine.BF16, engine.Adam, 2, 2, 4},
 		{engine.BF16, engine.Adagrad, 2, 2, 2},
 	}
@@ -120,7 +122,17 @@ func TestMemoryCategories(t *testing.T) {
 	if m.Weights != 4*params || m.Gradients != 4*params || m.Optimizer != 8*params {
 		t.Errorf("model state %d %d %d", m.Weights, m.Gradients, m.Optimizer)
 	}
-	if want := int64(engine.DefaultWorkspace) + 10*2*512*4; m.Workspace != want {
+	// The step's peak, walked by hand (bytes per sample, fp32): forward
+	// ends with the 3,968 kept bytes and the 512-byte output alive; in
+	// backward the loss gradient (512), the dropout's input gradient (512),
+	// the pool's (2,048; its output gradient and the indices then go) and
+	// at the relu its input's (2,048): 768 input + 2,048 relu output + 512
+	// output + 2,048 + 2,048 = 7,424 at row 2, backward. Scratch is what
+	// that adds to the kept bytes: 3,456.
+	if m.PeakPerSample != 7424 || m.PeakPhase != engine.PhaseBackward || m.PeakRow != 1 {
+		t.Errorf("peak %d in %v at row %d, want 7424 in backward at row index 1", m.PeakPerSample, m.PeakPhase, m.PeakRow)
+	}
+	if want := int64(engine.DefaultWorkspace) + 10*(7424-3968); m.Workspace != want {
 		t.Errorf("workspace %d, want %d", m.Workspace, want)
 	}
 	sum := m.Weights + m.Gradients + m.Optimizer + m.Activations + m.Workspace + m.Overhead

@@ -129,7 +129,7 @@ func TestSettingsRefuse(t *testing.T) {
 		{"batch", "0", `batch: "0" is not valid; give a whole number from 1 to 16777216`},
 		{"gpus", "65537", `gpus: "65537" is not valid; give a whole number from 1 to 65536`},
 		{"checkpoint", "-1", `checkpoint: "-1" is not valid; give a whole number from 0 to 1048576`},
-		{"precision", "fp8", `precision: "fp8" is not valid; give one of fp32, fp16-mixed, bf16-mixed, bf16`},
+		{"precision", "fp8", `precision: "fp8" is not valid; give one of fp32, fp16-mixed, bf16-mixed, bf16, fp16-master, bf16-master`},
 		{"budget", "lots", `budget: "lots" is not valid; give a size such as 24GiB, 24GB or 24000MiB (empty: default)`},
 		{"headroom", "95%", `headroom: "95%" is not valid; give a share from 0% to 90%, e.g. 10%`},
 		{"headroom", "", `headroom: "" is not valid; give a share from 0% to 90%, e.g. 10%`},

@@ -4,14 +4,26 @@ package engine
 type Precision uint8
 
 // Precisions.
+//
+// The mixed settings follow PyTorch's native automatic mixed precision
+// (torch.autocast, as its documentation describes it): parameters, their
+// gradients and the optimizer state stay fp32; convolutions and dense
+// layers run in half precision on half-precision copies of their weights,
+// which autocast caches in the forward pass and autograd keeps for
+// backward; activations are half precision. The master settings are the
+// other scheme (Micikevicius et al. 2018, and the model states of
+// Rajbhandari et al. 2020): half-precision weights and gradients, with an
+// fp32 master copy of the weights beside the optimizer state.
 const (
-	FP32      Precision = iota // everything in 32-bit floats
-	FP16Mixed                  // fp16 compute copies, fp32 master weights
-	BF16Mixed                  // bf16 compute copies, fp32 master weights
-	BF16                       // everything in bf16, no master copy
+	FP32       Precision = iota // everything in 32-bit floats
+	FP16Mixed                   // autocast to fp16: fp32 weights, gradients and state; fp16 weight copies and activations
+	BF16Mixed                   // autocast to bf16: as FP16Mixed with bf16
+	BF16                        // everything in bf16, no master copy
+	FP16Master                  // fp16 weights, gradients and activations, an fp32 master copy
+	BF16Master                  // bf16 weights, gradients and activations, an fp32 master copy
 )
 
-var precisionNames = [...]string{"fp32", "fp16-mixed", "bf16-mixed", "bf16"}
+var precisionNames = [...]string{"fp32", "fp16-mixed", "bf16-mixed", "bf16", "fp16-master", "bf16-master"}
 
 // String returns the stack-file value.
 func (p Precision) String() string {
@@ -22,7 +34,9 @@ func (p Precision) String() string {
 }
 
 // Precisions lists the supported precisions.
-func Precisions() []Precision { return []Precision{FP32, FP16Mixed, BF16Mixed, BF16} }
+func Precisions() []Precision {
+	return []Precision{FP32, FP16Mixed, BF16Mixed, BF16, FP16Master, BF16Master}
+}
 
 // Optimizer is the update rule, which decides the optimizer state kept per
 // parameter.

@@ -43,6 +43,17 @@ type JSONMemory struct {
 	Fits        bool           `json:"fits"`
 	Inference   int64          `json:"inference"`
 	Assumptions JSONAssumption `json:"assumptions"`
+	Peak        JSONPeak       `json:"peak"` // where one training step's activation memory peaks
+}
+
+// JSONPeak is the step simulation's answer: the activation memory per
+// sample at the step's peak, what part of it is kept for backward, and
+// where the peak falls.
+type JSONPeak struct {
+	PerSample int64  `json:"per_sample"` // bytes per sample at the peak
+	Kept      int64  `json:"kept"`       // of them, kept for backward (act bytes summed)
+	Phase     string `json:"phase"`      // forward or backward ("" when not estimated)
+	At        string `json:"at"`         // the row's path ("" when not simulated)
 }
 
 // JSONSetup is the training setup the estimate is for.
@@ -78,6 +89,7 @@ type JSONFit struct {
 type JSONAnswer struct {
 	Value float64 `json:"value"`
 	Limit string  `json:"limit"`
+	Peak  string  `json:"peak"` // where the step's memory peaks, for the batch answer ("backward at 6.1.1"); "" for the others
 }
 
 // Caution is the sentence every memory figure comes with.
@@ -188,11 +200,17 @@ func buildHead(an *engine.Analysis) *JSON {
 		Assumptions: JSONAssumption{ActivationBytes: engine.ActivationBytes(t.Precision), MaskBytes: an.Assumptions.MaskBytes,
 			IndexBytes: an.Assumptions.IndexBytes, Headroom: t.HeadroomShare(), Note: Caution},
 	}
+	if m.Estimated {
+		doc.Memory.Peak = JSONPeak{PerSample: m.PeakPerSample, Kept: m.ActPerSample, Phase: m.PeakPhase.String()}
+		if m.PeakRow >= 0 && m.PeakRow < len(r.Rows) {
+			doc.Memory.Peak.At = r.Rows[m.PeakRow].Path.String()
+		}
+	}
 	if an.Fit.HasBudget {
 		doc.Fit = &JSONFit{
-			MaxBatch: JSONAnswer{float64(an.Fit.MaxBatch), an.Fit.BatchLimit},
-			MaxWidth: JSONAnswer{an.Fit.MaxWidth, an.Fit.WidthLimit},
-			MinGPUs:  JSONAnswer{float64(an.Fit.MinGPUs), an.Fit.GPUsLimit},
+			MaxBatch: JSONAnswer{float64(an.Fit.MaxBatch), an.Fit.BatchLimit, m.PeakWhere(r)},
+			MaxWidth: JSONAnswer{an.Fit.MaxWidth, an.Fit.WidthLimit, ""},
+			MinGPUs:  JSONAnswer{float64(an.Fit.MinGPUs), an.Fit.GPUsLimit, ""},
 		}
 	}
 	return doc

@@ -13,7 +13,7 @@ import (
 )
 
 // columns are the per-layer fields of the markdown and CSV reports.
-var columns = []string{"path", "layer", "name", "status", "out C", "out H", "out W", "params", "buffers", "MACs", "rf h", "rf w", "act bytes"}
+var columns = []string{"path", "layer", "name", "status", "out C", "out H", "out W", "params", "buffers", "MACs", "rf h", "rf w", "act bytes", "step peak"}
 
 // cells returns one row's values as text, plain numbers for CSV.
 func cells(an *engine.Analysis, i int) []string {
@@ -27,9 +27,13 @@ func cells(an *engine.Analysis, i int) []string {
 		out = []string{strconv.FormatInt(r.Out.C, 10), strconv.FormatInt(r.Out.H, 10), strconv.FormatInt(r.Out.W, 10)}
 	}
 	f := func(v float64) string { return strconv.FormatFloat(v, 'f', -1, 64) }
+	peak := "" // the phase, on the row where the step's memory peaks
+	if an.Memory.Estimated && an.Memory.PeakRow == i {
+		peak = an.Memory.PeakPhase.String()
+	}
 	return append([]string{r.Path.String(), textsafe.Line(engine.RowSummary(r)), textsafe.Line(r.Layer.Name), r.Status.String()},
 		append(out, strconv.FormatInt(r.Params, 10), strconv.FormatInt(r.Buffers, 10), strconv.FormatInt(r.MACs, 10),
-			f(r.RF.H), f(r.RF.W), strconv.FormatInt(act, 10))...)
+			f(r.RF.H), f(r.RF.W), strconv.FormatInt(act, 10), peak)...)
 }
 
 // WriteCSV writes one line per layer with a header line; numbers are plain
@@ -138,6 +142,10 @@ func WriteMarkdown(w io.Writer, an *engine.Analysis) error {
 		fmt.Fprintf(b, "| %s | %s |\n", c.Name, engine.FormatBytes(c.Bytes))
 	}
 	fmt.Fprintf(b, "| **total** | **%s** |\n\n", engine.FormatBytes(m.Total))
+	if m.Estimated {
+		fmt.Fprintf(b, "The step's activation memory peaks in %s: per sample %s kept for backward and %s of live outputs and gradients.\n\n",
+			m.PeakWhere(r), engine.FormatBytes(m.ActPerSample), engine.FormatBytes(m.ScratchPerSample))
+	}
 	if m.Budget > 0 {
 		verdict := "fits"
 		if !m.Fits {

@@ -228,6 +228,8 @@ func writeMemory(w io.Writer, an *engine.Analysis) {
 	}
 	tb.add("  total", engine.FormatBytes(m.Total), "")
 	tb.write(w)
+	fmt.Fprintf(w, "  step peak: %s — per sample %s kept for backward + %s of live outputs and gradients (in workspace)\n",
+		m.PeakWhere(an.Result), engine.FormatBytes(m.ActPerSample), engine.FormatBytes(m.ScratchPerSample))
 	if m.Budget > 0 {
 		verdict := "fits"
 		if !m.Fits {
@@ -238,7 +240,7 @@ func writeMemory(w io.Writer, an *engine.Analysis) {
 	}
 	fmt.Fprintf(w, "  inference alone: %s (weights and the largest set of live activations)\n", engine.FormatBytes(m.Inference))
 	if f := an.Fit; f.HasBudget {
-		fmt.Fprintf(w, "  fits at most: batch %s (%s limit) · width ×%.2f (%s limit) · ", answer(f.MaxBatch), f.BatchLimit, f.MaxWidth, orDash(f.WidthLimit))
+		fmt.Fprintf(w, "  fits at most: batch %s (%s limit, peak in %s) · width ×%.2f (%s limit) · ", answer(f.MaxBatch), f.BatchLimit, m.PeakWhere(an.Result), f.MaxWidth, orDash(f.WidthLimit))
 		if f.MinGPUs > 0 {
 			fmt.Fprintf(w, "fewest GPUs %d\n", f.MinGPUs)
 		} else {

@@ -52,6 +52,9 @@ func runCheck(args []string, std IO) int {
 			max(an.Training.Batch, 1), m.Largest(), an.Fit.MaxBatch)
 		status = ExitProblems
 	}
+	if m.Estimated {
+		fmt.Fprintf(std.Out, "%s: memory: the step peaks in %s\n", name, m.PeakWhere(r))
+	}
 	fmt.Fprintf(std.Out, "%s: %d error(s), %d warning(s)\n", name, r.Errors, r.Warnings)
 	return status
 }

@@ -22,9 +22,9 @@ func TestCheck(t *testing.T) {
 		lines []string
 	}{
 		{"clean and fits", "", []string{"check", example}, ExitOK,
-			[]string{"fruit-grader.yaml: memory: fits: 1.37 GiB of 24.0 GiB per GPU with 10% kept free, at batch 256 (estimate)", "fruit-grader.yaml: 0 error(s), 0 warning(s)"}},
+			[]string{"fruit-grader.yaml: memory: fits: 1.26 GiB of 24.0 GiB per GPU with 10% kept free, at batch 256 (estimate)", "fruit-grader.yaml: 0 error(s), 0 warning(s)"}},
 		{"does not fit", "", []string{"check", example, "--budget", "1GiB"}, ExitProblems,
-			[]string{"memory: does not fit: 1.37 GiB of 1.00 GiB per GPU with 10% kept free, at batch 256 (estimate); largest category overhead; largest batch that fits 57"}},
+			[]string{"memory: does not fit: 1.26 GiB of 1.00 GiB per GPU with 10% kept free, at batch 256 (estimate); largest category overhead; largest batch that fits 70"}},
 		{"errors", bad, []string{"check", "-"}, ExitProblems,
 			[]string{"<stdin>: error: layer 1 (conv): kernel height spans 9 pixels but the padded input height is only 8", "<stdin>: memory: not estimated: the stack has 1 error(s)"}},
 		{"warnings pass", warn, []string{"check", "-"}, ExitOK,

@@ -84,6 +84,10 @@ func (fr *frame) detailLines() []string {
 			out = append(out, st.Render(d.Severity.String()+" "+res.Rows[i].Path.String()+": "+textsafe.Line(d.Message())))
 		}
 	}
+	if mem.Estimated && mem.PeakRow >= row && mem.PeakRow <= last {
+		out = append(out, fr.st.Warning.Render(fmt.Sprintf("the training step's activation memory peaks here, in %s: %s per sample (%s kept for backward, %s live outputs and gradients)",
+			mem.PeakWhere(res), engine.FormatBytes(mem.PeakPerSample), engine.FormatBytes(mem.ActPerSample), engine.FormatBytes(mem.ScratchPerSample))))
+	}
 	if last > row || body {
 		span := *it
 		span.first, span.last = row, last

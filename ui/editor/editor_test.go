@@ -377,7 +377,7 @@ func TestSettingsAndBaseline(t *testing.T) {
 	m := newModel(t, example(t), 80, 24)
 	press(m, "m")
 	press(m, ">")
-	if v := view(m); !strings.Contains(v, "fits · 1.62GiB (+256MiB) / 21.6GiB · params 852k (+10.1k) · MACs 231M (+41.3M)") {
+	if v := view(m); !strings.Contains(v, "fits · 1.39GiB (+128MiB) / 21.6GiB · params 852k (+10.1k) · MACs 231M (+41.3M)") {
 		t.Errorf("no baseline delta in the footer:\n%s", v)
 	}
 	press(m, "t")

@@ -162,8 +162,8 @@ func (fr *frame) fitLine(mem *engine.Memory, ft engine.Fit, batch int64) string 
 	}
 	limit, short := "limit: "+ft.BatchLimit, ft.BatchLimit
 	if ft.MaxBatch > 0 {
-		limit = fmt.Sprintf("each sample adds %s act + %s backward scratch", engine.FormatBytes(mem.ActPerSample), engine.FormatBytes(mem.ScratchPerSample))
-		short = fmt.Sprintf("+%s a sample", engine.FormatBytes(mem.ActPerSample+mem.ScratchPerSample))
+		limit = fmt.Sprintf("peak in %s: each sample adds %s kept + %s live", fr.peakWhere(mem), engine.FormatBytes(mem.ActPerSample), engine.FormatBytes(mem.ScratchPerSample))
+		short = fmt.Sprintf("+%s a sample, peak %s", engine.FormatBytes(mem.PeakPerSample), fr.peakWhere(mem))
 	}
 	most := batchText(ft.MaxBatch)
 	return firstFit(fr.width,
@@ -197,4 +197,10 @@ func batchText(n int64) string {
 		return "none"
 	}
 	return engine.GroupDigits(n)
+}
+
+// peakWhere says where the shown step peaks.
+func (fr *frame) peakWhere(mem *engine.Memory) string {
+	res, _, _, _ := fr.shown()
+	return mem.PeakWhere(res)
 }

@@ -1,0 +1,303 @@
+package engine
+
+// The step simulation: one training step's activation memory over time,
+// per sample, from the rows' tensor identities (InStore, OutStore,
+// OtherStore) and what each row keeps for backward.
+//
+// Forward, in row order: each output is allocated at its row and lives
+// until its last reader, unless some row keeps it for backward; what a row
+// keeps besides tensors (masks, indices, statistics) is allocated at the
+// row. Backward, in reverse: the gradient of the loss (a sum) is the size
+// of the output; at each row that gradient flows through, the gradients
+// of its inputs are allocated (a tensor read by several rows — a residual
+// block's input, a skip — gets one buffer at its last reader, later
+// contributions are added through a transient of its size), then the
+// gradient of its output and the tensors only it kept are freed (autograd
+// frees a node's saved tensors once its backward has run). An addition
+// and a concatenation pass views of their output's gradient on, so they
+// move the gradient rather than copy it. The peak of the live bytes over
+// both passes, and where it falls, is the answer.
+//
+// Parameter gradients do not grow with the batch; they are counted whole
+// in the gradients category (as after the first step, when every .grad
+// exists). Kernels' own scratch (a GPU's convolution workspace, a CPU
+// kernel's transient copies) is the workspace category, kept apart.
+
+// Phase says in which pass of a training step a peak falls.
+type Phase uint8
+
+// Phases.
+const (
+	PhaseForward Phase = iota
+	PhaseBackward
+)
+
+// String names the phase.
+func (p Phase) String() string {
+	if p == PhaseBackward {
+		return "backward"
+	}
+	return "forward"
+}
+
+// stepScratch is the simulation's reusable storage, kept in Memory so a
+// recompute allocates nothing.
+type stepScratch struct {
+	savedAt  []int32 // storage → row whose backward releases it (−1: not kept)
+	savedB   []int64 // storage → bytes kept
+	lastUse  []int32 // storage → last forward reader
+	extras   []int64 // row → bytes kept besides tensors
+	gradLive []bool  // storage → its gradient buffer exists
+	size     []int64 // storage → bytes
+	rows     []stepRow
+}
+
+// stepRow is what the simulation reads of a row, packed so its passes
+// stay in cache.
+type stepRow struct {
+	in, other, out int32 // storages; other is −3 when the row reads none
+	flags          uint8
+}
+
+// stepRow flags.
+const (
+	srOK       = 1 << iota // the row's numbers are known
+	srBackward             // a gradient flows through it (Grad, OtherGrad or parameters)
+	srGrad                 // its input needs a gradient
+	srOtherG               // its second input needs one
+	srPasses               // an addition or concatenation: passes views of its gradient on
+)
+
+func (st *stepScratch) reset(n int) {
+	grow := func(s []int32) []int32 {
+		if cap(s) < n+1 {
+			return make([]int32, n+1)
+		}
+		return s[:n+1]
+	}
+	st.savedAt, st.lastUse = grow(st.savedAt), grow(st.lastUse)
+	if cap(st.savedB) < n+1 {
+		st.savedB = make([]int64, n+1)
+	}
+	st.savedB = st.savedB[:n+1]
+	if cap(st.extras) < n {
+		st.extras = make([]int64, n)
+	}
+	st.extras = st.extras[:n]
+	if cap(st.gradLive) < n+1 {
+		st.gradLive = make([]bool, n+1)
+	}
+	st.gradLive = st.gradLive[:n+1]
+	if cap(st.size) < n+1 {
+		st.size = make([]int64, n+1)
+	}
+	st.size = st.size[:n+1]
+	if cap(st.rows) < n {
+		st.rows = make([]stepRow, n)
+	}
+	st.rows = st.rows[:n]
+	for i := range st.savedAt {
+		st.savedAt[i], st.lastUse[i], st.savedB[i], st.gradLive[i] = -1, -1, 0, false
+	}
+	clear(st.extras)
+}
+
+// stepPeak is the simulation's answer, per sample.
+type stepPeak struct {
+	bytes int64
+	phase Phase
+	row   int   // the row at which the peak falls (−1: none)
+	infer int64 // the most bytes alive at once in a forward pass that keeps nothing (inference)
+}
+
+// simulateStep walks one training step over the rows and returns its
+// activation peak per sample; e is the bytes per activation value and
+// st holds what activationProfile found each row keeps.
+func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
+	n := uint32(len(r.Rows))
+	size := st.size // and st.lastUse: filled by note, row by row
+	rows := st.rows
+	last := int32(n) - 1
+	for last >= 0 && rows[last].flags&srOK == 0 {
+		last--
+	}
+	if last < 0 {
+		return stepPeak{row: -1}
+	}
+	final := rows[last].out
+	peak := stepPeak{row: -1}
+
+	// Forward; infer follows the same pass keeping nothing for backward.
+	var live, infer, inferPeak int64
+	if st.lastUse[0] >= 0 || st.savedAt[0] >= 0 {
+		live = size[0]
+	}
+	if st.lastUse[0] >= 0 {
+		infer = size[0]
+	}
+	inferPeak = infer
+	for i := range rows {
+		p := &rows[i]
+		if p.flags&srOK == 0 {
+			continue
+		}
+		if p.out == int32(i) {
+			live = add(ov, live, size[i+1])
+			if st.lastUse[i+1] >= 0 {
+				infer = add(ov, infer, size[i+1])
+			}
+		}
+		live = add(ov, live, st.extras[i])
+		if live > peak.bytes {
+			peak = stepPeak{bytes: live, phase: PhaseForward, row: i}
+		}
+		inferPeak = max(inferPeak, infer)
+		// Free what is read for the last time here (each storage once).
+		for j := 0; j < 3; j++ {
+			var s int32
+			switch j {
+			case 0:
+				s = p.in
+			case 1:
+				s = p.other
+				if s == p.in {
+					continue
+				}
+			default:
+				s = p.out
+				if s == p.in || s == p.other {
+					continue
+				}
+			}
+			if uint32(s+1) > n || st.lastUse[s+1] != int32(i) {
+				continue // another row reads it later
+			}
+			infer -= size[s+1]
+			if st.savedAt[s+1] < 0 && s != final {
+				live -= size[s+1]
+			}
+		}
+	}
+	peak.infer = inferPeak
+
+	// Backward: the loss's gradient, then each row in reverse.
+	if uint32(final+1) <= n {
+		st.gradLive[final+1] = true
+		live = add(ov, live, size[final+1])
+	}
+	if live > peak.bytes {
+		peak = stepPeak{bytes: live, phase: PhaseBackward, row: int(last), infer: inferPeak}
+	}
+	for i := int(last); i >= 0; i-- {
+		p := &rows[i]
+		if p.flags&srOK == 0 || p.flags&srBackward == 0 {
+			continue
+		}
+		out := p.out
+		view := out == p.in // flatten, reshape: the same storage, the same gradient
+		ownsOut := !view && out == int32(i)
+		// An addition or a concatenation passes views of its output's
+		// gradient to its inputs: the gradient moves, it is not copied.
+		passes := p.flags&srPasses != 0
+		if passes && ownsOut && st.gradLive[out+1] {
+			st.gradLive[out+1] = false
+			live -= size[out+1]
+		}
+		transient := int64(0)
+		for j, s := range [2]int32{p.in, p.other} {
+			needed := p.flags&srGrad != 0
+			if j == 1 {
+				needed = p.flags&srOtherG != 0
+			}
+			if !needed || uint32(s+1) > n || view && s == p.in {
+				continue
+			}
+			if st.gradLive[s+1] {
+				transient = max(transient, size[s+1]) // added into the buffer there
+				continue
+			}
+			st.gradLive[s+1] = true
+			live = add(ov, live, size[s+1])
+		}
+		if at := add(ov, live, transient); at > peak.bytes {
+			peak = stepPeak{bytes: at, phase: PhaseBackward, row: i, infer: inferPeak}
+		}
+		if !passes && ownsOut && st.gradLive[out+1] {
+			st.gradLive[out+1] = false
+			live -= size[out+1]
+		}
+		// What only this row kept is released after its backward.
+		live -= st.extras[i]
+		for _, s := range [3]int32{p.in, p.other, p.out} {
+			if uint32(s+1) <= n && st.savedAt[s+1] == int32(i) {
+				live -= st.savedB[s+1]
+				st.savedAt[s+1] = -2
+			}
+		}
+	}
+	return peak
+}
+
+// note packs row i and records its output size and its reads, as
+// activationProfile walks the rows.
+func (st *stepScratch) note(r *Result, i int, e int64, ov *bool) {
+	row := &r.Rows[i]
+	if i == 0 {
+		v, _ := r.Input.Elements()
+		st.size[0] = mul(ov, v, e)
+	}
+	v, _ := row.Out.Elements()
+	st.size[i+1] = mul(ov, v, e)
+	p := stepRow{in: row.InStore, other: -3, out: row.OutStore}
+	if row.Status != StatusOK {
+		st.rows[i] = p
+		return
+	}
+	p.flags = srOK
+	if readsOther(row) {
+		p.other = row.OtherStore
+		if row.OtherGrad {
+			p.flags |= srOtherG
+		}
+	}
+	if row.Grad || row.OtherGrad || row.Params > 0 {
+		p.flags |= srBackward
+	}
+	if row.Grad {
+		p.flags |= srGrad
+	}
+	if row.Role == RoleResidual || row.Role == RoleJoin || row.Role == RoleDenseCat || row.Layer.Kind == KindAdd || row.Layer.Kind == KindConcat {
+		p.flags |= srPasses
+	}
+	st.rows[i] = p
+	n := uint32(len(r.Rows))
+	at := int32(i)
+	if uint32(p.in+1) <= n {
+		st.lastUse[p.in+1] = max(st.lastUse[p.in+1], at)
+	}
+	if uint32(p.other+1) <= n {
+		st.lastUse[p.other+1] = max(st.lastUse[p.other+1], at)
+	}
+	if uint32(p.out+1) <= n {
+		st.lastUse[p.out+1] = max(st.lastUse[p.out+1], at)
+	}
+}
+
+// readsOther reports whether a row reads a second tensor (OtherStore): a
+// merge, a gate's multiplication, a fork's join.
+func readsOther(row *Row) bool {
+	return row.Layer.Kind.IsMerge() || row.Role == RoleGate || row.Role == RoleJoin
+}
+
+// PeakWhere says where the step's activation memory peaks: "backward at
+// 6.1.1", or "backward (a bound: checkpointing)" when it was not
+// simulated; "" when not estimated. r is the result m was computed from.
+func (m *Memory) PeakWhere(r *Result) string {
+	switch {
+	case !m.Estimated:
+		return ""
+	case m.PeakRow < 0 || m.PeakRow >= len(r.Rows):
+		return m.PeakPhase.String() + " (a bound: checkpointing recomputes segments)"
+	}
+	return m.PeakPhase.String() + " at " + r.Rows[m.PeakRow].Path.String()
+}
