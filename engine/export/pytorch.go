@@ -53,6 +53,8 @@ func PyTorch(w io.Writer, an *engine.Analysis, source string) error {
 	newGen(an, b, phaseForward).walk(an.Stack.Layers, engine.Path{})
 	b.WriteString("        return x\n")
 	fmt.Fprintf(b, "\n\nINPUT_SHAPE = (%d, %d, %d)\nMODEL = %s\n", an.Stack.Input.C, an.Stack.Input.H, an.Stack.Input.W, class)
+	writeEstimate(b, an)
+	b.WriteString(measureTool)
 	return b.Flush()
 }
 
@@ -189,8 +191,10 @@ func className(name string) string {
 // keywords and soft keywords (Python 3.11's keyword.kwlist and
 // keyword.softkwlist, with 3.12's "type"), the names of its builtins
 // module (Python 3.11's dir(builtins)), the module attributes Python sets,
-// and the names the module defines besides the prelude's: its imports and
-// MODEL and INPUT_SHAPE.
+// and the names the module defines besides the prelude's: its imports,
+// MODEL, INPUT_SHAPE and ESTIMATE (the measuring entry point's functions
+// start with a lower-case letter or an underscore, which a class name
+// never does).
 const pythonNames = `False None True and as assert async await break class continue def del
 elif else except finally for from global if import in is lambda nonlocal not or pass raise
 return try while with yield _ case match type
@@ -215,7 +219,7 @@ enumerate eval exec exit filter float format frozenset getattr globals hasattr h
 help hex id input int isinstance issubclass iter len license list locals map max
 memoryview min next object oct open ord pow print property quit range repr reversed
 round set setattr slice sorted staticmethod str sum super tuple type vars zip
-torch nn MODEL INPUT_SHAPE`
+torch nn MODEL INPUT_SHAPE ESTIMATE`
 
 // reserved reports whether s is one of pythonNames or a class or function
 // the prelude defines.

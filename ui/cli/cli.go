@@ -66,6 +66,8 @@ func Run(args []string, std IO) int {
 		return runCheck(args[1:], std)
 	case "export":
 		return runExport(args[1:], std)
+	case "calibrate":
+		return runCalibrate(args[1:], std)
 	case "help", "-h", "--help", "-help":
 		if len(args) > 1 && args[1] != "help" && !strings.HasPrefix(args[1], "-") {
 			u, ok := commandUsage[args[1]]
@@ -95,7 +97,7 @@ func Run(args []string, std IO) int {
 }
 
 // commands are stackfit's commands, for messages and suggestions.
-var commands = []string{"report", "check", "export", "example", "help"}
+var commands = []string{"report", "check", "export", "calibrate", "example", "help"}
 
 // didYouMean suggests the command that name is a likely typo of (within
 // one edit per four letters, at least one; insertions, deletions,
@@ -134,6 +136,8 @@ usage:
   stackfit report FILE [flags]    print the numbers: text, markdown, csv or json
   stackfit check FILE [flags]     for CI: errors, warnings and the memory verdict
   stackfit export FILE [flags]    write the stack as a PyTorch module
+  stackfit calibrate FILE [M]     set FILE's workspace and overhead from a
+                                  measurement M (python NET.py --measure)
   stackfit example [NAME] [-o F]  list the built-in examples, edit one, or write it to F
   stackfit help COMMAND           the flags of one command (or COMMAND --help)
 
@@ -193,9 +197,28 @@ comment header with stackfit's totals.
   --to T         the framework: pytorch (the only one so far)   e.g. --to pytorch
   -o FILE        write to FILE instead of standard output       e.g. -o net.py
 
+The module also measures: python net.py --measure --batch 64 --precision
+bf16-mixed --optimizer adamw trains a few steps on synthetic data (CUDA when
+present, the CPU otherwise) and prints stackfit's estimate per category
+beside the measured peak, and a line stackfit calibrate reads.
+
 examples:
   stackfit export net.yaml --to pytorch -o net.py
 ` + trainingUsage(),
+	"calibrate": `usage: stackfit calibrate FILE [MEASUREMENT]
+
+Sets the training section's workspace and overhead in FILE to what a
+measurement on the training box found: MEASUREMENT is the output of the
+exported module's measuring entry point (a file, or standard input when
+left out or -). The file is written atomically and keeps its comments.
+
+  --cpu          take a measurement made on the CPU (refused otherwise:
+                 it says nothing of a GPU's workspace and CUDA overhead)
+
+examples:
+  stackfit export net.yaml -o net.py
+  python net.py --measure --batch 64 --precision bf16-mixed | stackfit calibrate net.yaml
+`,
 }
 
 // runExample lists, opens or writes a built-in example.

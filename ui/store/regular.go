@@ -92,3 +92,7 @@ func SameFile(a, b string) bool {
 	}
 	return os.SameFile(fa, fb)
 }
+
+// OpenRegular opens a file for reading as the stack loader does: refused
+// unless it is a regular file, and never blocking on a named pipe.
+func OpenRegular(path string) (*os.File, error) { return openRegular(path) }

@@ -1,0 +1,140 @@
+package cli
+
+import (
+	"encoding/json"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"stackfit/engine"
+	"stackfit/ui/store"
+)
+
+const python = "/usr/bin/python3"
+
+// measureStack is a small stack for a quick training step on the CPU.
+const measureStack = `stackfit: 1
+name: cap inspector
+input: [1, 32, 32]
+training: {batch: 4}
+layers:
+  - {conv: 8, kernel: 3, pad: 1}
+  - {norm: batch}
+  - {act: relu}
+  - {pool: max, kernel: 2}
+  - {conv: 16, kernel: 3, pad: 1}
+  - {act: relu}
+  - {global-pool: avg}
+  - {dense: 2}
+`
+
+// TestMeasureAndCalibrate exports a stack, checks that the module's
+// estimate table gives the engine's own figures for several settings, runs
+// its measuring entry point on the CPU (a few real training steps with
+// Debian's python3-torch; the CUDA path is the same code behind one
+// branch, run when a GPU is present), and feeds the output to stackfit
+// calibrate, which must write the workspace and overhead into the file.
+func TestMeasureAndCalibrate(t *testing.T) {
+	if err := exec.Command(python, "-c", "import torch").Run(); err != nil {
+		t.Skip("PyTorch is not installed (apt-get install python3-torch); .ci/run installs it")
+	}
+	dir := t.TempDir()
+	file := filepath.Join(dir, "cap.yaml")
+	if err := os.WriteFile(file, []byte(measureStack), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	mod := filepath.Join(dir, "cap.py")
+	if code := Run([]string{"export", file, "-o", mod}, IO{Out: new(strings.Builder), Err: new(strings.Builder)}); code != ExitOK {
+		t.Fatalf("export: exit %d", code)
+	}
+	// The estimate table against the engine.
+	s, err := store.LoadFile(file)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := engine.Evaluate(s)
+	probe := `import importlib.util, json, sys
+spec = importlib.util.spec_from_file_location("cap", sys.argv[1]); m = importlib.util.module_from_spec(spec); spec.loader.exec_module(m)
+print(json.dumps([m._estimate(b, p, o) for b, p, o in [(4, "fp32", "sgd"), (16, "bf16-mixed", "adamw"), (3, "fp16-master", "momentum")]]))`
+	out, err := exec.Command(python, "-c", probe, mod).CombinedOutput()
+	if err != nil {
+		t.Fatalf("estimate: %v\n%s", err, out)
+	}
+	var got []map[string]int64
+	if err := json.Unmarshal(out, &got); err != nil {
+		t.Fatalf("%v: %s", err, out)
+	}
+	for i, tr := range []engine.Training{{Batch: 4}, {Batch: 16, Precision: engine.BF16Mixed, Optimizer: engine.AdamW}, {Batch: 3, Precision: engine.FP16Master, Optimizer: engine.Momentum}} {
+		var m engine.Memory
+		r.Memory(tr, engine.DefaultAssumptions(), &m)
+		want := map[string]int64{"weights": m.Weights, "gradients": m.Gradients, "optimizer": m.Optimizer,
+			"activations": m.Activations, "workspace": m.Workspace, "overhead": m.Overhead}
+		for k, v := range want {
+			if got[i][k] != v {
+				t.Errorf("%+v: the module estimates %s %d, the engine %d", tr, k, got[i][k], v)
+			}
+		}
+	}
+	// A measurement on the CPU, then calibrate.
+	for _, dev := range []string{"cpu", "cuda"} {
+		if dev == "cuda" {
+			if err := exec.Command(python, "-c", "import torch, sys; sys.exit(0 if torch.cuda.is_available() else 1)").Run(); err != nil {
+				t.Log("no CUDA device here: the CUDA measurement is not run")
+				continue
+			}
+		}
+		cmd := exec.Command(python, mod, "--measure", "--batch", "4", "--device", dev)
+		meas, err := cmd.CombinedOutput()
+		if err != nil {
+			t.Fatalf("measure on %s: %v\n%s", dev, err, meas)
+		}
+		for _, want := range []string{"stackfit measure: ", "activations", "measured peak (allocated)", calibrationPrefix + " device="} {
+			if !strings.Contains(string(meas), want) {
+				t.Errorf("%s measurement lacks %q:\n%s", dev, want, meas)
+			}
+		}
+		var o, e strings.Builder
+		args := []string{"calibrate", file}
+		if dev == "cpu" {
+			if code := Run(args, IO{In: strings.NewReader(string(meas)), Out: &o, Err: &e}); code != ExitUsage || !strings.Contains(e.String(), "--cpu") {
+				t.Errorf("a CPU measurement was taken without --cpu: exit %d, %s", code, e.String())
+			}
+			args = append(args, "--cpu")
+		}
+		o.Reset()
+		e.Reset()
+		if code := Run(args, IO{In: strings.NewReader(string(meas)), Out: &o, Err: &e}); code != ExitOK {
+			t.Fatalf("calibrate: exit %d: %s", code, e.String())
+		}
+		c, err := readCalibration(strings.NewReader(string(meas)))
+		if err != nil {
+			t.Fatal(err)
+		}
+		s, err := store.LoadFile(file)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if s.Training.Workspace != c.workspace || s.Training.Overhead != c.overhead || s.Training.Batch != 4 {
+			t.Errorf("calibrated training %+v, want workspace %d overhead %d", s.Training, c.workspace, c.overhead)
+		}
+	}
+}
+
+// TestReadCalibration checks the calibration line's reading.
+func TestReadCalibration(t *testing.T) {
+	for _, tt := range []struct {
+		in, err string
+	}{
+		{"x\nstackfit-calibration: device=NVIDIA_H100 workspace=100 overhead=200\n", ""},
+		{"nothing here\n", "no \"stackfit-calibration:\" line"},
+		{"stackfit-calibration: device=cpu workspace=-1 overhead=2\n", "expected a byte count"},
+		{"stackfit-calibration: workspace=1\n", "lacks device"},
+	} {
+		_, err := readCalibration(strings.NewReader(tt.in))
+		if (err == nil) != (tt.err == "") || err != nil && !strings.Contains(err.Error(), tt.err) {
+			t.Errorf("%q: %v, want %q", tt.in, err, tt.err)
+		}
+	}
+}
