@@ -247,3 +247,18 @@ func TestMobileKindsKeep(t *testing.T) {
 		}
 	}
 }
+
+// TestMemoryAllocatesNothing: a recompute of the memory estimate, step
+// simulation included, reuses its storage (the editor runs it on every
+// keystroke).
+func TestMemoryAllocatesNothing(t *testing.T) {
+	for _, s := range []*engine.Stack{uniformStack(500), loadTestdata(t, "published/resnet50.yaml"), loadTestdata(t, "published/densenet121.yaml")} {
+		r := engine.Evaluate(s)
+		var m engine.Memory
+		tr := engine.Training{Batch: 64, Budget: 24 << 30}
+		r.Memory(tr, engine.DefaultAssumptions(), &m)
+		if n := testing.AllocsPerRun(20, func() { r.Memory(tr, engine.DefaultAssumptions(), &m) }); n != 0 {
+			t.Errorf("%s: %.0f allocations per memory recompute", s.Name, n)
+		}
+	}
+}
