@@ -262,3 +262,19 @@ func TestMemoryAllocatesNothing(t *testing.T) {
 		}
 	}
 }
+
+// TestScaleWidthResNet50: doubling ResNet-50's widths multiplies its
+// parameters by about 4 (the classifier keeps its 1,000 classes, so a
+// little less: ×3.83); before the multiplier reached block bodies it was
+// ×1.001.
+func TestScaleWidthResNet50(t *testing.T) {
+	s := loadTestdata(t, "published/resnet50.yaml")
+	sc, err := engine.ScaleWidth(s, 2, 8)
+	if err != nil {
+		t.Fatal(err)
+	}
+	a, b := engine.Evaluate(s).Totals.Params, engine.Evaluate(sc).Totals.Params
+	if ratio := float64(b) / float64(a); ratio < 3.7 || ratio > 4 {
+		t.Errorf("×2 widths: %d → %d parameters, ×%.2f", a, b, ratio)
+	}
+}

@@ -50,35 +50,57 @@ func ScaleWidth(s *Stack, factor float64, m int64) (*Stack, error) {
 		return nil, fmt.Errorf("%w: rounding multiple %d must be between 1 and 65536", ErrTransform, m)
 	}
 	out := s.Clone()
-	last := -1
-	for i := range out.Layers {
-		if out.Layers[i].Kind.HasWeights() {
-			last = i
+	// The last weighted layer (in stack order, inside blocks too) gives
+	// the output's channels or classes: it keeps its width.
+	var last *Layer
+	var find func(ls []Layer)
+	find = func(ls []Layer) {
+		for i := range ls {
+			if ls[i].Kind.HasWeights() {
+				last = &ls[i]
+			}
+			find(ls[i].Body)
 		}
 	}
-	for i := range out.Layers {
-		l := &out.Layers[i]
-		if !l.Kind.HasWeights() || i == last || l.Filters < 1 {
-			continue
-		}
-		step := m
-		if l.Groups > 1 {
-			step = m / gcd(m, l.Groups) * l.Groups
-		}
-		if l.Kind == KindDense && i+1 < len(out.Layers) && out.Layers[i+1].Kind == KindReshape {
-			r := &out.Layers[i+1]
-			r.Target.C = ScaleChannels(r.Target.C, factor, m)
-			n, ov := r.Target.Elements()
-			if ov || n > 1<<40 {
-				return nil, fmt.Errorf("%w: layer %d would need %v units", ErrTransform, i+1, r.Target)
+	find(out.Layers)
+	var err error
+	var scale func(ls []Layer, where Path)
+	scale = func(ls []Layer, where Path) {
+		for i := range ls {
+			l := &ls[i]
+			at := where.Append(i + 1)
+			if err != nil {
+				return
 			}
-			l.Filters = n
-			continue
+			scale(l.Body, at) // blocks, gates, forks and branches: their layers too
+			if !l.Kind.HasWeights() || l == last || l.Filters < 1 || !l.Rel.IsZero() {
+				continue // a relative width follows its input
+			}
+			step := m
+			if l.Groups > 1 {
+				step = m / gcd(m, l.Groups) * l.Groups
+			}
+			if l.Kind == KindDense && i+1 < len(ls) && ls[i+1].Kind == KindReshape {
+				r := &ls[i+1]
+				r.Target.C = ScaleChannels(r.Target.C, factor, m)
+				n, ov := r.Target.Elements()
+				if ov || n > 1<<40 {
+					err = fmt.Errorf("%w: layer %s would need %v units", ErrTransform, at, r.Target)
+					return
+				}
+				l.Filters = n
+				continue
+			}
+			l.Filters = ScaleChannels(l.Filters, factor, step)
+			if l.Filters > 1<<24 {
+				err = fmt.Errorf("%w: layer %s would have %d channels; use a smaller factor", ErrTransform, at, l.Filters)
+				return
+			}
 		}
-		l.Filters = ScaleChannels(l.Filters, factor, step)
-		if l.Filters > 1<<24 {
-			return nil, fmt.Errorf("%w: layer %d would have %d channels; use a smaller factor", ErrTransform, i+1, l.Filters)
-		}
+	}
+	scale(out.Layers, Path{})
+	if err != nil {
+		return nil, err
 	}
 	return out, nil
 }

@@ -230,3 +230,39 @@ func TestStageTemplate(t *testing.T) {
 		})
 	}
 }
+
+// TestScaleWidthInsideBlocks: the width multiplier reaches the layers of
+// blocks, gates and forks (it used to scale top-level layers only, so a
+// ResNet-50 written as blocks barely changed and its width answer read
+// "over ×32"); the classifier keeps its classes and relative widths follow
+// their input. Doubling ResNet-50's widths multiplies its parameters by
+// about 4 (common practice: a convolution's weights grow with both its
+// input and output channels).
+func TestScaleWidthInsideBlocks(t *testing.T) {
+	b := []Layer{
+		{Kind: KindConv, Filters: 16, Kernel: Square(3), Pad: Padding{Size: Square(1)}},
+		{Kind: KindGate, Body: []Layer{
+			{Kind: KindGlobalPool, Pool: PoolAvg},
+			{Kind: KindConv, Rel: Rel{Div: 4}, Kernel: Square(1)},
+			{Kind: KindConv, Rel: Rel{Mul: 1}, Kernel: Square(1)},
+			{Kind: KindAct, Act: ActSigmoid},
+		}},
+	}
+	s := &Stack{Input: Shape{3, 32, 32}, Layers: []Layer{
+		{Kind: KindConv, Filters: 16, Kernel: Square(3), Pad: Padding{Size: Square(1)}},
+		{Kind: KindBlock, Repeat: 2, Residual: true, Body: b},
+		{Kind: KindGlobalPool, Pool: PoolAvg},
+		{Kind: KindDense, Filters: 10},
+	}}
+	got, err := ScaleWidth(s, 2, 8)
+	if err != nil {
+		t.Fatal(err)
+	}
+	body := got.Layers[1].Body
+	if body[0].Filters != 32 || body[1].Body[1].Rel != (Rel{Div: 4}) || got.Layers[3].Filters != 10 {
+		t.Errorf("scaled: block conv %d, gate %v, classifier %d", body[0].Filters, body[1].Body[1].Rel, got.Layers[3].Filters)
+	}
+	if r := Evaluate(got); r.Errors != 0 {
+		t.Errorf("scaled stack has errors: %v", r.Diags)
+	}
+}
