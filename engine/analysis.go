@@ -20,6 +20,7 @@ func Analyze(s *Stack, t Training, a Assumptions) *Analysis {
 	if an.Result.Errors == 0 {
 		an.Fit = SolveFit(s, an.Result, &an.Memory, t, a)
 	}
+	an.Memory.dropScratch() // a one-shot analysis keeps its figures, not the walk's storage
 	return an
 }
 

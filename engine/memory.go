@@ -110,9 +110,8 @@ type Memory struct {
 
 	// PeakPerSample is the step simulation's peak of activation memory per
 	// sample (kept tensors, live outputs and gradient buffers); PeakPhase
-	// and PeakRow say where it falls (PeakRow −1: not simulated, as under
-	// checkpointing, where it is a bound). ScratchPerSample is what the
-	// peak adds to the kept tensors.
+	// and PeakRow say where it falls (PeakRow −1: an empty stack).
+	// ScratchPerSample is what the peak adds to the kept tensors.
 	PeakPerSample int64
 	PeakPhase     Phase
 	PeakRow       int
@@ -248,32 +247,22 @@ func (r *Result) activationProfile(t Training, a Assumptions, m *Memory, rows *[
 	sv.a, sv.e, sv.seen, sv.epoch, sv.ov = a, e, seen, 0, false
 	sv.autocast = t.Precision == FP16Mixed || t.Precision == BF16Mixed
 	k := int64(t.Checkpoint)
-	sv.step = nil
-	if k <= 0 {
-		m.step.reset(n)
-		sv.step = &m.step
-	}
+	m.step.reset(n, k > 0)
+	sv.step = &m.step
 	sv.rows, sv.in = r.Rows, r.Input
 	ov := &sv.ov
 	var segment, segMax, kept int64
-	var largest int64
 	for i := range r.Rows {
 		row := &r.Rows[i]
 		var b int64
 		if row.Status == StatusOK {
 			sv.row, sv.stored = int32(i), 0
 			b = r.savedBytes(row, sv)
-			if sv.step != nil {
+			if k <= 0 {
 				sv.step.extras[i] = b - sv.stored // masks, indices, statistics
 			}
 		}
-		if sv.step != nil {
-			sv.step.note(r, i, e, ov)
-		}
-		if row.Status == StatusOK {
-			out, _ := row.Out.Elements()
-			largest = max(largest, out)
-		}
+		sv.step.note(r, i, e, ov)
 		*rows = append(*rows, mul(ov, b, micro))
 		if k <= 0 {
 			perSample = add(ov, perSample, b)
@@ -287,6 +276,7 @@ func (r *Result) activationProfile(t Training, a Assumptions, m *Memory, rows *[
 				out, _ := row.Out.Elements()
 				kept = add(ov, kept, mul(ov, out, e))
 			}
+			sv.step.segment(r, i, int(k), segment)
 			segment = 0
 			sv.epoch++
 		}
@@ -294,20 +284,12 @@ func (r *Result) activationProfile(t Training, a Assumptions, m *Memory, rows *[
 	if k > 0 {
 		perSample = add(ov, kept, segMax)
 	}
-	// The step's peak beyond the kept tensors: simulated; under
-	// checkpointing bounded by the gradient arriving at and leaving the
-	// widest row.
-	m.PeakRow = -1
-	if k <= 0 {
-		p := r.simulateStep(&m.step, e, ov)
-		m.PeakPhase, m.PeakRow = p.phase, p.row
-		scratch = max(p.bytes-perSample, 0)
-		peakLive = p.infer / e
-	} else {
-		scratch = mul(ov, mul(ov, 2, largest), e)
-		m.PeakPhase = PhaseBackward
-		peakLive = r.peakLive(seen)
-	}
+	// The step's peak beyond the kept tensors, simulated (under
+	// checkpointing with each segment recomputed before its backward).
+	p := r.simulateStep(&m.step, e, ov)
+	m.PeakPhase, m.PeakRow = p.phase, p.row
+	scratch = max(p.bytes-perSample, 0)
+	peakLive = p.infer / e
 	m.PeakPerSample = add(ov, perSample, scratch)
 	if *ov {
 		return math.MaxInt64 / 8, 0, 0
@@ -341,8 +323,8 @@ func (s *saving) keep(store int32, elems int64) int64 {
 	s.seen[store+1] = s.epoch
 	b := mul(&s.ov, elems, s.e)
 	s.stored += b
-	if s.step != nil {
-		s.step.savedAt[store+1], s.step.savedB[store+1] = s.row, b
+	if s.step != nil && !s.step.ckpt {
+		s.step.savedAt[store+1] = s.row
 	}
 	return b
 }

@@ -278,3 +278,29 @@ func TestScaleWidthResNet50(t *testing.T) {
 		t.Errorf("×2 widths: %d → %d parameters, ×%.2f", a, b, ratio)
 	}
 }
+
+// TestCheckpointPeakSimulated: under checkpointing the step is simulated
+// too — each segment recomputed before its backward — and its peak grows
+// as √n, as Chen et al. 2016 show for the memory of √n-segment
+// checkpointing: 4× the depth gives about 2× the peak, far below the peak
+// without checkpointing, and never below what the forward pass keeps.
+func TestCheckpointPeakSimulated(t *testing.T) {
+	peak := func(layers int) (plain, ckpt engine.Memory) {
+		r := engine.Evaluate(uniformStack(layers))
+		k := int64(math.Round(math.Sqrt(float64(len(r.Rows)))))
+		r.Memory(engine.Training{Batch: 1}, engine.DefaultAssumptions(), &plain)
+		r.Memory(engine.Training{Batch: 1, Checkpoint: k}, engine.DefaultAssumptions(), &ckpt)
+		return
+	}
+	p1, c1 := peak(32)
+	p4, c4 := peak(128)
+	if c1.PeakRow < 0 || c4.PeakRow < 0 || c4.PeakPhase != engine.PhaseBackward {
+		t.Errorf("checkpointed peak not simulated: row %d, %v", c4.PeakRow, c4.PeakPhase)
+	}
+	if ratio := float64(c4.PeakPerSample) / float64(c1.PeakPerSample); math.Abs(ratio-2) > 0.25 {
+		t.Errorf("with √n checkpointing 4× the depth peaks at %.2f× the bytes, want about 2", ratio)
+	}
+	if c4.PeakPerSample >= p4.PeakPerSample/3 || c4.PeakPerSample < c4.ActPerSample || c1.PeakPerSample > p1.PeakPerSample {
+		t.Errorf("peaks: plain %d, checkpointed %d (keeps %d)", p4.PeakPerSample, c4.PeakPerSample, c4.ActPerSample)
+	}
+}

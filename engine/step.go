@@ -44,12 +44,18 @@ func (p Phase) String() string {
 // recompute allocates nothing.
 type stepScratch struct {
 	savedAt  []int32 // storage → row whose backward releases it (−1: not kept)
-	savedB   []int64 // storage → bytes kept
 	lastUse  []int32 // storage → last forward reader
 	extras   []int64 // row → bytes kept besides tensors
 	gradLive []bool  // storage → its gradient buffer exists
 	size     []int64 // storage → bytes
 	rows     []stepRow
+	// Checkpointing (Chen et al. 2016): the forward pass keeps only each
+	// segment's output; before a segment's backward its forward runs
+	// again and keeps what it normally would, recompute[end] bytes,
+	// released once the segment's first row is done (release[first]).
+	ckpt      bool
+	recompute []int64 // row → bytes a segment ending here keeps when recomputed
+	release   []int64 // row → bytes released after the backward of a segment starting here
 }
 
 // stepRow is what the simulation reads of a row, packed so its passes
@@ -68,7 +74,7 @@ const (
 	srPasses               // an addition or concatenation: passes views of its gradient on
 )
 
-func (st *stepScratch) reset(n int) {
+func (st *stepScratch) reset(n int, ckpt bool) {
 	grow := func(s []int32) []int32 {
 		if cap(s) < n+1 {
 			return make([]int32, n+1)
@@ -76,10 +82,6 @@ func (st *stepScratch) reset(n int) {
 		return s[:n+1]
 	}
 	st.savedAt, st.lastUse = grow(st.savedAt), grow(st.lastUse)
-	if cap(st.savedB) < n+1 {
-		st.savedB = make([]int64, n+1)
-	}
-	st.savedB = st.savedB[:n+1]
 	if cap(st.extras) < n {
 		st.extras = make([]int64, n)
 	}
@@ -96,8 +98,17 @@ func (st *stepScratch) reset(n int) {
 		st.rows = make([]stepRow, n)
 	}
 	st.rows = st.rows[:n]
+	st.ckpt = ckpt
+	if ckpt {
+		if cap(st.recompute) < n {
+			st.recompute, st.release = make([]int64, n), make([]int64, n)
+		}
+		st.recompute, st.release = st.recompute[:n], st.release[:n]
+		clear(st.recompute)
+		clear(st.release)
+	}
 	for i := range st.savedAt {
-		st.savedAt[i], st.lastUse[i], st.savedB[i], st.gradLive[i] = -1, -1, 0, false
+		st.savedAt[i], st.lastUse[i], st.gradLive[i] = -1, -1, false
 	}
 	clear(st.extras)
 }
@@ -193,6 +204,9 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 		if p.flags&srOK == 0 || p.flags&srBackward == 0 {
 			continue
 		}
+		if st.ckpt && st.recompute[i] > 0 {
+			live = add(ov, live, st.recompute[i]) // the segment's forward again
+		}
 		out := p.out
 		view := out == p.in // flatten, reshape: the same storage, the same gradient
 		ownsOut := !view && out == int32(i)
@@ -228,9 +242,12 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 		}
 		// What only this row kept is released after its backward.
 		live -= st.extras[i]
+		if st.ckpt {
+			live -= st.release[i]
+		}
 		for _, s := range [3]int32{p.in, p.other, p.out} {
 			if uint32(s+1) <= n && st.savedAt[s+1] == int32(i) {
-				live -= st.savedB[s+1]
+				live -= size[s+1] // what keep counted: the whole storage
 				st.savedAt[s+1] = -2
 			}
 		}
@@ -283,6 +300,18 @@ func (st *stepScratch) note(r *Result, i int, e int64, ov *bool) {
 	}
 }
 
+// segment records a checkpoint segment that ends at row end (k rows at
+// most) and keeps saved bytes when recomputed: its output is kept by the
+// forward pass until the next segment's backward is done.
+func (st *stepScratch) segment(r *Result, end, k int, saved int64) {
+	first := end - (end % k)
+	st.recompute[end] = saved
+	st.release[first] = saved
+	if row := &r.Rows[end]; row.Status == StatusOK && end != len(r.Rows)-1 && row.OutStore == int32(end) {
+		st.savedAt[end+1] = int32(end + 1)
+	}
+}
+
 // readsOther reports whether a row reads a second tensor (OtherStore): a
 // merge, a gate's multiplication, a fork's join.
 func readsOther(row *Row) bool {
@@ -290,14 +319,21 @@ func readsOther(row *Row) bool {
 }
 
 // PeakWhere says where the step's activation memory peaks: "backward at
-// 6.1.1", or "backward (a bound: checkpointing)" when it was not
-// simulated; "" when not estimated. r is the result m was computed from.
+// 6.1.1" ("" when not estimated, "nowhere" for a stack with nothing to
+// keep). r is the result m was computed from.
 func (m *Memory) PeakWhere(r *Result) string {
 	switch {
 	case !m.Estimated:
 		return ""
 	case m.PeakRow < 0 || m.PeakRow >= len(r.Rows):
-		return m.PeakPhase.String() + " (a bound: checkpointing recomputes segments)"
+		return "nowhere"
 	}
 	return m.PeakPhase.String() + " at " + r.Rows[m.PeakRow].Path.String()
+}
+
+// dropScratch lets the storage of the saved-bytes walk and the step
+// simulation go: a memory estimate that will not be recomputed need not
+// hold it (a million-row stack's is about 70 MB).
+func (m *Memory) dropScratch() {
+	m.seen, m.sv, m.step = nil, saving{}, stepScratch{}
 }

@@ -20,24 +20,22 @@ func writeEstimate(w io.Writer, an *engine.Analysis) {
 	fmt.Fprintf(w, "\n\n# stackfit's estimate for one GPU (an estimate: keep headroom), for the measuring entry point.\n")
 	fmt.Fprintf(w, "ESTIMATE = {\n")
 	fmt.Fprintf(w, "    \"workspace\": %d,\n    \"overhead\": %d,\n", orDefault(t.Workspace, engine.DefaultWorkspace), orDefault(t.Overhead, engine.DefaultOverhead))
-	fmt.Fprintf(w, "    \"per_sample\": {\n")
+	// One Memory for every setting: its storage is reused, and Retarget
+	// changes the optimizer without walking the rows again.
+	var m engine.Memory
+	perSample := make([]string, 0, len(engine.Precisions()))
+	states := make([]string, 0, len(engine.Precisions()))
 	for _, p := range engine.Precisions() {
-		var m engine.Memory
-		tt := engine.Training{Batch: 1, Precision: p}
-		an.Result.Memory(tt, an.Assumptions, &m)
-		fmt.Fprintf(w, "        %q: (%d, %d),  # kept for backward, added at the step's peak\n", p.String(), m.ActPerSample, m.ScratchPerSample)
-	}
-	fmt.Fprintf(w, "    },\n    \"model_state\": {\n")
-	for _, p := range engine.Precisions() {
+		an.Result.Memory(engine.Training{Batch: 1, Precision: p}, an.Assumptions, &m)
+		perSample = append(perSample, fmt.Sprintf("        %q: (%d, %d),  # kept for backward, added at the step's peak\n", p.String(), m.ActPerSample, m.ScratchPerSample))
 		var parts []string
 		for _, o := range engine.Optimizers() {
-			var m engine.Memory
-			an.Result.Memory(engine.Training{Batch: 1, Precision: p, Optimizer: o}, an.Assumptions, &m)
+			m.Retarget(an.Result, engine.Training{Batch: 1, Precision: p, Optimizer: o})
 			parts = append(parts, fmt.Sprintf("%q: (%d, %d, %d)", o.String(), m.Weights, m.Gradients, m.Optimizer))
 		}
-		fmt.Fprintf(w, "        %q: {%s},\n", p.String(), strings.Join(parts, ", "))
+		states = append(states, fmt.Sprintf("        %q: {%s},\n", p.String(), strings.Join(parts, ", ")))
 	}
-	fmt.Fprintf(w, "    },\n}\n")
+	fmt.Fprintf(w, "    \"per_sample\": {\n%s    },\n    \"model_state\": {\n%s    },\n}\n", strings.Join(perSample, ""), strings.Join(states, ""))
 }
 
 func orDefault(v, d int64) int64 {
