@@ -49,6 +49,8 @@ type stepScratch struct {
 	gradLive []bool  // storage → its gradient buffer exists
 	size     []int64 // storage → bytes
 	rows     []stepRow
+	dLive    []int64 // row → change of the forward pass's live bytes at it
+	dInf     []int64 // the same, keeping nothing for backward
 	// Checkpointing (Chen et al. 2016): the forward pass keeps only each
 	// segment's output; before a segment's backward its forward runs
 	// again and keeps what it normally would, recompute[end] bytes,
@@ -98,6 +100,10 @@ func (st *stepScratch) reset(n int, ckpt bool) {
 		st.rows = make([]stepRow, n)
 	}
 	st.rows = st.rows[:n]
+	if cap(st.dLive) < n+1 {
+		st.dLive, st.dInf = make([]int64, n+1), make([]int64, n+1)
+	}
+	st.dLive, st.dInf = st.dLive[:n+1], st.dInf[:n+1]
 	st.ckpt = ckpt
 	if ckpt {
 		if cap(st.recompute) < n {
@@ -112,6 +118,11 @@ func (st *stepScratch) reset(n int, ckpt bool) {
 	}
 	clear(st.extras)
 }
+
+// maxStepBytes bounds one tensor's bytes per sample in the simulation:
+// with at most 2²⁰ rows its sums of such sizes cannot overflow, so they
+// are plain additions. A larger tensor marks the estimate overflowed.
+const maxStepBytes = 1 << 42
 
 // stepPeak is the simulation's answer, per sample.
 type stepPeak struct {
@@ -138,55 +149,55 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 	final := rows[last].out
 	peak := stepPeak{row: -1}
 
-	// Forward; infer follows the same pass keeping nothing for backward.
-	var live, infer, inferPeak int64
-	if st.lastUse[0] >= 0 || st.savedAt[0] >= 0 {
-		live = size[0]
-	}
-	if st.lastUse[0] >= 0 {
-		infer = size[0]
-	}
-	inferPeak = infer
-	for i := range rows {
-		p := &rows[i]
-		if p.flags&srOK == 0 {
-			continue
+	// Forward, from per-row changes: a storage is allocated at the row
+	// that writes it (the input before the first) and, unless kept for
+	// backward, freed after its last reader; infer follows the same pass
+	// keeping nothing for backward (inference).
+	dLive, dInf := st.dLive, st.dInf
+	clear(dLive)
+	clear(dInf)
+	for k := range st.lastUse {
+		s := int32(k - 1)
+		last := st.lastUse[k]
+		at := 0
+		if s >= 0 {
+			if rows[s].flags&srOK == 0 || rows[s].out != s {
+				continue // no storage of its own (an error, or a view)
+			}
+			at = int(s)
+		} else if last < 0 && st.savedAt[0] < 0 {
+			continue // the input, never read
 		}
-		if p.out == int32(i) {
-			live = add(ov, live, size[i+1])
-			if st.lastUse[i+1] >= 0 {
-				infer = add(ov, infer, size[i+1])
+		sz := size[k]
+		dLive[at] += sz
+		if last >= 0 {
+			dInf[at] += sz
+			dInf[last+1] -= sz
+			if st.savedAt[k] < 0 && s != final {
+				dLive[last+1] -= sz
 			}
 		}
-		live = add(ov, live, st.extras[i])
+	}
+	var live, infer, inferPeak int64
+	for i := range rows {
+		live += dLive[i] + st.extras[i]
+		infer += dInf[i]
+		if rows[i].flags&srOK == 0 {
+			continue
+		}
 		if live > peak.bytes {
 			peak = stepPeak{bytes: live, phase: PhaseForward, row: i}
 		}
 		inferPeak = max(inferPeak, infer)
-		// Free what is read for the last time here (each storage once).
-		for j := 0; j < 3; j++ {
-			var s int32
-			switch j {
-			case 0:
-				s = p.in
-			case 1:
-				s = p.other
-				if s == p.in {
-					continue
-				}
-			default:
-				s = p.out
-				if s == p.in || s == p.other {
-					continue
-				}
-			}
-			if uint32(s+1) > n || st.lastUse[s+1] != int32(i) {
-				continue // another row reads it later
-			}
-			infer -= size[s+1]
-			if st.savedAt[s+1] < 0 && s != final {
-				live -= size[s+1]
-			}
+	}
+	live += dLive[len(rows)]
+	// What each row's backward releases of the kept tensors (dInf is done
+	// with; it holds these now).
+	release := dInf
+	clear(release)
+	for k, at := range st.savedAt {
+		if at >= 0 && int(at) < len(rows) {
+			release[at] += size[k]
 		}
 	}
 	peak.infer = inferPeak
@@ -194,7 +205,7 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 	// Backward: the loss's gradient, then each row in reverse.
 	if uint32(final+1) <= n {
 		st.gradLive[final+1] = true
-		live = add(ov, live, size[final+1])
+		live = live + size[final+1]
 	}
 	if live > peak.bytes {
 		peak = stepPeak{bytes: live, phase: PhaseBackward, row: int(last), infer: inferPeak}
@@ -205,7 +216,7 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 			continue
 		}
 		if st.ckpt && st.recompute[i] > 0 {
-			live = add(ov, live, st.recompute[i]) // the segment's forward again
+			live = live + st.recompute[i] // the segment's forward again
 		}
 		out := p.out
 		view := out == p.in // flatten, reshape: the same storage, the same gradient
@@ -231,9 +242,9 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 				continue
 			}
 			st.gradLive[s+1] = true
-			live = add(ov, live, size[s+1])
+			live = live + size[s+1]
 		}
-		if at := add(ov, live, transient); at > peak.bytes {
+		if at := live + transient; at > peak.bytes {
 			peak = stepPeak{bytes: at, phase: PhaseBackward, row: i, infer: inferPeak}
 		}
 		if !passes && ownsOut && st.gradLive[out+1] {
@@ -241,15 +252,9 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 			live -= size[out+1]
 		}
 		// What only this row kept is released after its backward.
-		live -= st.extras[i]
+		live -= st.extras[i] + release[i]
 		if st.ckpt {
 			live -= st.release[i]
-		}
-		for _, s := range [3]int32{p.in, p.other, p.out} {
-			if uint32(s+1) <= n && st.savedAt[s+1] == int32(i) {
-				live -= size[s+1] // what keep counted: the whole storage
-				st.savedAt[s+1] = -2
-			}
 		}
 	}
 	return peak
@@ -265,6 +270,9 @@ func (st *stepScratch) note(r *Result, i int, e int64, ov *bool) {
 	}
 	v, _ := row.Out.Elements()
 	st.size[i+1] = mul(ov, v, e)
+	if st.size[i+1] > maxStepBytes {
+		*ov = true // the simulation's sums stay far from overflow below this
+	}
 	p := stepRow{in: row.InStore, other: -3, out: row.OutStore}
 	if row.Status != StatusOK {
 		st.rows[i] = p
