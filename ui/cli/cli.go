@@ -68,6 +68,8 @@ func Run(args []string, std IO) int {
 		return runExport(args[1:], std)
 	case "calibrate":
 		return runCalibrate(args[1:], std)
+	case "import":
+		return runImport(args[1:], std)
 	case "help", "-h", "--help", "-help":
 		if len(args) > 1 && args[1] != "help" && !strings.HasPrefix(args[1], "-") {
 			u, ok := commandUsage[args[1]]
@@ -97,7 +99,7 @@ func Run(args []string, std IO) int {
 }
 
 // commands are stackfit's commands, for messages and suggestions.
-var commands = []string{"report", "check", "export", "calibrate", "example", "help"}
+var commands = []string{"report", "check", "export", "calibrate", "import", "example", "help"}
 
 // didYouMean suggests the command that name is a likely typo of (within
 // one edit per four letters, at least one; insertions, deletions,
@@ -138,6 +140,7 @@ usage:
   stackfit export FILE [flags]    write the stack as a PyTorch module
   stackfit calibrate FILE [M]     set FILE's workspace and overhead from a
                                   measurement M (python NET.py --measure)
+  stackfit import MODEL.onnx      read an ONNX model into a stack file
   stackfit example [NAME] [-o F]  list the built-in examples, edit one, or write it to F
   stackfit help COMMAND           the flags of one command (or COMMAND --help)
 
@@ -205,6 +208,23 @@ beside the measured peak, and a line stackfit calibrate reads.
 examples:
   stackfit export net.yaml --to pytorch -o net.py
 ` + trainingUsage(),
+	"import": `usage: stackfit import MODEL.onnx [-o NET.yaml] [--partial]
+
+Reads an ONNX model (torch.onnx.export writes them) into a stack file, one
+layer per operator, named after the graph's nodes. This version reads
+chains of layers: a graph that branches or merges (residual additions,
+concatenations, gates) stops at that node, named with its operator and
+position. Models up to 512 MiB are read.
+
+  -o FILE        write the stack file to FILE (refused if FILE exists)
+  --partial      write the layers before a node that stops the import
+
+Export with the batch norms kept:
+  torch.onnx.export(model, x, "net.onnx", training=torch.onnx.TrainingMode.PRESERVE, do_constant_folding=False)
+
+examples:
+  stackfit import net.onnx -o net.yaml
+`,
 	"calibrate": `usage: stackfit calibrate FILE [MEASUREMENT]
 
 Sets the training section's workspace and overhead in FILE to what a

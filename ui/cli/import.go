@@ -1,0 +1,83 @@
+package cli
+
+import (
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"path/filepath"
+	"strings"
+
+	"stackfit/engine/onnximport"
+	"stackfit/engine/stackfile"
+	"stackfit/engine/textsafe"
+	"stackfit/ui/store"
+)
+
+// runImport reads an ONNX model into a stack file.
+func runImport(args []string, std IO) int {
+	fs := flag.NewFlagSet("import", flag.ContinueOnError)
+	fs.SetOutput(io.Discard)
+	out := fs.String("o", "", "")
+	partial := fs.Bool("partial", false, "")
+	pos, err := parseInterleaved(fs, args)
+	if errors.Is(err, flag.ErrHelp) {
+		fmt.Fprint(std.Out, commandUsage["import"])
+		return ExitOK
+	}
+	if err != nil || len(pos) != 1 {
+		if err == nil {
+			err = errors.New("give one ONNX model")
+		}
+		fmt.Fprintf(std.Err, "stackfit import: %s\n%s", textsafe.Text(err.Error()), commandUsage["import"])
+		return ExitUsage
+	}
+	model := pos[0]
+	f, err := store.OpenRegular(model)
+	if err != nil {
+		fmt.Fprintf(std.Err, "stackfit import: %s\n", textsafe.Text(err.Error()))
+		return ExitUsage
+	}
+	data, err := io.ReadAll(io.LimitReader(f, onnximport.MaxFileBytes+1))
+	f.Close()
+	if err != nil {
+		fmt.Fprintf(std.Err, "stackfit import: read %s: %s\n", textsafe.Line(model), textsafe.Text(err.Error()))
+		return ExitUsage
+	}
+	name := strings.TrimSuffix(filepath.Base(model), filepath.Ext(model))
+	s, res, err := onnximport.Import(data, name)
+	var stopped *onnximport.Stopped
+	switch {
+	case errors.As(err, &stopped) && *partial && len(s.Layers) > 0:
+		fmt.Fprintf(std.Err, "stackfit import: %s — kept the %d layers before it (--partial)\n", textsafe.Text(err.Error()), len(s.Layers))
+	case errors.As(err, &stopped):
+		fmt.Fprintf(std.Err, "stackfit import: %s\n  %d of %d nodes were read; --partial writes the layers before this node\n", textsafe.Text(err.Error()), res.Read, res.Nodes)
+		return ExitProblems
+	case err != nil:
+		fmt.Fprintf(std.Err, "stackfit import: %s: %s\n", textsafe.Line(model), textsafe.Text(err.Error()))
+		return ExitUsage
+	}
+	for _, n := range res.Notes {
+		s.Note = strings.TrimSpace(s.Note + "\n" + n)
+		fmt.Fprintf(std.Err, "stackfit import: note: %s\n", textsafe.Text(n))
+	}
+	yaml, err := stackfile.Save(s)
+	if err != nil {
+		fmt.Fprintf(std.Err, "stackfit import: %s\n", textsafe.Text(err.Error()))
+		return ExitUsage
+	}
+	if *out == "" {
+		std.Out.Write(yaml)
+		return ExitOK
+	}
+	if fileExists(*out) {
+		fmt.Fprintf(std.Err, "stackfit import: %s exists; choose another name or remove it first\n", textsafe.Line(*out))
+		return ExitUsage
+	}
+	if err := store.WriteFileAtomic(*out, yaml, 0o644); err != nil {
+		fmt.Fprintf(std.Err, "stackfit import: %s\n", textsafe.Text(err.Error()))
+		return ExitUsage
+	}
+	fmt.Fprintf(std.Out, "wrote %s: %d layers from %d nodes; check it with: stackfit check %s\n", textsafe.Line(*out), len(s.Layers), res.Nodes, textsafe.Line(*out))
+	return ExitOK
+}
