@@ -55,16 +55,27 @@ func TestMeasureAndCalibrate(t *testing.T) {
 		t.Fatal(err)
 	}
 	r := engine.Evaluate(s)
-	probe := `import importlib.util, json, sys
+	// One process: the estimate table for three settings, whether CUDA is
+	// present, then the measuring entry point itself on the CPU (and on
+	// CUDA when present), as python cap.py --measure runs it.
+	probe := `import contextlib, importlib.util, io, json, sys, torch
 spec = importlib.util.spec_from_file_location("cap", sys.argv[1]); m = importlib.util.module_from_spec(spec); spec.loader.exec_module(m)
-print(json.dumps([m._estimate(b, p, o) for b, p, o in [(4, "fp32", "sgd"), (16, "bf16-mixed", "adamw"), (3, "fp16-master", "momentum")]]))`
+print(json.dumps([m._estimate(b, p, o) for b, p, o in [(4, "fp32", "sgd"), (16, "bf16-mixed", "adamw"), (3, "fp16-master", "momentum")]]))
+print(json.dumps(torch.cuda.is_available()))
+for dev in ["cpu"] + (["cuda"] if torch.cuda.is_available() else []):
+    buf = io.StringIO()
+    with contextlib.redirect_stdout(buf):
+        m.main(["--measure", "--batch", "4", "--device", dev])
+    print(json.dumps(buf.getvalue()))`
 	out, err := exec.Command(python, "-c", probe, mod).CombinedOutput()
 	if err != nil {
-		t.Fatalf("estimate: %v\n%s", err, out)
+		t.Fatalf("probe: %v\n%s", err, out)
 	}
+	lines := strings.Split(strings.TrimSpace(string(out)), "\n")
 	var got []map[string]int64
-	if err := json.Unmarshal(out, &got); err != nil {
-		t.Fatalf("%v: %s", err, out)
+	var cuda bool
+	if len(lines) < 3 || json.Unmarshal([]byte(lines[0]), &got) != nil || json.Unmarshal([]byte(lines[1]), &cuda) != nil {
+		t.Fatalf("probe output:\n%s", out)
 	}
 	for i, tr := range []engine.Training{{Batch: 4}, {Batch: 16, Precision: engine.BF16Mixed, Optimizer: engine.AdamW}, {Batch: 3, Precision: engine.FP16Master, Optimizer: engine.Momentum}} {
 		var m engine.Memory
@@ -77,38 +88,33 @@ print(json.dumps([m._estimate(b, p, o) for b, p, o in [(4, "fp32", "sgd"), (16, 
 			}
 		}
 	}
-	// A measurement on the CPU, then calibrate.
-	for _, dev := range []string{"cpu", "cuda"} {
-		if dev == "cuda" {
-			if err := exec.Command(python, "-c", "import torch, sys; sys.exit(0 if torch.cuda.is_available() else 1)").Run(); err != nil {
-				t.Log("no CUDA device here: the CUDA measurement is not run")
-				continue
-			}
-		}
-		cmd := exec.Command(python, mod, "--measure", "--batch", "4", "--device", dev)
-		meas, err := cmd.CombinedOutput()
-		if err != nil {
-			t.Fatalf("measure on %s: %v\n%s", dev, err, meas)
+	if !cuda {
+		t.Log("no CUDA device here: the CUDA measurement is not run")
+	}
+	for i, dev := range []string{"cpu", "cuda"}[:len(lines)-2] {
+		var meas string
+		if err := json.Unmarshal([]byte(lines[2+i]), &meas); err != nil {
+			t.Fatalf("%s measurement: %v", dev, err)
 		}
 		for _, want := range []string{"stackfit measure: ", "activations", "measured peak (allocated)", calibrationPrefix + " device="} {
-			if !strings.Contains(string(meas), want) {
+			if !strings.Contains(meas, want) {
 				t.Errorf("%s measurement lacks %q:\n%s", dev, want, meas)
 			}
 		}
 		var o, e strings.Builder
 		args := []string{"calibrate", file}
 		if dev == "cpu" {
-			if code := Run(args, IO{In: strings.NewReader(string(meas)), Out: &o, Err: &e}); code != ExitUsage || !strings.Contains(e.String(), "--cpu") {
+			if code := Run(args, IO{In: strings.NewReader(meas), Out: &o, Err: &e}); code != ExitUsage || !strings.Contains(e.String(), "--cpu") {
 				t.Errorf("a CPU measurement was taken without --cpu: exit %d, %s", code, e.String())
 			}
 			args = append(args, "--cpu")
 		}
 		o.Reset()
 		e.Reset()
-		if code := Run(args, IO{In: strings.NewReader(string(meas)), Out: &o, Err: &e}); code != ExitOK {
+		if code := Run(args, IO{In: strings.NewReader(meas), Out: &o, Err: &e}); code != ExitOK {
 			t.Fatalf("calibrate: exit %d: %s", code, e.String())
 		}
-		c, err := readCalibration(strings.NewReader(string(meas)))
+		c, err := readCalibration(strings.NewReader(meas))
 		if err != nil {
 			t.Fatal(err)
 		}
