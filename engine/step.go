@@ -50,7 +50,6 @@ type stepScratch struct {
 	size     []int64 // storage → bytes
 	rows     []stepRow
 	dLive    []int64 // row → change of the forward pass's live bytes at it
-	dInf     []int64 // the same, keeping nothing for backward
 	// Checkpointing (Chen et al. 2016): the forward pass keeps only each
 	// segment's output; before a segment's backward its forward runs
 	// again and keeps what it normally would, recompute[end] bytes,
@@ -101,9 +100,9 @@ func (st *stepScratch) reset(n int, ckpt bool) {
 	}
 	st.rows = st.rows[:n]
 	if cap(st.dLive) < n+1 {
-		st.dLive, st.dInf = make([]int64, n+1), make([]int64, n+1)
+		st.dLive = make([]int64, n+1)
 	}
-	st.dLive, st.dInf = st.dLive[:n+1], st.dInf[:n+1]
+	st.dLive = st.dLive[:n+1]
 	st.ckpt = ckpt
 	if ckpt {
 		if cap(st.recompute) < n {
@@ -151,50 +150,60 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 
 	// Forward, from per-row changes: a storage is allocated at the row
 	// that writes it (the input before the first) and, unless kept for
-	// backward, freed after its last reader; infer follows the same pass
-	// keeping nothing for backward (inference).
-	dLive, dInf := st.dLive, st.dInf
-	clear(dLive)
-	clear(dInf)
-	for k := range st.lastUse {
-		s := int32(k - 1)
-		last := st.lastUse[k]
-		at := 0
-		if s >= 0 {
-			if rows[s].flags&srOK == 0 || rows[s].out != s {
-				continue // no storage of its own (an error, or a view)
+	// backward, freed after its last reader. The same array first gives
+	// the pass keeping nothing for backward (inference), then the
+	// training pass.
+	d := st.dLive
+	var inferPeak, liveEnd int64
+	for pass := 0; pass < 2; pass++ {
+		clear(d)
+		for k := range st.lastUse {
+			s := int32(k - 1)
+			last := st.lastUse[k]
+			at := 0
+			if s >= 0 {
+				if rows[s].flags&srOK == 0 || rows[s].out != s {
+					continue // no storage of its own (an error, or a view)
+				}
+				at = int(s)
+			} else if last < 0 && (pass == 0 || st.savedAt[0] < 0) {
+				continue // the input, never read
 			}
-			at = int(s)
-		} else if last < 0 && st.savedAt[0] < 0 {
-			continue // the input, never read
+			if pass == 0 && last < 0 {
+				continue
+			}
+			d[at] += size[k]
+			switch {
+			case pass == 0:
+				d[last+1] -= size[k]
+			case last >= 0 && st.savedAt[k] < 0 && s != final:
+				d[last+1] -= size[k]
+			}
 		}
-		sz := size[k]
-		dLive[at] += sz
-		if last >= 0 {
-			dInf[at] += sz
-			dInf[last+1] -= sz
-			if st.savedAt[k] < 0 && s != final {
-				dLive[last+1] -= sz
+		var live int64
+		for i := range rows {
+			live += d[i]
+			if pass == 1 {
+				live += st.extras[i]
 			}
+			if rows[i].flags&srOK == 0 {
+				continue
+			}
+			if pass == 0 {
+				inferPeak = max(inferPeak, live)
+			} else if live > peak.bytes {
+				peak = stepPeak{bytes: live, phase: PhaseForward, row: i}
+			}
+		}
+		if pass == 1 {
+			liveEnd = live + d[len(rows)]
 		}
 	}
-	var live, infer, inferPeak int64
-	for i := range rows {
-		live += dLive[i] + st.extras[i]
-		infer += dInf[i]
-		if rows[i].flags&srOK == 0 {
-			continue
-		}
-		if live > peak.bytes {
-			peak = stepPeak{bytes: live, phase: PhaseForward, row: i}
-		}
-		inferPeak = max(inferPeak, infer)
-	}
-	live += dLive[len(rows)]
-	// What each row's backward releases of the kept tensors (dInf is done
-	// with; it holds these now).
-	release := dInf
-	clear(release)
+	live := liveEnd
+	// What each row's backward releases: its masks, indices and
+	// statistics, and the kept tensors only it still needed (extras is
+	// done with as such; it holds these now).
+	release := st.extras
 	for k, at := range st.savedAt {
 		if at >= 0 && int(at) < len(rows) {
 			release[at] += size[k]
@@ -252,7 +261,7 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 			live -= size[out+1]
 		}
 		// What only this row kept is released after its backward.
-		live -= st.extras[i] + release[i]
+		live -= release[i]
 		if st.ckpt {
 			live -= st.release[i]
 		}
