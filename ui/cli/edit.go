@@ -89,7 +89,17 @@ func editorOptions(path string, builtin []byte, env environment, std IO) (editor
 		fmt.Fprintf(std.Err, "stackfit: %s\n", textsafe.Text(keysNote))
 	}
 	opt := editor.Options{Path: path, Keys: km, Styles: styles.DefaultStyles(), KeysPath: env.paths.Keys, Files: store.Disk{}}
+	var importNote string
 	switch {
+	case strings.EqualFold(filepath.Ext(path), ".onnx"):
+		// An ONNX model opens as a new, unsaved stack named after it.
+		s, note, err := importModel(path, true)
+		if err != nil {
+			fmt.Fprintf(std.Err, "stackfit: %s\n", textsafe.Text(err.Error()))
+			return opt, release, ExitUsage
+		}
+		opt.Stack, opt.Path, importNote = s, "", note
+		path = ""
 	case path == "":
 		s, err := stackfile.Load(builtin)
 		if err != nil {
@@ -119,7 +129,7 @@ func editorOptions(path string, builtin []byte, env environment, std IO) (editor
 	}
 	var notice string
 	opt.Recovery, notice = recovery(path, env.paths.State, opt.Base, opt.Stack, opt.NewFile)
-	opt.Notice = joinNotices(keysNote, notice)
+	opt.Notice = joinNotices(keysNote, importNote, notice)
 	return opt, release, ExitOK
 }
 

@@ -8,11 +8,46 @@ import (
 	"path/filepath"
 	"strings"
 
+	"stackfit/engine"
 	"stackfit/engine/onnximport"
 	"stackfit/engine/stackfile"
 	"stackfit/engine/textsafe"
 	"stackfit/ui/store"
 )
+
+// importModel reads the ONNX model at path. With partial, a node the
+// import cannot express keeps the layers before it, and the note says so;
+// otherwise it is an error. The note also carries the import's own notes.
+func importModel(path string, partial bool) (*engine.Stack, string, error) {
+	f, err := store.OpenRegular(path)
+	if err != nil {
+		return nil, "", err
+	}
+	data, err := io.ReadAll(io.LimitReader(f, onnximport.MaxFileBytes+1))
+	f.Close()
+	if err != nil {
+		return nil, "", fmt.Errorf("read %s: %w", path, err)
+	}
+	name := strings.TrimSuffix(filepath.Base(path), filepath.Ext(path))
+	s, res, err := onnximport.Import(data, name)
+	var notes []string
+	var stopped *onnximport.Stopped
+	switch {
+	case errors.As(err, &stopped) && partial && len(s.Layers) > 0:
+		layers := fmt.Sprintf("the %d layers", len(s.Layers))
+		if len(s.Layers) == 1 {
+			layers = "the one layer"
+		}
+		notes = append(notes, fmt.Sprintf("imported %s before node %d, %q (%s), where the import stops: %s", layers, stopped.Position, stopped.Node, stopped.Op, stopped.Why))
+	case err != nil:
+		return nil, "", fmt.Errorf("%s: %w", path, err)
+	}
+	notes = append(notes, res.Notes...)
+	for _, n := range res.Notes {
+		s.Note = strings.TrimSpace(s.Note + "\n" + n)
+	}
+	return s, strings.Join(notes, "; "), nil
+}
 
 // runImport reads an ONNX model into a stack file.
 func runImport(args []string, std IO) int {

@@ -1,10 +1,14 @@
 package cli
 
 import (
+	"os"
 	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/advancedclimatesystems/gonnx/onnx"
+	"google.golang.org/protobuf/proto"
 
 	"stackfit/engine"
 	"stackfit/ui/store"
@@ -84,5 +88,53 @@ func TestImportRoundTrip(t *testing.T) {
 				t.Errorf("%s: weighted layer %d gives %v, published %v", name, i+1, b[i], a[i])
 			}
 		}
+	}
+}
+
+// tinyModel is an ONNX model of a 3×3 convolution from 3 to 4 channels on
+// a 1×3×16×16 input, then a residual addition the import stops at (the
+// ONNX schema, onnx.proto3, as the binding ships it).
+func tinyModel(t *testing.T) []byte {
+	t.Helper()
+	dims := []*onnx.TensorShapeProto_Dimension{}
+	for _, d := range []int64{1, 3, 16, 16} {
+		dims = append(dims, &onnx.TensorShapeProto_Dimension{Value: &onnx.TensorShapeProto_Dimension_DimValue{DimValue: d}})
+	}
+	g := &onnx.GraphProto{Name: "g",
+		Input:       []*onnx.ValueInfoProto{{Name: "x", Type: &onnx.TypeProto{Value: &onnx.TypeProto_TensorType{TensorType: &onnx.TypeProto_Tensor{ElemType: 1, Shape: &onnx.TensorShapeProto{Dim: dims}}}}}},
+		Initializer: []*onnx.TensorProto{{Name: "w", Dims: []int64{4, 3, 3, 3}, DataType: 1}},
+		Node: []*onnx.NodeProto{
+			{OpType: "Conv", Name: "stem", Input: []string{"x", "w"}, Output: []string{"c"}, Attribute: []*onnx.AttributeProto{
+				{Name: "kernel_shape", Type: onnx.AttributeProto_INTS, Ints: []int64{3, 3}}, {Name: "pads", Type: onnx.AttributeProto_INTS, Ints: []int64{1, 1, 1, 1}}}},
+			{OpType: "Add", Name: "skip", Input: []string{"c", "x"}, Output: []string{"y"}},
+		}}
+	data, err := proto.Marshal(&onnx.ModelProto{IrVersion: 7, Graph: g, OpsetImport: []*onnx.OperatorSetIdProto{{Version: 13}}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return data
+}
+
+// TestEditorOpensONNX: the editor opens an .onnx file as a new, unsaved
+// stack named after it; a node the import stops at keeps the layers
+// before it and the start-up notice says so. The command refuses the
+// same model without --partial.
+func TestEditorOpensONNX(t *testing.T) {
+	dir := t.TempDir()
+	model := filepath.Join(dir, "cap-inspector.onnx")
+	if err := os.WriteFile(model, tinyModel(t), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	env := environment{paths: store.Paths{Keys: filepath.Join(dir, "none.yaml"), State: dir}}
+	var errb strings.Builder
+	opt, release, code := editorOptions(model, nil, env, IO{Err: &errb})
+	release()
+	if code != ExitOK || opt.Stack == nil || opt.Path != "" || opt.Stack.Name != "cap-inspector" || len(opt.Stack.Layers) != 1 ||
+		!strings.Contains(opt.Notice, `imported the one layer before`) || !strings.Contains(opt.Notice, `node 2, "skip" (Add), where the import stops`) {
+		t.Fatalf("options: code %d, path %q, stack %+v, notice %q, %s", code, opt.Path, opt.Stack, opt.Notice, errb.String())
+	}
+	var e strings.Builder
+	if code := Run([]string{"import", model}, IO{Out: new(strings.Builder), Err: &e}); code != ExitProblems || !strings.Contains(e.String(), "--partial") {
+		t.Errorf("import without --partial: exit %d, %s", code, e.String())
 	}
 }
