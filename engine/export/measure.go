@@ -16,10 +16,13 @@ import (
 // overhead the stack's training section sets. Every figure is the
 // engine's own; the module only multiplies by the batch and adds.
 func writeEstimate(w io.Writer, an *engine.Analysis) {
-	t := an.Stack.Training
+	// The workspace and overhead as the engine took them (the training
+	// section's, or the defaults): the workspace category less what the
+	// step's peak adds at the analysed micro-batch.
+	am := &an.Memory
 	fmt.Fprintf(w, "\n\n# stackfit's estimate for one GPU (an estimate: keep headroom), for the measuring entry point.\n")
 	fmt.Fprintf(w, "ESTIMATE = {\n")
-	fmt.Fprintf(w, "    \"workspace\": %d,\n    \"overhead\": %d,\n", orDefault(t.Workspace, engine.DefaultWorkspace), orDefault(t.Overhead, engine.DefaultOverhead))
+	fmt.Fprintf(w, "    \"workspace\": %d,\n    \"overhead\": %d,\n", am.Workspace-am.ScratchPerSample*am.MicroBatch, am.Overhead)
 	// One Memory for every setting: its storage is reused, and Retarget
 	// changes the optimizer without walking the rows again.
 	var m engine.Memory
@@ -36,13 +39,6 @@ func writeEstimate(w io.Writer, an *engine.Analysis) {
 		states = append(states, fmt.Sprintf("        %q: {%s},\n", p.String(), strings.Join(parts, ", ")))
 	}
 	fmt.Fprintf(w, "    \"per_sample\": {\n%s    },\n    \"model_state\": {\n%s    },\n}\n", strings.Join(perSample, ""), strings.Join(states, ""))
-}
-
-func orDefault(v, d int64) int64 {
-	if v > 0 {
-		return v
-	}
-	return d
 }
 
 // measureTool is the module's measuring entry point, run as

@@ -15,21 +15,42 @@ import (
 	"stackfit/ui/store"
 )
 
-// importModel reads the ONNX model at path. With partial, a node the
-// import cannot express keeps the layers before it, and the note says so;
-// otherwise it is an error. The note also carries the import's own notes.
-func importModel(path string, partial bool) (*engine.Stack, string, error) {
+// readModel reads the ONNX model at path (a regular file, at most
+// onnximport.MaxFileBytes) and imports it as a stack named after the
+// file, the import's notes kept in the stack's note. Its errors are
+// onnximport.Import's (a *onnximport.Stopped comes with the layers before
+// the node), or say why the file could not be read.
+func readModel(path string) (*engine.Stack, *onnximport.Result, error) {
 	f, err := store.OpenRegular(path)
 	if err != nil {
-		return nil, "", err
+		return nil, nil, err
 	}
 	data, err := io.ReadAll(io.LimitReader(f, onnximport.MaxFileBytes+1))
 	f.Close()
 	if err != nil {
-		return nil, "", fmt.Errorf("read %s: %w", path, err)
+		return nil, nil, fmt.Errorf("read %s: %w", path, err)
 	}
-	name := strings.TrimSuffix(filepath.Base(path), filepath.Ext(path))
-	s, res, err := onnximport.Import(data, name)
+	s, res, err := onnximport.Import(data, strings.TrimSuffix(filepath.Base(path), filepath.Ext(path)))
+	if res == nil && err != nil {
+		return nil, nil, fmt.Errorf("%s: %w", path, err)
+	}
+	if s != nil {
+		for _, n := range res.Notes {
+			s.Note = strings.TrimSpace(s.Note + "\n" + n)
+		}
+	}
+	return s, res, err
+}
+
+// importModel reads the ONNX model at path for the editor. With partial, a
+// node the import cannot express keeps the layers before it, and the note
+// says so; otherwise it is an error. The note also carries the import's
+// own notes.
+func importModel(path string, partial bool) (*engine.Stack, string, error) {
+	s, res, err := readModel(path)
+	if res == nil && err != nil {
+		return nil, "", err
+	}
 	var notes []string
 	var stopped *onnximport.Stopped
 	switch {
@@ -40,12 +61,9 @@ func importModel(path string, partial bool) (*engine.Stack, string, error) {
 		}
 		notes = append(notes, fmt.Sprintf("imported %s before node %d, %q (%s), where the import stops: %s", layers, stopped.Position, stopped.Node, stopped.Op, stopped.Why))
 	case err != nil:
-		return nil, "", fmt.Errorf("%s: %w", path, err)
+		return nil, "", err
 	}
 	notes = append(notes, res.Notes...)
-	for _, n := range res.Notes {
-		s.Note = strings.TrimSpace(s.Note + "\n" + n)
-	}
 	return s, strings.Join(notes, "; "), nil
 }
 
@@ -68,19 +86,11 @@ func runImport(args []string, std IO) int {
 		return ExitUsage
 	}
 	model := pos[0]
-	f, err := store.OpenRegular(model)
-	if err != nil {
+	s, res, err := readModel(model)
+	if res == nil && err != nil {
 		fmt.Fprintf(std.Err, "stackfit import: %s\n", textsafe.Text(err.Error()))
 		return ExitUsage
 	}
-	data, err := io.ReadAll(io.LimitReader(f, onnximport.MaxFileBytes+1))
-	f.Close()
-	if err != nil {
-		fmt.Fprintf(std.Err, "stackfit import: read %s: %s\n", textsafe.Line(model), textsafe.Text(err.Error()))
-		return ExitUsage
-	}
-	name := strings.TrimSuffix(filepath.Base(model), filepath.Ext(model))
-	s, res, err := onnximport.Import(data, name)
 	var stopped *onnximport.Stopped
 	switch {
 	case errors.As(err, &stopped) && *partial && len(s.Layers) > 0:
@@ -89,11 +99,10 @@ func runImport(args []string, std IO) int {
 		fmt.Fprintf(std.Err, "stackfit import: %s\n  %d of %d nodes were read; --partial writes the layers before this node\n", textsafe.Text(err.Error()), res.Read, res.Nodes)
 		return ExitProblems
 	case err != nil:
-		fmt.Fprintf(std.Err, "stackfit import: %s: %s\n", textsafe.Line(model), textsafe.Text(err.Error()))
+		fmt.Fprintf(std.Err, "stackfit import: %s\n", textsafe.Text(err.Error()))
 		return ExitUsage
 	}
 	for _, n := range res.Notes {
-		s.Note = strings.TrimSpace(s.Note + "\n" + n)
 		fmt.Fprintf(std.Err, "stackfit import: note: %s\n", textsafe.Text(n))
 	}
 	yaml, err := stackfile.Save(s)

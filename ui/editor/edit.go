@@ -119,10 +119,19 @@ func (m *Model) apply(e edit, err error) tea.Cmd {
 // insertAfter places l after the selected item as one change (see
 // placeAfter).
 func (m *Model) insertAfter(l engine.Layer, what string) tea.Cmd {
-	if _, err := m.tree.editable(); err != nil && m.tree.current() != nil {
-		return m.apply(edit{}, fmt.Errorf("select a layer of the stack to add below it; %w", err))
+	if err := m.tree.addable(); err != nil {
+		return m.apply(edit{}, err)
 	}
 	return m.change(what, func(s *engine.Stack) (addr, error) { return m.tree.placeAfter(s, l) })
+}
+
+// addable says why nothing can be added below the selection: a line the
+// engine generates is not a place in the stack.
+func (t *stackTree) addable() error {
+	if cur := t.current(); cur != nil && cur.gen != nil {
+		return fmt.Errorf("select a layer of the stack to add below it; %w", errGenerated(cur))
+	}
+	return nil
 }
 
 // placeAfter puts l after the selected item of s, in the same list; on an
@@ -130,15 +139,16 @@ func (m *Model) insertAfter(l engine.Layer, what string) tea.Cmd {
 // branches a layer becomes a new branch of its own, and a branch can only
 // go into a fork. It returns where l went.
 func (t *stackTree) placeAfter(s *engine.Stack, l engine.Layer) (addr, error) {
+	if err := t.addable(); err != nil {
+		return nil, err
+	}
 	cur := t.current()
-	if cur == nil || cur.gen != nil {
+	if cur == nil {
 		if l.Kind == engine.KindBranch {
 			return nil, errBranchOutside
 		}
-		if cur == nil {
-			s.Layers = append(s.Layers, l)
-			return addr{len(s.Layers) - 1}, nil
-		}
+		s.Layers = append(s.Layers, l)
+		return addr{len(s.Layers) - 1}, nil
 	}
 	if c := at(s, cur.addr); c != nil && engine.SpecOf(c.Kind).Body && len(c.Body) == 0 {
 		item, err := placed(l, c.Kind == engine.KindFork)

@@ -74,6 +74,10 @@ func (m *Model) editLayer() {
 // opens its form first, and the layer is added only when the form is
 // accepted (esc adds nothing).
 func (m *Model) addKind(k engine.Kind) tea.Cmd {
+	if err := m.tree.addable(); err != nil {
+		m.setStatus(err.Error(), statusError)
+		return nil
+	}
 	l := newLayer(k, m.channelsAt())
 	if sp := engine.SpecOf(k); sp.Main == nil && len(sp.Params) == 0 {
 		return m.insertAfter(l, "added "+k.String())

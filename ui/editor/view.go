@@ -41,7 +41,7 @@ func (m *Model) View() string {
 	case *chart:
 		b.WriteString(fr.chartView(lay.listH + 2 + lay.detailH))
 	default:
-		b.WriteString(m.tree.header(m.drawing(), lay))
+		b.WriteString(m.tree.header(fr.drawing, lay))
 		b.WriteByte('\n')
 		switch o := o.(type) {
 		case *form.Model:
@@ -49,7 +49,7 @@ func (m *Model) View() string {
 		case *picker.Model:
 			b.WriteString(o.View(m.width, lay.listH))
 		default:
-			b.WriteString(m.tree.view(m.drawing(), lay, m.emptyText()))
+			b.WriteString(m.tree.view(fr.drawing, lay, m.emptyText()))
 		}
 		b.WriteString(m.rule("details"))
 		b.WriteByte('\n')
