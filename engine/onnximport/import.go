@@ -17,10 +17,8 @@ import (
 	"strconv"
 	"strings"
 
-	"github.com/advancedclimatesystems/gonnx/onnx"
-	"google.golang.org/protobuf/proto"
-
 	"stackfit/engine"
+	"stackfit/engine/onnximport/onnxpb"
 )
 
 // MaxFileBytes bounds the model read (512 MiB: a ResNet-152 with its
@@ -63,9 +61,9 @@ func Import(data []byte, name string) (*engine.Stack, *Result, error) {
 	if len(data) > MaxFileBytes {
 		return nil, nil, fmt.Errorf("%w: the file is %d bytes; at most %d (512 MiB) are read", ErrImport, len(data), MaxFileBytes)
 	}
-	var m onnx.ModelProto
-	if err := proto.Unmarshal(data, &m); err != nil {
-		return nil, nil, fmt.Errorf("%w: not an ONNX model (%v)", ErrImport, err)
+	m, consts, err := decode(data)
+	if err != nil {
+		return nil, nil, err
 	}
 	g := m.GetGraph()
 	if g == nil || len(g.GetNode()) == 0 {
@@ -76,10 +74,7 @@ func Import(data []byte, name string) (*engine.Stack, *Result, error) {
 			return nil, nil, fmt.Errorf("%w: opset %d; opsets 7 to 21 are read (torch.onnx.export writes 13 to 17)", ErrImport, op.GetVersion())
 		}
 	}
-	im := &importer{res: &Result{Nodes: len(g.GetNode())}, consts: map[string]*onnx.TensorProto{}, names: map[string]bool{}, values: map[string][]int64{}}
-	for _, t := range g.GetInitializer() {
-		im.consts[t.GetName()] = t
-	}
+	im := &importer{res: &Result{Nodes: len(g.GetNode())}, consts: consts, names: map[string]bool{}, values: map[string][]int64{}}
 	s := &engine.Stack{Name: name}
 	in, err := im.input(g)
 	if err != nil {
@@ -107,8 +102,8 @@ func Import(data []byte, name string) (*engine.Stack, *Result, error) {
 // importer holds the walk's state.
 type importer struct {
 	res      *Result
-	consts   map[string]*onnx.TensorProto // initializers and folded constants
-	flow     string                       // the tensor the next layer reads
+	consts   map[string]*onnxpb.Tensor // initializers and folded constants
+	flow     string                    // the tensor the next layer reads
 	layers   []engine.Layer
 	names    map[string]bool
 	convBias int
@@ -121,7 +116,7 @@ type importer struct {
 
 // input finds the graph's one data input (an input that is not an
 // initializer) and its shape, N×C×H×W.
-func (im *importer) input(g *onnx.GraphProto) (engine.Shape, error) {
+func (im *importer) input(g *onnxpb.Graph) (engine.Shape, error) {
 	for _, v := range g.GetInput() {
 		if _, ok := im.consts[v.GetName()]; ok {
 			continue
@@ -133,7 +128,7 @@ func (im *importer) input(g *onnx.GraphProto) (engine.Shape, error) {
 		}
 		var sh [3]int64
 		for i := 1; i < 4; i++ {
-			d := dims[i].GetDimValue()
+			d := dims[i].GetSize()
 			if d < 1 || d > engine.MaxSpatial*16 {
 				return engine.Shape{}, fmt.Errorf("%w: input %q: dimension %d is %q; export with a fixed input size", ErrImport, v.GetName(), i, dims[i].String())
 			}
@@ -153,7 +148,7 @@ func f32(f float32) float64 {
 }
 
 // attr returns a node's attribute by name, or nil.
-func attr(n *onnx.NodeProto, name string) *onnx.AttributeProto {
+func attr(n *onnxpb.Node, name string) *onnxpb.Attribute {
 	for _, a := range n.GetAttribute() {
 		if a.GetName() == name {
 			return a
@@ -164,7 +159,7 @@ func attr(n *onnx.NodeProto, name string) *onnx.AttributeProto {
 
 // pair reads a two-value attribute (kernel_shape, strides, dilations),
 // def when absent.
-func pair(n *onnx.NodeProto, name string, def int64) (engine.Pair, error) {
+func pair(n *onnxpb.Node, name string, def int64) (engine.Pair, error) {
 	a := attr(n, name)
 	if a == nil {
 		return engine.Square(def), nil
@@ -177,7 +172,7 @@ func pair(n *onnx.NodeProto, name string, def int64) (engine.Pair, error) {
 }
 
 // pads reads symmetric 2-D padding ([top, left, bottom, right]).
-func pads(n *onnx.NodeProto) (engine.Padding, error) {
+func pads(n *onnxpb.Node) (engine.Padding, error) {
 	if a := attr(n, "auto_pad"); a != nil {
 		switch s := string(a.GetS()); s {
 		case "", "NOTSET":
@@ -224,7 +219,7 @@ func (im *importer) scalar(name string) (float64, bool) {
 	if f := t.GetFloatData(); len(f) == 1 {
 		return f32(f[0]), true
 	}
-	if r := t.GetRawData(); len(r) == 4 && t.GetDataType() == int32(onnx.TensorProto_FLOAT) {
+	if r := t.GetRawData(); len(r) == 4 && t.GetElemType() == int32(elemFloat) {
 		b := uint32(r[0]) | uint32(r[1])<<8 | uint32(r[2])<<16 | uint32(r[3])<<24
 		return f32(math.Float32frombits(b)), true
 	}
@@ -233,7 +228,7 @@ func (im *importer) scalar(name string) (float64, bool) {
 
 // fold works out the int64 value of a folded node where it is one of the
 // few a reshape's target is computed with (the batch stays −1).
-func (im *importer) fold(n *onnx.NodeProto) {
+func (im *importer) fold(n *onnxpb.Node) {
 	out := n.GetOutput()[0]
 	ins := n.GetInput()
 	switch n.GetOpType() {
@@ -289,7 +284,7 @@ func (im *importer) ints(name string) ([]int64, bool) {
 		return v, true
 	}
 	r := t.GetRawData()
-	if t.GetDataType() != int32(onnx.TensorProto_INT64) || len(r)%8 != 0 || len(r) > 64 {
+	if t.GetElemType() != int32(elemInt64) || len(r)%8 != 0 || len(r) > 64 {
 		return nil, false
 	}
 	out := make([]int64, len(r)/8)
@@ -305,7 +300,7 @@ func (im *importer) ints(name string) ([]int64, bool) {
 
 // nameFor turns a node name into a layer name by the stack file's rules
 // (letters, digits, '_' and '-', starting with a letter), unique.
-func (im *importer) nameFor(n *onnx.NodeProto) string {
+func (im *importer) nameFor(n *onnxpb.Node) string {
 	var b strings.Builder
 	for _, r := range n.GetName() {
 		switch {
@@ -335,7 +330,7 @@ func (im *importer) nameFor(n *onnx.NodeProto) string {
 
 // constOnly reports whether every input of n is a constant: the node is
 // part of a constant or shape-computing subgraph and is folded.
-func (im *importer) constOnly(n *onnx.NodeProto) bool {
+func (im *importer) constOnly(n *onnxpb.Node) bool {
 	for _, in := range n.GetInput() {
 		if _, ok := im.consts[in]; !ok && in != "" {
 			return false
@@ -346,14 +341,14 @@ func (im *importer) constOnly(n *onnx.NodeProto) bool {
 
 // node reads one node: a layer, nil for a node that only passes the flow
 // on or is folded, or an error that stops the import.
-func (im *importer) node(n *onnx.NodeProto, pos int) (*engine.Layer, error) {
+func (im *importer) node(n *onnxpb.Node, pos int) (*engine.Layer, error) {
 	stop := func(why string, args ...any) error {
 		return &Stopped{Node: n.GetName(), Op: n.GetOpType(), Position: pos, Why: fmt.Sprintf(why, args...)}
 	}
 	op := n.GetOpType()
 	if op == "Constant" || op == "Shape" || im.constOnly(n) {
 		for _, o := range n.GetOutput() {
-			im.consts[o] = &onnx.TensorProto{Name: o} // folded
+			im.consts[o] = &onnxpb.Tensor{} // folded
 		}
 		if len(n.GetOutput()) == 1 {
 			im.fold(n)

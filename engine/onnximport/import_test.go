@@ -1,44 +1,75 @@
 package onnximport
 
 import (
+	"encoding/binary"
 	"errors"
+	"math"
 	"strings"
 	"testing"
 
-	"github.com/advancedclimatesystems/gonnx/onnx"
 	"google.golang.org/protobuf/proto"
 
 	"stackfit/engine"
+	"stackfit/engine/onnximport/onnxpb"
 )
 
 // model builds an ONNX model in memory: input x of 1×C×H×W, the nodes
-// given, and a 4-D weight initializer per name in weights. The ONNX
-// schema (onnx.proto3, as the binding ships it) is the source of every
-// field used.
-func model(t testing.TB, shape [4]int64, opset int64, weights map[string][]int64, nodes ...*onnx.NodeProto) []byte {
+// given, and a 4-D weight initializer per name in weights. Field numbers
+// are the format's (onnxpb, checked against python3-onnx's schema in the
+// reference suite).
+func model(t testing.TB, shape [4]int64, opset int64, weights map[string][]int64, nodes ...*onnxpb.Node) []byte {
+	return modelWith(t, shape, opset, weights, nil, nodes...)
+}
+
+// modelWith is model with initializers that carry values (as an export
+// with constant folding stores shape vectors and scalars). The weights
+// are written as full tensors through onnxpb.ValuesModel, whose graph and
+// initializer fields have the format's numbers, and the two encodings
+// concatenated: protobuf merges them into one model.
+func modelWith(t testing.TB, shape [4]int64, opset int64, weights map[string][]int64, valued []*onnxpb.Tensor, nodes ...*onnxpb.Node) []byte {
 	t.Helper()
-	dims := make([]*onnx.TensorShapeProto_Dimension, 4)
+	dims := make([]*onnxpb.Dim, 4)
 	for i, d := range shape {
-		dims[i] = &onnx.TensorShapeProto_Dimension{Value: &onnx.TensorShapeProto_Dimension_DimValue{DimValue: d}}
+		dims[i] = &onnxpb.Dim{Value: &onnxpb.Dim_Size{Size: d}}
 	}
-	g := &onnx.GraphProto{Name: "g", Node: nodes, Input: []*onnx.ValueInfoProto{{Name: "x", Type: &onnx.TypeProto{
-		Value: &onnx.TypeProto_TensorType{TensorType: &onnx.TypeProto_Tensor{ElemType: 1, Shape: &onnx.TensorShapeProto{Dim: dims}}}}}}}
+	g := &onnxpb.Graph{Name: proto.String("g"), Node: nodes, Input: []*onnxpb.ValueInfo{{Name: proto.String("x"), Type: &onnxpb.ValueType{
+		TensorType: &onnxpb.TensorType{ElemType: proto.Int32(1), Shape: &onnxpb.Shape{Dim: dims}}}}}}
+	vals := &onnxpb.ValuesGraph{Initializer: valued}
 	for name, d := range weights {
-		g.Initializer = append(g.Initializer, &onnx.TensorProto{Name: name, Dims: d, DataType: int32(onnx.TensorProto_FLOAT)})
+		vals.Initializer = append(vals.Initializer, &onnxpb.Tensor{Name: proto.String(name), Dims: d, ElemType: proto.Int32(elemFloat)})
 	}
-	data, err := proto.Marshal(&onnx.ModelProto{IrVersion: 7, Graph: g, OpsetImport: []*onnx.OperatorSetIdProto{{Version: opset}}})
+	data, err := proto.Marshal(&onnxpb.Model{IrVersion: proto.Int64(7), Graph: g, OpsetImport: []*onnxpb.OpsetId{{Version: proto.Int64(opset)}}})
 	if err != nil {
 		t.Fatal(err)
 	}
-	return data
+	more, err := proto.Marshal(&onnxpb.ValuesModel{Graph: vals})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return append(data, more...)
 }
 
-func ints(name string, v ...int64) *onnx.AttributeProto {
-	return &onnx.AttributeProto{Name: name, Type: onnx.AttributeProto_INTS, Ints: v}
+// rawInt64 is an int64 initializer with its values in raw_data,
+// little-endian, as the format stores them.
+func rawInt64(name string, v ...int64) *onnxpb.Tensor {
+	b := make([]byte, 8*len(v))
+	for i, x := range v {
+		binary.LittleEndian.PutUint64(b[8*i:], uint64(x))
+	}
+	return &onnxpb.Tensor{Name: proto.String(name), Dims: []int64{int64(len(v))}, ElemType: proto.Int32(elemInt64), RawData: b}
 }
 
-func node(op, name string, in []string, out string, attrs ...*onnx.AttributeProto) *onnx.NodeProto {
-	return &onnx.NodeProto{OpType: op, Name: name, Input: in, Output: []string{out}, Attribute: attrs}
+// rawFloat is a float scalar initializer with its value in raw_data.
+func rawFloat(name string, v float32) *onnxpb.Tensor {
+	return &onnxpb.Tensor{Name: proto.String(name), ElemType: proto.Int32(elemFloat), RawData: binary.LittleEndian.AppendUint32(nil, math.Float32bits(v))}
+}
+
+func ints(name string, v ...int64) *onnxpb.Attribute {
+	return &onnxpb.Attribute{Name: proto.String(name), Kind: proto.Int32(7), Ints: v}
+}
+
+func node(op, name string, in []string, out string, attrs ...*onnxpb.Attribute) *onnxpb.Node {
+	return &onnxpb.Node{OpType: proto.String(op), Name: proto.String(name), Input: in, Output: []string{out}, Attribute: attrs}
 }
 
 // chain is a small convolutional chain: conv 8 k3 s2 p1 (bias), batch
@@ -52,8 +83,8 @@ func chain(t testing.TB) []byte {
 		node("MaxPool", "p", []string{"a"}, "q", ints("kernel_shape", 2, 2), ints("strides", 2, 2)),
 		node("GlobalAveragePool", "gp", []string{"q"}, "g"),
 		node("Flatten", "f", []string{"g"}, "fl"),
-		&onnx.NodeProto{OpType: "Gemm", Name: "/head/Gemm", Input: []string{"fl", "fc", "fcb"}, Output: []string{"y"},
-			Attribute: []*onnx.AttributeProto{{Name: "transB", Type: onnx.AttributeProto_INT, I: 1}}},
+		&onnxpb.Node{OpType: proto.String("Gemm"), Name: proto.String("/head/Gemm"), Input: []string{"fl", "fc", "fcb"}, Output: []string{"y"},
+			Attribute: []*onnxpb.Attribute{{Name: proto.String("transB"), Kind: proto.Int32(2), I: proto.Int64(1)}}},
 	)
 }
 
@@ -87,6 +118,51 @@ func TestImportChain(t *testing.T) {
 	}
 	if s.Input != (engine.Shape{C: 3, H: 32, W: 32}) || s.Layers[5].Filters != 10 {
 		t.Errorf("input %v, dense %d", s.Input, s.Layers[5].Filters)
+	}
+}
+
+// TestImportFoldedValues: an export with constant folding on stores a
+// reshape's target and clip's bounds as initializers with their values in
+// raw_data; the import reads those small values (a second decoding) and
+// still leaves the weights' bytes alone.
+func TestImportFoldedValues(t *testing.T) {
+	data := modelWith(t, [4]int64{1, 2, 4, 4}, 13, map[string][]int64{"w": {4, 2, 3, 3}},
+		[]*onnxpb.Tensor{rawInt64("shape", 1, 16, 2, 2), rawFloat("lo", 0), rawFloat("hi", 6)},
+		node("Conv", "c", []string{"x", "w"}, "c", ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1)),
+		node("Clip", "clip", []string{"c", "lo", "hi"}, "a"),
+		node("Reshape", "r", []string{"a", "shape"}, "y"),
+	)
+	s, _, err := Import(data, "folded")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Layers) != 3 || s.Layers[1].Act != engine.ActReLU6 || s.Layers[2].Kind != engine.KindReshape || s.Layers[2].Target != (engine.Shape{C: 16, H: 2, W: 2}) {
+		t.Fatalf("layers %+v", s.Layers)
+	}
+	// Without the values (a bound of 0..5), the clip is refused by value,
+	// which shows the value was read, not assumed.
+	data = modelWith(t, [4]int64{1, 2, 4, 4}, 13, nil, []*onnxpb.Tensor{rawFloat("lo", 0), rawFloat("hi", 5)},
+		node("Clip", "clip", []string{"x", "lo", "hi"}, "y"))
+	if _, _, err := Import(data, "clip5"); err == nil || !strings.Contains(err.Error(), "0..6") {
+		t.Errorf("clip 0..5: %v", err)
+	}
+}
+
+// TestDecodeSkipsWeights: a weight's values are not read, even when a
+// second decoding runs for a small initializer's values.
+func TestDecodeSkipsWeights(t *testing.T) {
+	w := &onnxpb.Tensor{Name: proto.String("w"), Dims: []int64{4, 2, 3, 3}, ElemType: proto.Int32(elemFloat), RawData: make([]byte, 4*4*2*3*3)}
+	data := modelWith(t, [4]int64{1, 2, 4, 4}, 13, nil, []*onnxpb.Tensor{w, rawInt64("shape", 1, -1)},
+		node("Reshape", "r", []string{"x", "shape"}, "y"))
+	_, consts, err := decode(data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c := consts["w"]; c == nil || len(c.GetRawData()) != 0 || len(c.GetDims()) != 4 {
+		t.Errorf("weight %v: dims kept, values not read", c)
+	}
+	if c := consts["shape"]; c == nil || len(c.GetRawData()) != 16 {
+		t.Errorf("shape vector %v: values read", c)
 	}
 }
 

@@ -7,10 +7,10 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/advancedclimatesystems/gonnx/onnx"
 	"google.golang.org/protobuf/proto"
 
 	"stackfit/engine"
+	"stackfit/engine/onnximport/onnxpb"
 	"stackfit/ui/store"
 )
 
@@ -92,23 +92,26 @@ func TestImportRoundTrip(t *testing.T) {
 }
 
 // tinyModel is an ONNX model of a 3×3 convolution from 3 to 4 channels on
-// a 1×3×16×16 input, then a residual addition the import stops at (the
-// ONNX schema, onnx.proto3, as the binding ships it).
+// a 1×3×16×16 input, then a residual addition the import stops at
+// (written with stackfit's binding, whose field numbers are the format's).
 func tinyModel(t *testing.T) []byte {
 	t.Helper()
-	dims := []*onnx.TensorShapeProto_Dimension{}
+	dims := []*onnxpb.Dim{}
 	for _, d := range []int64{1, 3, 16, 16} {
-		dims = append(dims, &onnx.TensorShapeProto_Dimension{Value: &onnx.TensorShapeProto_Dimension_DimValue{DimValue: d}})
+		dims = append(dims, &onnxpb.Dim{Value: &onnxpb.Dim_Size{Size: d}})
 	}
-	g := &onnx.GraphProto{Name: "g",
-		Input:       []*onnx.ValueInfoProto{{Name: "x", Type: &onnx.TypeProto{Value: &onnx.TypeProto_TensorType{TensorType: &onnx.TypeProto_Tensor{ElemType: 1, Shape: &onnx.TensorShapeProto{Dim: dims}}}}}},
-		Initializer: []*onnx.TensorProto{{Name: "w", Dims: []int64{4, 3, 3, 3}, DataType: 1}},
-		Node: []*onnx.NodeProto{
-			{OpType: "Conv", Name: "stem", Input: []string{"x", "w"}, Output: []string{"c"}, Attribute: []*onnx.AttributeProto{
-				{Name: "kernel_shape", Type: onnx.AttributeProto_INTS, Ints: []int64{3, 3}}, {Name: "pads", Type: onnx.AttributeProto_INTS, Ints: []int64{1, 1, 1, 1}}}},
-			{OpType: "Add", Name: "skip", Input: []string{"c", "x"}, Output: []string{"y"}},
+	ints := func(name string, v ...int64) *onnxpb.Attribute {
+		return &onnxpb.Attribute{Name: proto.String(name), Kind: proto.Int32(7), Ints: v}
+	}
+	g := &onnxpb.Graph{Name: proto.String("g"),
+		Input:       []*onnxpb.ValueInfo{{Name: proto.String("x"), Type: &onnxpb.ValueType{TensorType: &onnxpb.TensorType{ElemType: proto.Int32(1), Shape: &onnxpb.Shape{Dim: dims}}}}},
+		Initializer: []*onnxpb.Weight{{Name: proto.String("w"), Dims: []int64{4, 3, 3, 3}, ElemType: proto.Int32(1)}},
+		Node: []*onnxpb.Node{
+			{OpType: proto.String("Conv"), Name: proto.String("stem"), Input: []string{"x", "w"}, Output: []string{"c"},
+				Attribute: []*onnxpb.Attribute{ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1)}},
+			{OpType: proto.String("Add"), Name: proto.String("skip"), Input: []string{"c", "x"}, Output: []string{"y"}},
 		}}
-	data, err := proto.Marshal(&onnx.ModelProto{IrVersion: 7, Graph: g, OpsetImport: []*onnx.OperatorSetIdProto{{Version: 13}}})
+	data, err := proto.Marshal(&onnxpb.Model{IrVersion: proto.Int64(7), Graph: g, OpsetImport: []*onnxpb.OpsetId{{Version: proto.Int64(13)}}})
 	if err != nil {
 		t.Fatal(err)
 	}
