@@ -141,6 +141,7 @@ var codingLine = regexp.MustCompile(`^[ \t\f]*#.*?coding[:=][ \t]*([-\w.]+)`)
 // a file whose name declares an encoding too), then imports, builds and
 // runs all the modules in one PyTorch process (Debian python3-torch).
 func TestExportHostileNames(t *testing.T) {
+	needReference(t)
 	t.Parallel()
 	dir := t.TempDir()
 	const source = "-*- coding: utf-7 -*-.yaml"

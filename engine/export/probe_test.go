@@ -10,6 +10,20 @@ import (
 	"testing"
 )
 
+// referenceEnv turns on the reference suite: the checks that start
+// Python (Debian's python3-torch, python3-torchvision, python3-onnx). The
+// README's test command leaves them out to stay fast; .ci/run sets it.
+const referenceEnv = "STACKFIT_REFERENCE"
+
+// needReference skips a check that starts Python unless the reference
+// suite was asked for.
+func needReference(t *testing.T) {
+	t.Helper()
+	if os.Getenv(referenceEnv) != "1" {
+		t.Skip("reference suite (starts PyTorch): run with " + referenceEnv + "=1, as .ci/run does")
+	}
+}
+
 // metaPython lets a probe build modules on PyTorch's meta device: shapes
 // by PyTorch's own rules, no weight initialisation, no arithmetic.
 const metaPython = `class MetaFactories(torch.overrides.TorchFunctionMode):

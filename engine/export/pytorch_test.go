@@ -118,6 +118,7 @@ func exportFile(t *testing.T, s *engine.Stack, dir, name string) (string, *engin
 // the CPU as well) against the engine's, in a subtest named after the
 // stack.
 func TestExportBuildsInPyTorch(t *testing.T) {
+	needReference(t)
 	t.Parallel()
 	dir := t.TempDir()
 	var cases []probeCase
@@ -211,6 +212,7 @@ func TestExportBuildsInPyTorch(t *testing.T) {
 // TestExportHostileText checks that names, notes and the stack name never
 // become code: a note with a newline and a statement stays a comment.
 func TestExportHostileText(t *testing.T) {
+	needReference(t)
 	t.Parallel()
 	dir := t.TempDir()
 	marker := filepath.Join(dir, "pwned")

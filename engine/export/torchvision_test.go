@@ -424,6 +424,7 @@ var compareInputs = map[string]engine.Shape{
 // state into the export tensor for tensor and requires the two outputs on
 // one random input to agree within 1e-4.
 func TestPublishedMatchTorchvision(t *testing.T) {
+	needReference(t)
 	t.Parallel()
 	dir := t.TempDir()
 	wide := engine.Shape{C: 3, H: 320, W: 256} // any size the nets take; not square, so height and width cannot swap unseen

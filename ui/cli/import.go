@@ -5,6 +5,7 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"os"
 	"path/filepath"
 	"strings"
 
@@ -25,7 +26,7 @@ func readModel(path string) (*engine.Stack, *onnximport.Result, error) {
 	if err != nil {
 		return nil, nil, err
 	}
-	data, err := io.ReadAll(io.LimitReader(f, onnximport.MaxFileBytes+1))
+	data, err := readAllSized(f, onnximport.MaxFileBytes)
 	f.Close()
 	if err != nil {
 		return nil, nil, fmt.Errorf("read %s: %w", path, err)
@@ -124,4 +125,30 @@ func runImport(args []string, std IO) int {
 	}
 	fmt.Fprintf(std.Out, "wrote %s: %d layers from %d nodes; check it with: stackfit check %s\n", textsafe.Line(*out), len(s.Layers), res.Nodes, textsafe.Line(*out))
 	return ExitOK
+}
+
+// readAllSized reads an open regular file whole into one buffer of its
+// size (io.ReadAll's growing buffer cleared and copied a 100 MB model
+// several times over: a second of the import). It reads at most limit+1
+// bytes, so a file over the limit is seen as such; a file that grew since
+// its size was taken is read on to its end, within the same bound.
+func readAllSized(f *os.File, limit int64) ([]byte, error) {
+	size := int64(0)
+	if fi, err := f.Stat(); err == nil && fi.Size() > 0 {
+		size = min(fi.Size(), limit+1)
+	}
+	buf := make([]byte, size, size+1)
+	n, err := io.ReadFull(f, buf)
+	buf = buf[:n]
+	switch {
+	case err == io.ErrUnexpectedEOF || err == io.EOF:
+		return buf, nil // shorter than it was: what is there
+	case err != nil:
+		return nil, err
+	}
+	more, err := io.ReadAll(io.LimitReader(f, limit+1-int64(len(buf))))
+	if err != nil {
+		return nil, err
+	}
+	return append(buf, more...), nil
 }

@@ -34,6 +34,7 @@ for mod, graph in zip(args[::2], args[1::2]):
 // as the published file, and every convolution and dense layer the same
 // output shape, in order.
 func TestImportRoundTrip(t *testing.T) {
+	needReference(t)
 	if err := exec.Command(python, "-c", "import torch").Run(); err != nil {
 		t.Skip("PyTorch is not installed (apt-get install python3-torch); .ci/run installs it")
 	}
@@ -139,5 +140,31 @@ func TestEditorOpensONNX(t *testing.T) {
 	var e strings.Builder
 	if code := Run([]string{"import", model}, IO{Out: new(strings.Builder), Err: &e}); code != ExitProblems || !strings.Contains(e.String(), "--partial") {
 		t.Errorf("import without --partial: exit %d, %s", code, e.String())
+	}
+}
+
+// TestReadAllSized: the model reader gives a file's bytes whole, and one
+// byte past the limit for a file over it (so the import can refuse it by
+// size), for empty, small and over-limit files.
+func TestReadAllSized(t *testing.T) {
+	dir := t.TempDir()
+	for _, tt := range []struct {
+		size, limit int64
+		want        int
+	}{{0, 10, 0}, {5, 10, 5}, {10, 10, 10}, {11, 10, 11}, {4000, 10, 11}} {
+		p := filepath.Join(dir, "m.onnx")
+		data := strings.Repeat("x", int(tt.size))
+		if err := os.WriteFile(p, []byte(data), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		f, err := os.Open(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		got, err := readAllSized(f, tt.limit)
+		f.Close()
+		if err != nil || len(got) != tt.want || string(got) != data[:tt.want] {
+			t.Errorf("size %d, limit %d: %d bytes, %v; want %d", tt.size, tt.limit, len(got), err, tt.want)
+		}
 	}
 }
