@@ -109,7 +109,7 @@ func TestImportChain(t *testing.T) {
 		}
 	}
 	c := s.Layers[0]
-	if c.Filters != 8 || c.Kernel != engine.Square(3) || c.Stride != engine.Square(2) || c.Pad.Size != engine.Square(1) || c.NoBias || c.Name != "stem_Conv" {
+	if c.Filters != 8 || c.Kernel != engine.Square(3) || c.Stride != engine.Square(2) || c.Pad.Size != engine.Square(1) || c.NoBias || c.Name != "stem" {
 		t.Errorf("conv %+v", c)
 	}
 	r := engine.Evaluate(s)
@@ -118,6 +118,29 @@ func TestImportChain(t *testing.T) {
 	}
 	if s.Input != (engine.Shape{C: 3, H: 32, W: 32}) || s.Layers[5].Filters != 10 {
 		t.Errorf("input %v, dense %d", s.Input, s.Layers[5].Filters)
+	}
+}
+
+// TestImportResidual: conv → relu added to the input is a residual block
+// whose body is the two layers (common practice: He et al. 2016's
+// identity shortcut); 3·3·3·3 = 81 weights.
+func TestImportResidual(t *testing.T) {
+	add := model(t, [4]int64{1, 3, 16, 16}, 13, map[string][]int64{"w": {3, 3, 3, 3}},
+		node("Conv", "/block/conv/Conv", []string{"x", "w"}, "c", ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1)),
+		node("Relu", "/block/relu/Relu", []string{"c"}, "a"),
+		node("Add", "/block/Add", []string{"a", "x"}, "y"),
+		node("Relu", "/block/relu2/Relu", []string{"y"}, "z"),
+	)
+	s, _, err := Import(add, "res")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Layers) != 1 || s.Layers[0].Kind != engine.KindBlock || !s.Layers[0].Residual || len(s.Layers[0].Body) != 2 ||
+		!s.Layers[0].HasPostAct || s.Layers[0].PostAct != engine.ActReLU || s.Layers[0].Name != "block" {
+		t.Fatalf("%+v", s.Layers)
+	}
+	if r := engine.Evaluate(s); r.Totals.Params != 81 {
+		t.Errorf("params %d", r.Totals.Params)
 	}
 }
 
@@ -148,38 +171,42 @@ func TestImportFoldedValues(t *testing.T) {
 	}
 }
 
-// TestDecodeSkipsWeights: a weight's values are not read, even when a
-// second decoding runs for a small initializer's values.
+// TestDecodeSkipsWeights: the first decoding reads no initializer's
+// values; the second keeps those of small ones (at most maxValues
+// elements: shape vectors, scalars) and never a weight's.
 func TestDecodeSkipsWeights(t *testing.T) {
-	w := &onnxpb.Tensor{Name: proto.String("w"), Dims: []int64{4, 2, 3, 3}, ElemType: proto.Int32(elemFloat), RawData: make([]byte, 4*4*2*3*3)}
-	data := modelWith(t, [4]int64{1, 2, 4, 4}, 13, nil, []*onnxpb.Tensor{w, rawInt64("shape", 1, -1)},
+	w := &onnxpb.Tensor{Name: proto.String("w"), Dims: []int64{64, 8, 3, 3}, ElemType: proto.Int32(elemFloat), RawData: make([]byte, 4*64*8*3*3)}
+	data := modelWith(t, [4]int64{1, 8, 4, 4}, 13, nil, []*onnxpb.Tensor{w, rawInt64("shape", 1, -1)},
 		node("Reshape", "r", []string{"x", "shape"}, "y"))
-	_, consts, err := decode(data)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if c := consts["w"]; c == nil || len(c.GetRawData()) != 0 || len(c.GetDims()) != 4 {
-		t.Errorf("weight %v: dims kept, values not read", c)
-	}
-	if c := consts["shape"]; c == nil || len(c.GetRawData()) != 16 {
-		t.Errorf("shape vector %v: values read", c)
+	for _, values := range []bool{false, true} {
+		_, consts, err := decode(data, values)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if c := consts["w"]; c == nil || len(c.GetRawData()) != 0 || len(c.GetDims()) != 4 {
+			t.Errorf("values %v: weight %v: dims kept, values not read", values, c)
+		}
+		if c := consts["shape"]; c == nil || len(c.GetRawData()) != map[bool]int{false: 0, true: 16}[values] {
+			t.Errorf("values %v: shape vector %v", values, c)
+		}
 	}
 }
 
 // TestImportStops: a node the import cannot express is named with its
 // operator and position, and the layers before it come back.
 func TestImportStops(t *testing.T) {
-	add := model(t, [4]int64{1, 3, 16, 16}, 13, map[string][]int64{"w": {3, 3, 3, 3}},
-		node("Conv", "c1", []string{"x", "w"}, "c", ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1)),
+	sub := model(t, [4]int64{1, 3, 16, 16}, 13, map[string][]int64{"w": {3, 3, 3, 3}, "v": {3, 3, 1, 1}},
+		node("Conv", "c0", []string{"x", "v"}, "x0", ints("kernel_shape", 1, 1)),
+		node("Conv", "c1", []string{"x0", "w"}, "c", ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1)),
 		node("Relu", "r1", []string{"c"}, "a"),
-		node("Add", "/block/Add", []string{"a", "x"}, "y"),
+		node("Sub", "/block/Sub", []string{"a", "x0"}, "y"),
 	)
-	s, _, err := Import(add, "res")
+	s, _, err := Import(sub, "res")
 	var st *Stopped
-	if !errors.As(err, &st) || st.Op != "Add" || st.Position != 3 || st.Node != "/block/Add" || !errors.Is(err, ErrImport) {
+	if !errors.As(err, &st) || st.Op != "Sub" || st.Position != 4 || st.Node != "/block/Sub" || !errors.Is(err, ErrImport) {
 		t.Fatalf("error %v", err)
 	}
-	if s == nil || len(s.Layers) != 2 {
+	if s == nil || len(s.Layers) != 1 {
 		t.Errorf("the layers before the node: %+v", s)
 	}
 	unknown := model(t, [4]int64{1, 3, 16, 16}, 13, nil, node("LpNormalization", "lp", []string{"x"}, "y"))

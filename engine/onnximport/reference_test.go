@@ -176,7 +176,7 @@ for name, ctor in (("resnet18", torchvision.models.resnet18), ("mobilenet_v2", t
         small = {}
         for t in g.graph.initializer:
             v = numpy_helper.to_array(t)
-            if v.size <= 16:
+            if v.size <= 4096:  # maxValues
                 small[t.name] = [float(x) for x in v.flatten()]
         res[key] = {
             "opsets": [[o.domain, o.version] for o in g.opset_import],
@@ -248,7 +248,7 @@ func TestDecodeMatchesONNX(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			m, consts, err := decode(data)
+			m, consts, err := decode(data, true)
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -93,7 +93,8 @@ func TestImportRoundTrip(t *testing.T) {
 }
 
 // tinyModel is an ONNX model of a 3×3 convolution from 3 to 4 channels on
-// a 1×3×16×16 input, then a residual addition the import stops at
+// a 1×3×16×16 input, a 1×1 convolution, and the difference of the two
+// (a join the import stops at)
 // (written with stackfit's binding, whose field numbers are the format's).
 func tinyModel(t *testing.T) []byte {
 	t.Helper()
@@ -105,12 +106,15 @@ func tinyModel(t *testing.T) []byte {
 		return &onnxpb.Attribute{Name: proto.String(name), Kind: proto.Int32(7), Ints: v}
 	}
 	g := &onnxpb.Graph{Name: proto.String("g"),
-		Input:       []*onnxpb.ValueInfo{{Name: proto.String("x"), Type: &onnxpb.ValueType{TensorType: &onnxpb.TensorType{ElemType: proto.Int32(1), Shape: &onnxpb.Shape{Dim: dims}}}}},
-		Initializer: []*onnxpb.Weight{{Name: proto.String("w"), Dims: []int64{4, 3, 3, 3}, ElemType: proto.Int32(1)}},
+		Input: []*onnxpb.ValueInfo{{Name: proto.String("x"), Type: &onnxpb.ValueType{TensorType: &onnxpb.TensorType{ElemType: proto.Int32(1), Shape: &onnxpb.Shape{Dim: dims}}}}},
+		Initializer: []*onnxpb.Weight{{Name: proto.String("w"), Dims: []int64{4, 3, 3, 3}, ElemType: proto.Int32(1)},
+			{Name: proto.String("v"), Dims: []int64{4, 4, 1, 1}, ElemType: proto.Int32(1)}},
 		Node: []*onnxpb.Node{
 			{OpType: proto.String("Conv"), Name: proto.String("stem"), Input: []string{"x", "w"}, Output: []string{"c"},
 				Attribute: []*onnxpb.Attribute{ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1)}},
-			{OpType: proto.String("Add"), Name: proto.String("skip"), Input: []string{"c", "x"}, Output: []string{"y"}},
+			{OpType: proto.String("Conv"), Name: proto.String("body"), Input: []string{"c", "v"}, Output: []string{"d"},
+				Attribute: []*onnxpb.Attribute{ints("kernel_shape", 1, 1)}},
+			{OpType: proto.String("Sub"), Name: proto.String("skip"), Input: []string{"d", "c"}, Output: []string{"y"}},
 		}}
 	data, err := proto.Marshal(&onnxpb.Model{IrVersion: proto.Int64(7), Graph: g, OpsetImport: []*onnxpb.OpsetId{{Version: proto.Int64(13)}}})
 	if err != nil {
@@ -134,7 +138,7 @@ func TestEditorOpensONNX(t *testing.T) {
 	opt, release, code := editorOptions(model, nil, env, IO{Err: &errb})
 	release()
 	if code != ExitOK || opt.Stack == nil || opt.Path != "" || opt.Stack.Name != "cap-inspector" || len(opt.Stack.Layers) != 1 ||
-		!strings.Contains(opt.Notice, `imported the one layer before`) || !strings.Contains(opt.Notice, `node 2, "skip" (Add), where the import stops`) {
+		!strings.Contains(opt.Notice, `imported the one layer before`) || !strings.Contains(opt.Notice, `node 3, "skip" (Sub), where the import stops`) {
 		t.Fatalf("options: code %d, path %q, stack %+v, notice %q, %s", code, opt.Path, opt.Stack, opt.Notice, errb.String())
 	}
 	var e strings.Builder

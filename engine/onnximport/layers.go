@@ -1,0 +1,341 @@
+package onnximport
+
+import (
+	"math"
+
+	"stackfit/engine/onnximport/onnxpb"
+
+	"stackfit/engine"
+)
+
+// activation maps the operators a residual block may apply after its
+// addition to the stack's activations.
+func activation(n *onnxpb.Node) (engine.ActKind, bool) {
+	switch n.GetOpType() {
+	case "Relu":
+		return engine.ActReLU, true
+	case "Sigmoid":
+		return engine.ActSigmoid, true
+	case "Tanh":
+		return engine.ActTanh, true
+	case "HardSwish":
+		return engine.ActHardSwish, true
+	case "Gelu":
+		return engine.ActGELU, true
+	}
+	return 0, false
+}
+
+// hardSigmoid reports whether a HardSigmoid node is PyTorch's
+// (relu6(x + 3)/6: alpha 1/6, beta 1/2; ONNX's defaults are 0.2 and 0.5).
+func hardSigmoid(n *onnxpb.Node) bool {
+	a, bt := attr(n, "alpha"), attr(n, "beta")
+	beta := float32(0.5)
+	if bt != nil {
+		beta = bt.GetF()
+	}
+	return a != nil && math.Abs(float64(a.GetF())-1.0/6) < 1e-6 && beta == 0.5
+}
+
+// count adds the elements of the named initializers to the graph's
+// parameters, or with buffer to its buffers.
+func (b *builder) count(buffer bool, names ...string) {
+	for _, name := range names {
+		d, ok := b.im.dims(name)
+		if !ok || !b.im.initial[name] {
+			continue
+		}
+		n := int64(1)
+		for _, v := range d {
+			n *= v
+		}
+		if buffer {
+			b.buffers += n
+		} else {
+			b.params += n
+		}
+	}
+}
+
+// layer reads graph node k, which reads one computed tensor, as an item;
+// nil for a node that only changes how the next layer reads the map
+// (padding, a transpose to channels-last). It returns the tensor the
+// flow continues with.
+func (b *builder) layer(k int) (*item, string, error) {
+	n := b.g.nodes[k]
+	im := b.im
+	stop := func(why string, args ...any) (*item, string, error) { return nil, "", b.stop(k, why, args...) }
+	op := n.GetOpType()
+	ins := n.GetInput()
+	in := func(i int) string {
+		if i < len(ins) {
+			return ins[i]
+		}
+		return ""
+	}
+	next := n.GetOutput()[0]
+	b.mark(k)
+	nodes := []int{k}
+	var l engine.Layer
+	switch op {
+	case "Conv", "ConvTranspose":
+		w, ok := im.dims(in(1))
+		if !ok || len(w) != 4 {
+			return stop("its weight is not a constant of 4 dimensions")
+		}
+		kern, err := pair(n, "kernel_shape", w[2])
+		if err != nil {
+			return stop("%v", err)
+		}
+		st, err := pair(n, "strides", 1)
+		if err != nil {
+			return stop("%v", err)
+		}
+		d, err := pair(n, "dilations", 1)
+		if err != nil {
+			return stop("%v", err)
+		}
+		p, err := pads(n)
+		if err != nil {
+			return stop("%v", err)
+		}
+		groups := int64(1)
+		if a := attr(n, "group"); a != nil {
+			groups = a.GetI()
+		}
+		if groups < 1 || groups > 1<<31 {
+			return stop("group %d", groups)
+		}
+		l = engine.Layer{Kind: engine.KindConv, Filters: w[0], Kernel: kern, Stride: st, Dilation: d, Pad: p, Groups: groups, NoBias: in(2) == ""}
+		if op == "ConvTranspose" {
+			l.Kind, l.Filters = engine.KindDeconv, w[1]*groups
+			if a := attr(n, "output_padding"); a != nil {
+				if v := a.GetInts(); len(v) == 2 {
+					l.OutPad = engine.Pair{H: v[0], W: v[1]}
+				}
+			}
+		}
+		if !l.NoBias {
+			b.convBias++
+		}
+		b.count(false, in(1), in(2))
+	case "BatchNormalization":
+		l = engine.Layer{Kind: engine.KindNorm, Norm: engine.NormBatch}
+		if a := attr(n, "epsilon"); a != nil {
+			l.Eps = f32(a.GetF())
+		}
+		b.sawNorm = true
+		b.count(false, in(1), in(2))
+		b.count(true, in(3), in(4))
+		b.buffers++ // the step counter PyTorch keeps, which ONNX does not carry
+	case "InstanceNormalization":
+		l = engine.Layer{Kind: engine.KindNorm, Norm: engine.NormInstance, Affine: engine.Off, Eps: 1e-5}
+		if a := attr(n, "epsilon"); a != nil {
+			l.Eps = f32(a.GetF())
+		}
+		if im.initial[in(1)] {
+			l.Affine = engine.On
+			b.count(false, in(1), in(2))
+		}
+		b.sawNorm = true
+	case "LayerNormalization":
+		axis := int64(-1)
+		if a := attr(n, "axis"); a != nil {
+			axis = a.GetI()
+		}
+		if !b.chanLast || (axis != -1 && axis != 3) {
+			return stop("only a layer norm over the channels of a channels-last map (N×H×W×C, axis −1) is read")
+		}
+		l = engine.Layer{Kind: engine.KindNorm, Norm: engine.NormLayer, Eps: 1e-5}
+		if a := attr(n, "epsilon"); a != nil {
+			l.Eps = f32(a.GetF())
+		}
+		b.count(false, in(1), in(2))
+		b.sawNorm = true
+	case "Relu", "Sigmoid", "Tanh", "HardSwish", "Gelu":
+		a, _ := activation(n)
+		l = engine.Layer{Kind: engine.KindAct, Act: a}
+	case "LeakyRelu":
+		l = engine.Layer{Kind: engine.KindAct, Act: engine.ActLeakyReLU, Slope: 0.01}
+		if a := attr(n, "alpha"); a != nil {
+			l.Slope = f32(a.GetF())
+		}
+	case "HardSigmoid":
+		if !hardSigmoid(n) {
+			return stop("only PyTorch's hard sigmoid (alpha 1/6, beta 1/2) is read")
+		}
+		l = engine.Layer{Kind: engine.KindAct, Act: engine.ActHardSigmoid}
+	case "Clip":
+		lo, hi := 0.0, 0.0
+		okLo, okHi := false, false
+		if len(ins) > 2 {
+			lo, okLo = im.scalar(in(1))
+			hi, okHi = im.scalar(in(2))
+		} else if a, c := attr(n, "min"), attr(n, "max"); a != nil && c != nil {
+			lo, hi, okLo, okHi = f32(a.GetF()), f32(c.GetF()), true, true
+		}
+		if !okLo || !okHi || lo != 0 || hi != 6 {
+			return stop("only a clip to 0..6 (relu6) is read")
+		}
+		l = engine.Layer{Kind: engine.KindAct, Act: engine.ActReLU6}
+	case "MaxPool", "AveragePool":
+		kern, err := pair(n, "kernel_shape", 1)
+		if err != nil {
+			return stop("%v", err)
+		}
+		st, err := pair(n, "strides", 1)
+		if err != nil {
+			return stop("%v", err)
+		}
+		p, err := pads(n)
+		if err != nil {
+			return stop("%v", err)
+		}
+		l = engine.Layer{Kind: engine.KindPool, Pool: engine.PoolMax, Kernel: kern, Stride: st, Pad: p}
+		if op == "AveragePool" {
+			l.Pool = engine.PoolAvg
+		}
+		if a := attr(n, "ceil_mode"); a != nil && a.GetI() == 1 {
+			l.Ceil = true
+		}
+	case "GlobalAveragePool":
+		l = engine.Layer{Kind: engine.KindGlobalPool, Pool: engine.PoolAvg}
+	case "GlobalMaxPool":
+		l = engine.Layer{Kind: engine.KindGlobalPool, Pool: engine.PoolMax}
+	case "ReduceMean":
+		axes := attr(n, "axes").GetInts()
+		if axes == nil && in(1) != "" {
+			axes, _ = im.ints(in(1))
+		}
+		keep := attr(n, "keepdims")
+		if len(axes) != 2 || axes[0] != 2 || axes[1] != 3 || (keep != nil && keep.GetI() != 1) || b.chanLast {
+			return stop("only a mean over the height and width that keeps them (axes 2, 3; keepdims 1) is read, as global average pooling")
+		}
+		l = engine.Layer{Kind: engine.KindGlobalPool, Pool: engine.PoolAvg}
+	case "Flatten":
+		l = engine.Layer{Kind: engine.KindFlatten} // to N×features; the stack's flatten gives N×C·H·W×1×1
+	case "Reshape":
+		v, ok := im.intsOf(in(1))
+		switch {
+		case ok && len(v) == 2 && (v[1] == -1 || v[1] > 0):
+			l = engine.Layer{Kind: engine.KindFlatten}
+		case ok && len(v) == 4 && v[1] > 0 && v[2] > 0 && v[3] > 0:
+			l = engine.Layer{Kind: engine.KindReshape, Target: engine.Shape{C: v[1], H: v[2], W: v[3]}}
+		default:
+			return stop("its target shape %v is not N×features or N×C×H×W with fixed sizes", v)
+		}
+	case "Gemm":
+		w, ok := im.dims(in(1))
+		if !ok || len(w) != 2 {
+			return stop("its weight is not a constant matrix")
+		}
+		if a := attr(n, "transA"); a != nil && a.GetI() != 0 {
+			return stop("a transposed input (transA) is not a dense layer")
+		}
+		units := w[1]
+		if a := attr(n, "transB"); a != nil && a.GetI() == 1 {
+			units = w[0]
+		}
+		l = engine.Layer{Kind: engine.KindDense, Filters: units, NoBias: in(2) == ""}
+		b.count(false, in(1), in(2))
+	case "MatMul":
+		w, ok := im.dims(in(1))
+		if !ok || len(w) != 2 || !im.initial[in(1)] {
+			return stop("it multiplies by something other than a weight matrix")
+		}
+		l = engine.Layer{Kind: engine.KindDense, Filters: w[1], NoBias: true, PerPosition: b.chanLast}
+		b.count(false, in(1))
+		// A linear layer on a map (channels last) is a MatMul and an Add
+		// of its bias.
+		if a := b.single(next); a >= 0 && b.g.nodes[a].GetOpType() == "Add" && len(b.g.data[a]) == 1 && !b.visited[a] {
+			an := b.g.nodes[a]
+			bias := an.GetInput()[0]
+			if bias == next {
+				bias = an.GetInput()[1]
+			}
+			if d, ok := im.dims(bias); ok && len(d) == 1 && d[0] == w[1] && im.initial[bias] {
+				l.NoBias = false
+				b.count(false, bias)
+				b.mark(a)
+				nodes = append(nodes, a)
+				next = an.GetOutput()[0]
+			}
+		}
+	case "Dropout":
+		l = engine.Layer{Kind: engine.KindDropout, Rate: 0.5}
+		if a := attr(n, "ratio"); a != nil {
+			l.Rate = f32(a.GetF())
+		} else if r, ok := im.scalar(in(1)); ok {
+			l.Rate = r
+		}
+	case "Pad":
+		var p []int64
+		if a := attr(n, "pads"); a != nil {
+			p = a.GetInts()
+		} else {
+			p, _ = im.ints(in(1))
+		}
+		if mode := attr(n, "mode"); mode != nil && string(mode.GetS()) != "constant" {
+			return stop("only zero padding is read")
+		}
+		if len(p) != 8 || p[0] != 0 || p[1] != 0 || p[4] != 0 || p[5] != 0 || p[2] != p[6] || p[3] != p[7] || p[2] < 0 || p[3] < 0 || p[2] > engine.MaxSpatial || p[3] > engine.MaxSpatial {
+			return stop("pads %v: only the same zero padding on both sides of the height and width is read", p)
+		}
+		b.pad = engine.Pair{H: b.pad.H + p[2], W: b.pad.W + p[3]}
+		return nil, next, nil
+	case "Transpose":
+		perm := attr(n, "perm").GetInts()
+		switch {
+		case !b.chanLast && len(perm) == 4 && perm[0] == 0 && perm[1] == 2 && perm[2] == 3 && perm[3] == 1:
+			b.chanLast = true
+		case b.chanLast && len(perm) == 4 && perm[0] == 0 && perm[1] == 3 && perm[2] == 1 && perm[3] == 2:
+			b.chanLast = false
+		default:
+			return stop("perm %v: only the transposes to channels-last and back (a layer norm or linear layer over the channels) are read", perm)
+		}
+		return nil, next, nil
+	case "Mul":
+		c := in(0)
+		if c == b.g.data[k][0] {
+			c = in(1)
+		}
+		d, ok := im.dims(c)
+		if !ok || !im.initial[c] || !(len(d) == 3 && d[1] == 1 && d[2] == 1 || len(d) == 1 && b.chanLast) {
+			return stop("it multiplies by a constant that is not a learnable factor per channel (C×1×1)")
+		}
+		l = engine.Layer{Kind: engine.KindScale}
+		b.count(false, c)
+	case "Resize", "Upsample":
+		s, ok := im.floats(in(len(ins) - 1))
+		if op == "Resize" {
+			s, ok = im.floats(in(2))
+		}
+		mode := "nearest"
+		if a := attr(n, "mode"); a != nil {
+			mode = string(a.GetS())
+		}
+		if !ok || len(s) != 4 || s[0] != 1 || s[1] != 1 || s[2] < 1 || s[3] < 1 || s[2] != math.Trunc(s[2]) || s[3] != math.Trunc(s[3]) || s[2] > engine.MaxSpatial || s[3] > engine.MaxSpatial {
+			return stop("only an upsampling by whole scale factors given as constants is read (scales %v)", s)
+		}
+		l = engine.Layer{Kind: engine.KindUpsample, Factor: engine.Pair{H: int64(s[2]), W: int64(s[3])}}
+		switch mode {
+		case "nearest":
+		case "linear", "bilinear":
+			l.Upsample = engine.UpBilinear
+		default:
+			return stop("mode %q: nearest and bilinear upsampling are read", mode)
+		}
+	default:
+		return stop("the operator is not imported yet")
+	}
+	if b.pad != (engine.Pair{}) {
+		if (l.Kind == engine.KindConv || l.Kind == engine.KindPool) && l.Pad.Mode == engine.PadExplicit {
+			l.Pad.Size.H += b.pad.H
+			l.Pad.Size.W += b.pad.W
+			b.pad = engine.Pair{}
+		} else {
+			return stop("a Pad node before it: padding is read only before a convolution or pooling")
+		}
+	}
+	return &item{l: l.Normalized(), nodes: nodes}, next, nil
+}

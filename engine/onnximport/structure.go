@@ -1,0 +1,350 @@
+package onnximport
+
+import (
+	"fmt"
+	"slices"
+
+	"stackfit/engine"
+)
+
+// maxDepth bounds how deep constructs nest (a block in a fork in a
+// block ...): deeper graphs are refused, so a hostile one cannot exhaust
+// the stack.
+const maxDepth = engine.MaxDepth - 1
+
+// item is one entry of the stack being built: a layer, or a construct
+// whose body (blocks, gates) or branches (forks) are items of their own.
+type item struct {
+	l     engine.Layer
+	kids  []*item // a block's or gate's body; a fork's branches (KindBranch items)
+	nodes []int   // the graph nodes it was read from
+	out   string  // the tensor it computes
+	// projection: a residual block whose shortcut is a 1×1 convolution.
+	projection bool
+	tap        bool  // a merge reads its output by name
+	from       *item // a named concatenation: the item whose output it joins
+}
+
+// builder walks the graph from the input, turning paths into items.
+type builder struct {
+	im       *importer
+	g        *graph
+	visited  []bool
+	itemOf   map[string]*item // tensor → the item that computes it
+	names    map[string]bool  // names given so far
+	chanLast bool             // the map is channels-last (after a Transpose to N×H×W×C)
+	pad      engine.Pair      // zero padding a Pad node left for the next convolution or pooling
+	convBias int              // convolutions with a bias
+	sawNorm  bool
+	params   int64 // the graph's parameters read into layers
+	buffers  int64 // and its buffers (batch norm's running statistics)
+}
+
+// stop is the error for graph node k.
+func (b *builder) stop(k int, why string, args ...any) error {
+	n := b.g.nodes[k]
+	return &Stopped{Node: n.GetName(), Op: n.GetOpType(), Position: b.g.pos[k], Why: fmt.Sprintf(why, args...)}
+}
+
+// seq reads the path from tensor t up to node end (not included): first
+// node via when via ≥ 0, then wherever the flow goes. It returns the
+// items read and the tensor the path ends with. On an error the items
+// read before it come back.
+func (b *builder) seq(t string, via, end, depth int) ([]*item, string, error) {
+	if b.visited == nil {
+		b.visited = make([]bool, len(b.g.nodes))
+	}
+	var items []*item
+	if depth > maxDepth {
+		return nil, t, b.stop(min(max(via, 0), len(b.g.nodes)-1), "constructs nest more than %d deep", maxDepth)
+	}
+	cur, next := t, via
+	for {
+		if next < 0 {
+			cs := b.g.cons[cur]
+			if len(cs) == 0 {
+				return items, cur, nil
+			}
+			if len(cs) > 1 {
+				its, out, err := b.fanOut(cur, cs, end, depth)
+				if err != nil {
+					return items, cur, err
+				}
+				items, cur = append(items, its...), out
+				continue
+			}
+			next = cs[0]
+		}
+		if next == end {
+			return items, cur, nil
+		}
+		if next > end {
+			return items, cur, b.stop(next, "paths that leave a branch or block before it closes (crossing branches) have no stack-file form")
+		}
+		if b.visited[next] {
+			return items, cur, b.stop(next, "it is reached twice")
+		}
+		k := next
+		next = -1
+		if len(b.g.data[k]) != 1 {
+			return items, cur, b.stop(k, "it merges %d computed tensors where the import expects one flow", len(b.g.data[k]))
+		}
+		it, out, err := b.layer(k)
+		if err != nil {
+			return items, cur, err
+		}
+		if it != nil {
+			it.out = out
+			b.itemOf[out] = it
+			items = append(items, it)
+		}
+		cur = out
+	}
+}
+
+// mark records nodes as read.
+func (b *builder) mark(ks ...int) {
+	for _, k := range ks {
+		b.visited[k] = true
+	}
+}
+
+// single returns the one node that reads t, or −1.
+func (b *builder) single(t string) int {
+	if cs := b.g.cons[t]; len(cs) == 1 {
+		return cs[0]
+	}
+	return -1
+}
+
+// fanOut reads the paths from tensor t, which several nodes read, up to
+// the node where they meet again, as one construct: a residual block
+// (the join adds), a gate or an activation written as a product (it
+// multiplies), a fork, dense links or a named concatenation (it
+// concatenates).
+func (b *builder) fanOut(t string, cs []int, end, depth int) ([]*item, string, error) {
+	j := b.g.join(cs)
+	if j >= len(b.g.nodes) {
+		return nil, t, b.stop(cs[1], "the paths from %q do not meet again: a graph with more than one output is not a stack", t)
+	}
+	if j > end {
+		return nil, t, b.stop(j, "paths that leave a branch or block before it closes have no stack-file form")
+	}
+	jn := b.g.nodes[j]
+	direct := slices.Contains(cs, j)
+	others := slices.DeleteFunc(slices.Clone(cs), func(c int) bool { return c == j })
+	switch jn.GetOpType() {
+	case "Add":
+		if len(cs) != 2 || len(b.g.data[j]) != 2 {
+			break
+		}
+		return b.residual(t, j, direct, others, depth)
+	case "Mul":
+		if len(cs) != 2 || !direct || len(b.g.data[j]) != 2 {
+			break
+		}
+		return b.product(t, j, others[0], depth)
+	case "Concat":
+		if a := attr(jn, "axis"); a == nil || (a.GetI() != 1 && a.GetI() != -3) {
+			return nil, t, b.stop(j, "it concatenates along axis %d; the stack joins maps along the channels (axis 1)", attr(jn, "axis").GetI())
+		}
+		return b.concat(t, j, direct, others, depth)
+	}
+	return nil, t, b.stop(j, "the %d paths from %q meet here, and a join by %s has no stack-file form (residual additions, gate products and concatenations do)", len(cs), t, jn.GetOpType())
+}
+
+// residual reads a residual unit: body(t) + t, or body(t) + projection(t)
+// where the projection is a 1×1 convolution, with batch norm or a bias.
+func (b *builder) residual(t string, j int, direct bool, others []int, depth int) ([]*item, string, error) {
+	unit := &item{l: engine.Layer{Kind: engine.KindBlock, Residual: true}}
+	if direct {
+		body, out, err := b.seq(t, others[0], j, depth+1)
+		if err != nil {
+			return nil, t, err
+		}
+		if !b.g.reads(j, out) || out == t {
+			return nil, t, b.stop(j, "its two inputs are not a body and its input")
+		}
+		unit.kids = body
+	} else {
+		var paths [2][]*item
+		for i, c := range others {
+			p, out, err := b.seq(t, c, j, depth+1)
+			if err != nil {
+				return nil, t, err
+			}
+			if !b.g.reads(j, out) || out == t {
+				return nil, t, b.stop(j, "its two inputs are not a body and a shortcut from one map")
+			}
+			paths[i] = p
+		}
+		// The shortcut is the path that is one 1×1 convolution (and its
+		// norm); torch's residual blocks add it second.
+		sc := -1
+		for i := 1; i >= 0; i-- {
+			if sc < 0 && isProjection(paths[i]) {
+				sc = i
+			}
+		}
+		if sc < 0 {
+			return nil, t, b.stop(j, "neither path into the addition is a projection shortcut (a 1×1 convolution with batch norm, or with a bias and no norm), the one shortcut a residual block adds")
+		}
+		p := paths[sc]
+		if len(p) == 2 && !p[0].l.NoBias || len(p) == 1 && p[0].l.NoBias {
+			return nil, t, b.stop(p[0].nodes[0], "a projection shortcut with batch norm and a bias, or without both, has no stack-file form (a residual block's shortcut has one or the other)")
+		}
+		unit.kids, unit.projection, unit.l.NoShortcutNorm = paths[1-sc], true, len(p) == 1
+		for _, it := range p {
+			unit.nodes = append(unit.nodes, it.nodes...)
+		}
+	}
+	b.mark(j)
+	unit.nodes = append(unit.nodes, j)
+	out := b.g.nodes[j].GetOutput()[0]
+	if k := b.single(out); k >= 0 && len(b.g.data[k]) == 1 && !b.visited[k] {
+		if act, ok := activation(b.g.nodes[k]); ok {
+			unit.l.PostAct, unit.l.HasPostAct = act, true
+			b.mark(k)
+			unit.nodes = append(unit.nodes, k)
+			out = b.g.nodes[k].GetOutput()[0]
+		}
+	}
+	unit.out = out
+	b.itemOf[out] = unit
+	return []*item{unit}, out, nil
+}
+
+// isProjection reports whether a path is a projection shortcut: a 1×1
+// convolution, stride as it may be, no padding or groups, then maybe a
+// batch norm.
+func isProjection(p []*item) bool {
+	if len(p) == 0 || len(p) > 2 {
+		return false
+	}
+	c := p[0].l
+	if c.Kind != engine.KindConv || c.Kernel != engine.Square(1) || c.Groups > 1 || c.Dilation != (engine.Pair{}) ||
+		c.Pad != (engine.Padding{}) || c.Depthwise {
+		return false
+	}
+	return len(p) == 1 || p[1].l.Kind == engine.KindNorm && p[1].l.Norm == engine.NormBatch
+}
+
+// product reads a node that multiplies t by something computed from t:
+// x·sigmoid(x) is SiLU, x·hardsigmoid(x) hard swish, x·(1 + erf(x/√2))
+// then ·0.5 GELU in its expanded form; anything else is a gate whose
+// body computes the factor.
+func (b *builder) product(t string, j, other, depth int) ([]*item, string, error) {
+	out := b.g.nodes[j].GetOutput()[0]
+	act := func(a engine.ActKind, ks ...int) ([]*item, string, error) {
+		b.mark(ks...)
+		it := &item{l: engine.Layer{Kind: engine.KindAct, Act: a}, nodes: ks, out: b.g.nodes[ks[len(ks)-1]].GetOutput()[0]}
+		b.itemOf[it.out] = it
+		return []*item{it}, it.out, nil
+	}
+	chain := b.chain(other, j)
+	ops := make([]string, len(chain))
+	for i, k := range chain {
+		ops[i] = b.g.nodes[k].GetOpType()
+	}
+	switch {
+	case slices.Equal(ops, []string{"Sigmoid"}):
+		return act(engine.ActSiLU, other, j)
+	case slices.Equal(ops, []string{"HardSigmoid"}) && hardSigmoid(b.g.nodes[other]):
+		return act(engine.ActHardSwish, other, j)
+	case slices.Equal(ops, []string{"Div", "Erf", "Add"}):
+		if k := b.single(out); k >= 0 && b.g.nodes[k].GetOpType() == "Mul" && len(b.g.data[k]) == 1 {
+			return act(engine.ActGELU, append(chain, j, k)...)
+		}
+	}
+	body, end, err := b.seq(t, other, j, depth+1)
+	if err != nil {
+		return nil, t, err
+	}
+	if !b.g.reads(j, end) || end == t {
+		return nil, t, b.stop(j, "its two inputs are not a map and a factor computed from it")
+	}
+	b.mark(j)
+	g := &item{l: engine.Layer{Kind: engine.KindGate}, kids: body, nodes: []int{j}, out: out}
+	b.itemOf[out] = g
+	return []*item{g}, out, nil
+}
+
+// chain returns the nodes from k on, each the only reader of the one
+// before, up to (not including) node end; nil where the path branches
+// or reaches end by another way.
+func (b *builder) chain(k, end int) []int {
+	var ks []int
+	for len(ks) < 4 {
+		if len(b.g.data[k]) != 1 || b.visited[k] {
+			return nil
+		}
+		ks = append(ks, k)
+		n := b.single(b.g.nodes[k].GetOutput()[0])
+		if n == end {
+			return ks
+		}
+		if n < 0 {
+			return nil
+		}
+		k = n
+	}
+	return nil
+}
+
+// concat reads the paths from t that a concatenation joins: [t, body(t)]
+// is a unit with dense links, [path(t), t] a named concatenation after
+// the path (a U-Net's skip link), and anything else a fork whose branches
+// are the paths in the concatenation's order (t itself an empty branch).
+func (b *builder) concat(t string, j int, direct bool, others []int, depth int) ([]*item, string, error) {
+	ins := b.g.data[j]
+	out := b.g.nodes[j].GetOutput()[0]
+	if direct && len(others) == 1 && len(ins) == 2 {
+		path, end, err := b.seq(t, others[0], j, depth+1)
+		if err != nil {
+			return nil, t, err
+		}
+		b.mark(j)
+		switch {
+		case ins[0] == t && ins[1] == end:
+			u := &item{l: engine.Layer{Kind: engine.KindBlock, DenseLinks: true}, kids: path, nodes: []int{j}, out: out}
+			b.itemOf[out] = u
+			return []*item{u}, out, nil
+		case ins[0] == end && ins[1] == t:
+			src := b.itemOf[t]
+			if src == nil {
+				return nil, t, b.stop(j, "it concatenates the stack's input, which a concatenation cannot name")
+			}
+			src.tap = true
+			c := &item{l: engine.Layer{Kind: engine.KindConcat}, from: src, nodes: []int{j}, out: out}
+			b.itemOf[out] = c
+			return append(path, c), out, nil
+		}
+		return nil, t, b.stop(j, "its inputs are not the map and a path from it")
+	}
+	fork := &item{l: engine.Layer{Kind: engine.KindFork}, nodes: []int{j}, out: out}
+	branches := make([]*item, len(ins))
+	for _, c := range others {
+		path, end, err := b.seq(t, c, j, depth+1)
+		if err != nil {
+			return nil, t, err
+		}
+		i := slices.Index(ins, end)
+		if i < 0 || branches[i] != nil {
+			return nil, t, b.stop(j, "a path from %q does not end in one of its inputs", t)
+		}
+		branches[i] = &item{l: engine.Layer{Kind: engine.KindBranch}, kids: path}
+	}
+	for i, in := range ins {
+		switch {
+		case branches[i] != nil:
+		case in == t:
+			branches[i] = &item{l: engine.Layer{Kind: engine.KindBranch}}
+		default:
+			return nil, t, b.stop(j, "its input %q does not come from the map %q the paths start at", in, t)
+		}
+	}
+	b.mark(j)
+	fork.kids = branches
+	b.itemOf[out] = fork
+	return []*item{fork}, out, nil
+}
