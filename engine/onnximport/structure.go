@@ -23,6 +23,7 @@ type item struct {
 	projection bool
 	tap        bool  // a merge reads its output by name
 	from       *item // a named concatenation: the item whose output it joins
+	span       span  // a branch: the concatenation's inputs it fills
 }
 
 // builder walks the graph from the input, turning paths into items.
@@ -38,6 +39,9 @@ type builder struct {
 	sawNorm  bool
 	params   int64 // the graph's parameters read into layers
 	buffers  int64 // and its buffers (batch norm's running statistics)
+	// spans are the nested forks' outputs: the run of inputs of the
+	// flattened concatenation each stands for.
+	spans map[string]span
 }
 
 // stop is the error for graph node k.
@@ -133,6 +137,12 @@ func (b *builder) fanOut(t string, cs []int, end, depth int) ([]*item, string, e
 	jn := b.g.nodes[j]
 	direct := slices.Contains(cs, j)
 	others := slices.DeleteFunc(slices.Clone(cs), func(c int) bool { return c == j })
+	if j == end && jn.GetOpType() == "Concat" {
+		// The paths meet at the concatenation that closes the enclosing
+		// branch: the exporter flattened cat([a, cat([b, c])]) into one
+		// node (Inception's modules).
+		return b.nested(t, j, direct, others, depth)
+	}
 	switch jn.GetOpType() {
 	case "Add":
 		if len(cs) != 2 || len(b.g.data[j]) != 2 {
@@ -322,21 +332,13 @@ func (b *builder) concat(t string, j int, direct bool, others []int, depth int) 
 		return nil, t, b.stop(j, "its inputs are not the map and a path from it")
 	}
 	fork := &item{l: engine.Layer{Kind: engine.KindFork}, nodes: []int{j}, out: out}
-	branches := make([]*item, len(ins))
-	for _, c := range others {
-		path, end, err := b.seq(t, c, j, depth+1)
-		if err != nil {
-			return nil, t, err
-		}
-		i := slices.Index(ins, end)
-		if i < 0 || branches[i] != nil {
-			return nil, t, b.stop(j, "a path from %q does not end in one of its inputs", t)
-		}
-		branches[i] = &item{l: engine.Layer{Kind: engine.KindBranch}, kids: path}
+	branches, err := b.branches(t, j, others, depth)
+	if err != nil {
+		return nil, t, err
 	}
 	for i, in := range ins {
 		switch {
-		case branches[i] != nil:
+		case branches[i] != nil || b.covered(branches, i):
 		case in == t:
 			branches[i] = &item{l: engine.Layer{Kind: engine.KindBranch}}
 		default:
@@ -344,7 +346,97 @@ func (b *builder) concat(t string, j int, direct bool, others []int, depth int) 
 		}
 	}
 	b.mark(j)
-	fork.kids = branches
+	fork.kids = slices.DeleteFunc(branches, func(it *item) bool { return it == nil })
+	b.itemOf[out] = fork
+	return []*item{fork}, out, nil
+}
+
+// span is the run of a concatenation's inputs, first to last, that one
+// branch fills: one input, or several where the branch ends in a nested
+// fork.
+type span struct{ lo, hi int }
+
+// branches reads the paths from t that start at nodes cs and end in
+// inputs of concatenation j, as branches placed at the first input each
+// fills (nil elsewhere). A path that ends in a nested fork fills the run
+// of inputs the fork stands for.
+func (b *builder) branches(t string, j int, cs []int, depth int) ([]*item, error) {
+	ins := b.g.data[j]
+	out := make([]*item, len(ins))
+	for _, c := range cs {
+		path, end, err := b.seq(t, c, j, depth+1)
+		if err != nil {
+			return nil, err
+		}
+		sp, ok := b.spans[end]
+		if !ok {
+			i := slices.Index(ins, end)
+			if i < 0 {
+				return nil, b.stop(j, "a path from %q does not end in one of its inputs", t)
+			}
+			sp = span{i, i}
+		}
+		if out[sp.lo] != nil || b.covered(out, sp.lo) {
+			return nil, b.stop(j, "two paths from %q end in its input %d", t, sp.lo+1)
+		}
+		out[sp.lo] = &item{l: engine.Layer{Kind: engine.KindBranch}, kids: path, span: sp}
+	}
+	return out, nil
+}
+
+// covered reports whether input i is filled by a branch placed at an
+// earlier input (one ending in a nested fork).
+func (b *builder) covered(branches []*item, i int) bool {
+	for k := range i {
+		if br := branches[k]; br != nil && br.span.hi >= i {
+			return true
+		}
+	}
+	return false
+}
+
+// nested reads the paths from t that end in a run of adjacent inputs of
+// concatenation j, which also joins paths from outside: a fork whose
+// output stands for those inputs (a name no node computes, kept in
+// b.spans); the enclosing concatenation places it.
+func (b *builder) nested(t string, j int, direct bool, others []int, depth int) ([]*item, string, error) {
+	if a := attr(b.g.nodes[j], "axis"); a == nil || (a.GetI() != 1 && a.GetI() != -3) {
+		return nil, t, b.stop(j, "it concatenates along axis %d; the stack joins maps along the channels (axis 1)", attr(b.g.nodes[j], "axis").GetI())
+	}
+	ins := b.g.data[j]
+	branches, err := b.branches(t, j, others, depth)
+	if err != nil {
+		return nil, t, err
+	}
+	if direct {
+		for i, in := range ins {
+			if in == t && branches[i] == nil && !b.covered(branches, i) {
+				branches[i] = &item{l: engine.Layer{Kind: engine.KindBranch}, span: span{i, i}}
+			}
+		}
+	}
+	sp := span{lo: -1}
+	for i, br := range branches {
+		if br == nil {
+			continue
+		}
+		if sp.lo >= 0 && i != sp.hi+1 {
+			return nil, t, b.stop(j, "the paths from %q end in inputs %d and %d with another between them: a nested concatenation's inputs must be adjacent", t, sp.hi+1, i+1)
+		}
+		if sp.lo < 0 {
+			sp.lo = i
+		}
+		sp.hi = br.span.hi
+	}
+	if sp.lo < 0 {
+		return nil, t, b.stop(j, "no path from %q ends in it", t)
+	}
+	out := fmt.Sprintf("\x00%d:%d-%d", j, sp.lo, sp.hi)
+	fork := &item{l: engine.Layer{Kind: engine.KindFork}, kids: slices.DeleteFunc(branches, func(it *item) bool { return it == nil }), out: out}
+	if b.spans == nil {
+		b.spans = map[string]span{}
+	}
+	b.spans[out] = sp
 	b.itemOf[out] = fork
 	return []*item{fork}, out, nil
 }

@@ -1,0 +1,62 @@
+package onnximport
+
+import (
+	"testing"
+
+	"google.golang.org/protobuf/proto"
+
+	"stackfit/engine"
+	"stackfit/engine/onnximport/onnxpb"
+)
+
+// axis1 is a Concat's axis attribute: the channels.
+func axis1() *onnxpb.Attribute {
+	return &onnxpb.Attribute{Name: proto.String("axis"), Kind: proto.Int32(2), I: proto.Int64(1)}
+}
+
+// TestImportFlattenedConcat: torch.cat([a(x), torch.cat([c(y), d(y)])])
+// with y = b(x), which PyTorch's exporter writes as one three-input Concat
+// (Inception v3's modules, Szegedy et al. 2016, Figure 6), is a fork of
+// two branches whose second ends in a nested fork. Counts by common
+// practice: 1×1 convolutions without bias, 4·2 + 4·2 + 2·3 + 2·5 weights.
+func TestImportFlattenedConcat(t *testing.T) {
+	w := map[string][]int64{"wa": {2, 4, 1, 1}, "wb": {2, 4, 1, 1}, "wc": {3, 2, 1, 1}, "wd": {5, 2, 1, 1}}
+	cat := node("Concat", "/m/Concat", []string{"a", "c", "d"}, "z")
+	cat.Attribute = append(cat.Attribute, axis1())
+	data := model(t, [4]int64{1, 4, 8, 8}, 13, w,
+		node("Conv", "/m/a/Conv", []string{"x", "wa"}, "a", ints("kernel_shape", 1, 1)),
+		node("Conv", "/m/b/Conv", []string{"x", "wb"}, "y", ints("kernel_shape", 1, 1)),
+		node("Conv", "/m/c/Conv", []string{"y", "wc"}, "c", ints("kernel_shape", 1, 1)),
+		node("Conv", "/m/d/Conv", []string{"y", "wd"}, "d", ints("kernel_shape", 1, 1)),
+		cat,
+	)
+	s, _, err := Import(data, "flat")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Layers) != 1 || s.Layers[0].Kind != engine.KindFork || len(s.Layers[0].Body) != 2 {
+		t.Fatalf("layers %+v", s.Layers)
+	}
+	second := s.Layers[0].Body[1].Body
+	if len(second) != 2 || second[1].Kind != engine.KindFork || len(second[1].Body) != 2 {
+		t.Fatalf("second branch %+v", second)
+	}
+	r := engine.Evaluate(s)
+	if r.Errors != 0 || r.Totals.Params != 8+8+6+10 || r.Output != (engine.Shape{C: 10, H: 8, W: 8}) {
+		t.Errorf("params %d, output %v, %v", r.Totals.Params, r.Output, r.Diags)
+	}
+	// The inner paths must fill adjacent inputs: cat([c(y), a(x), d(y)])
+	// has no stack-file form.
+	cat2 := node("Concat", "/m/Concat", []string{"c", "a", "d"}, "z")
+	cat2.Attribute = append(cat2.Attribute, axis1())
+	data = model(t, [4]int64{1, 4, 8, 8}, 13, w,
+		node("Conv", "/m/a/Conv", []string{"x", "wa"}, "a", ints("kernel_shape", 1, 1)),
+		node("Conv", "/m/b/Conv", []string{"x", "wb"}, "y", ints("kernel_shape", 1, 1)),
+		node("Conv", "/m/c/Conv", []string{"y", "wc"}, "c", ints("kernel_shape", 1, 1)),
+		node("Conv", "/m/d/Conv", []string{"y", "wd"}, "d", ints("kernel_shape", 1, 1)),
+		cat2,
+	)
+	if _, _, err := Import(data, "crossed"); err == nil {
+		t.Errorf("interleaved nested inputs imported")
+	}
+}
