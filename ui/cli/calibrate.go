@@ -84,14 +84,14 @@ func runCalibrate(args []string, std IO) int {
 	cpu := fs.Bool("cpu", false, "")
 	pos, err := parseInterleaved(fs, args)
 	if errors.Is(err, flag.ErrHelp) {
-		fmt.Fprint(std.Out, commandUsage["calibrate"])
+		fmt.Fprint(std.Out, commandUsage()["calibrate"])
 		return ExitOK
 	}
 	if err != nil || len(pos) < 1 || len(pos) > 2 {
 		if err == nil {
 			err = errors.New("give the stack file and the measurement (a file, or - or nothing for standard input)")
 		}
-		fmt.Fprintf(std.Err, "stackfit calibrate: %s\n%s", textsafe.Text(err.Error()), commandUsage["calibrate"])
+		fmt.Fprintf(std.Err, "stackfit calibrate: %s\n%s", textsafe.Text(err.Error()), commandUsage()["calibrate"])
 		return ExitUsage
 	}
 	file := pos[0]

@@ -11,6 +11,7 @@ import (
 	"io"
 	"os"
 	"strings"
+	"sync"
 
 	"stackfit/engine"
 	"stackfit/engine/examples"
@@ -72,7 +73,7 @@ func Run(args []string, std IO) int {
 		return runImport(args[1:], std)
 	case "help", "-h", "--help", "-help":
 		if len(args) > 1 && args[1] != "help" && !strings.HasPrefix(args[1], "-") {
-			u, ok := commandUsage[args[1]]
+			u, ok := commandUsage()[args[1]]
 			if !ok {
 				fmt.Fprintf(std.Err, "stackfit help: no command is called %q%s; the commands: %s\n", args[1], didYouMean(args[1]), strings.Join(commands, ", "))
 				return ExitUsage
@@ -80,7 +81,7 @@ func Run(args []string, std IO) int {
 			fmt.Fprint(std.Out, u)
 			return ExitOK
 		}
-		fmt.Fprint(std.Out, usage)
+		fmt.Fprint(std.Out, usage())
 		return ExitOK
 	}
 	if len(args) == 1 && !strings.HasPrefix(args[0], "-") && (strings.ContainsAny(args[0], "./") || fileExists(args[0])) {
@@ -94,7 +95,7 @@ func Run(args []string, std IO) int {
 		}
 		return runEditor(args[0], nil, std)
 	}
-	fmt.Fprintf(std.Err, "stackfit: unknown command %q%s (commands: %s; a stack file name needs its extension, e.g. net.yaml)\n\n%s", args[0], didYouMean(args[0]), strings.Join(commands, ", "), usage)
+	fmt.Fprintf(std.Err, "stackfit: unknown command %q%s (commands: %s; a stack file name needs its extension, e.g. net.yaml)\n\n%s", args[0], didYouMean(args[0]), strings.Join(commands, ", "), usage())
 	return ExitUsage
 }
 
@@ -129,7 +130,11 @@ func fileExists(p string) bool {
 	return err == nil
 }
 
-var usage = `stackfit — size a convolutional network before you write it
+// usage is the top-level help. It and commandUsage are built on first use,
+// not at start-up: the training flags' lines come from the engine's
+// settings, and a report has no need of them.
+var usage = sync.OnceValue(func() string {
+	return `stackfit — size a convolutional network before you write it
 
 usage:
   stackfit                        edit the built-in example (fruit grader);
@@ -149,9 +154,12 @@ FILE may be '-' to read the stack from standard input (report, check, export).
 exit status: 0 clean · 1 the stack has errors or does not fit the budget
 (check --strict: or has warnings) · 2 bad usage or unreadable input
 ` + trainingUsage()
+})
 
-var commandUsage = map[string]string{
-	"example": `usage: stackfit example [NAME] [-o FILE]
+// commandUsage returns each command's help, by command name.
+var commandUsage = sync.OnceValue(func() map[string]string {
+	return map[string]string{
+		"example": `usage: stackfit example [NAME] [-o FILE]
 
 Without NAME, lists the built-in example stacks. With NAME, opens it in the
 editor (unsaved until you pick a file), or prints its stack file when not
@@ -163,7 +171,7 @@ examples:
   stackfit example
   stackfit example fruit-grader-board -o board.yaml
 `,
-	"report": `usage: stackfit report FILE [flags]
+		"report": `usage: stackfit report FILE [flags]
 
 Prints every layer's output size, parameters, MACs and receptive field,
 the totals and the training-memory estimate.
@@ -178,7 +186,7 @@ examples:
   stackfit report net.yaml --format json -o net.json
   cat net.yaml | stackfit report - --batch 512 --budget 80GiB
 ` + trainingUsage(),
-	"check": `usage: stackfit check FILE [flags]
+		"check": `usage: stackfit check FILE [flags]
 
 For the CI of a model repository: prints each error, each warning and the
 memory verdict, one per line with the layer's path, and exits 0 when clean,
@@ -191,7 +199,7 @@ examples:
   stackfit check net.yaml --budget 24GiB
   stackfit check net.yaml --budget auto --strict
 ` + trainingUsage(),
-	"export": `usage: stackfit export FILE [flags]
+		"export": `usage: stackfit export FILE [flags]
 
 Writes a self-contained Python module with one nn.Module class for the
 stack (blocks, residual shortcuts, concatenations and crops included) and a
@@ -208,7 +216,7 @@ beside the measured peak, and a line stackfit calibrate reads.
 examples:
   stackfit export net.yaml --to pytorch -o net.py
 ` + trainingUsage(),
-	"import": `usage: stackfit import MODEL.onnx [-o NET.yaml] [--partial]
+		"import": `usage: stackfit import MODEL.onnx [-o NET.yaml] [--partial]
 
 Reads an ONNX model (torch.onnx.export writes them) into a stack file, one
 layer per operator, named after the graph's nodes. This version reads
@@ -225,7 +233,7 @@ Export with the batch norms kept:
 examples:
   stackfit import net.onnx -o net.yaml
 `,
-	"calibrate": `usage: stackfit calibrate FILE [MEASUREMENT]
+		"calibrate": `usage: stackfit calibrate FILE [MEASUREMENT]
 
 Sets the training section's workspace and overhead in FILE to what a
 measurement on the training box found: MEASUREMENT is the output of the
@@ -239,7 +247,8 @@ examples:
   stackfit export net.yaml -o net.py
   python net.py --measure --batch 64 --precision bf16-mixed | stackfit calibrate net.yaml
 `,
-}
+	}
+})
 
 // runExample lists, opens or writes a built-in example.
 func runExample(args []string, std IO) int {
@@ -248,7 +257,7 @@ func runExample(args []string, std IO) int {
 	out := fs.String("o", "", "")
 	pos, err := parseInterleaved(fs, args)
 	if errors.Is(err, flag.ErrHelp) {
-		fmt.Fprint(std.Out, commandUsage["example"])
+		fmt.Fprint(std.Out, commandUsage()["example"])
 		return ExitOK
 	}
 	if err != nil || len(pos) > 1 {
@@ -333,7 +342,7 @@ func newCommand(name string, std IO) *command {
 func (c *command) parse(args []string) (int, bool) {
 	pos, err := parseInterleaved(c.fs, args)
 	if errors.Is(err, flag.ErrHelp) {
-		fmt.Fprint(c.std.Out, commandUsage[c.name])
+		fmt.Fprint(c.std.Out, commandUsage()[c.name])
 		return ExitOK, true
 	}
 	if err != nil {

@@ -76,14 +76,14 @@ func runImport(args []string, std IO) int {
 	partial := fs.Bool("partial", false, "")
 	pos, err := parseInterleaved(fs, args)
 	if errors.Is(err, flag.ErrHelp) {
-		fmt.Fprint(std.Out, commandUsage["import"])
+		fmt.Fprint(std.Out, commandUsage()["import"])
 		return ExitOK
 	}
 	if err != nil || len(pos) != 1 {
 		if err == nil {
 			err = errors.New("give one ONNX model")
 		}
-		fmt.Fprintf(std.Err, "stackfit import: %s\n%s", textsafe.Text(err.Error()), commandUsage["import"])
+		fmt.Fprintf(std.Err, "stackfit import: %s\n%s", textsafe.Text(err.Error()), commandUsage()["import"])
 		return ExitUsage
 	}
 	model := pos[0]
