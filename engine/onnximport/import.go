@@ -133,6 +133,9 @@ func (im *importer) model(m *onnxpb.Model, consts map[string]*onnxpb.Tensor, nam
 	s := &engine.Stack{Name: name, Input: in}
 	if err != nil {
 		s.Layers = b.finish(s, items)
+		if werr := writable(s); werr != nil {
+			s.Layers = nil // the layers before the stop are past a limit: none are kept
+		}
 		return s, im.res, err
 	}
 	for i, seen := range b.visited {
@@ -142,6 +145,9 @@ func (im *importer) model(m *onnxpb.Model, consts map[string]*onnxpb.Tensor, nam
 	}
 	s.Layers = b.finish(s, items)
 	im.res.Read = im.res.Nodes
+	if err := writable(s); err != nil {
+		return nil, nil, err
+	}
 	if err := b.verify(s); err != nil {
 		return nil, nil, err
 	}
