@@ -99,6 +99,7 @@ func editorOptions(path string, builtin []byte, env environment, std IO) (editor
 			return opt, release, ExitUsage
 		}
 		opt.Stack, opt.Path, importNote = s, "", note
+		opt.SaveName = strings.TrimSuffix(path, filepath.Ext(path)) + ".yaml"
 		path = ""
 	case path == "":
 		s, err := stackfile.Load(builtin)

@@ -124,7 +124,8 @@ func tinyModel(t *testing.T) []byte {
 }
 
 // TestEditorOpensONNX: the editor opens an .onnx file as a new, unsaved
-// stack named after it; a node the import stops at keeps the layers
+// stack named after it, whose save-as offers the model's name as a stack
+// file; a node the import stops at keeps the layers
 // before it and the start-up notice says so. The command refuses the
 // same model without --partial.
 func TestEditorOpensONNX(t *testing.T) {
@@ -137,7 +138,7 @@ func TestEditorOpensONNX(t *testing.T) {
 	var errb strings.Builder
 	opt, release, code := editorOptions(model, nil, env, IO{Err: &errb})
 	release()
-	if code != ExitOK || opt.Stack == nil || opt.Path != "" || opt.Stack.Name != "cap-inspector" || len(opt.Stack.Layers) != 1 ||
+	if code != ExitOK || opt.Stack == nil || opt.Path != "" || opt.SaveName != filepath.Join(dir, "cap-inspector.yaml") || opt.Stack.Name != "cap-inspector" || len(opt.Stack.Layers) != 1 ||
 		!strings.Contains(opt.Notice, `imported the one layer before`) || !strings.Contains(opt.Notice, `node 3, "skip" (Sub), where the import stops`) {
 		t.Fatalf("options: code %d, path %q, stack %+v, notice %q, %s", code, opt.Path, opt.Stack, opt.Notice, errb.String())
 	}

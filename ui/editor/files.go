@@ -14,10 +14,19 @@ import (
 // save writes the stack to its file, or asks for one.
 func (m *Model) save() tea.Cmd {
 	if m.file.path == "" {
-		m.openPrompt(promptSaveAs, "save as", "net.yaml")
+		m.openPrompt(promptSaveAs, "save as", m.untitledName())
 		return nil
 	}
 	return m.saveTo(m.file.path)
+}
+
+// untitledName is the file name save-as offers for a stack with no file
+// yet: the imported model's own name as a stack file, else net.yaml.
+func (m *Model) untitledName() string {
+	if m.file.saveName != "" {
+		return m.file.saveName
+	}
+	return "net.yaml"
 }
 
 // saveTo writes the stack to path atomically; the old file stays whole if

@@ -164,3 +164,20 @@ func TestTwoEditorsOneFile(t *testing.T) {
 		t.Error("undo after a reload did not bring the edit back")
 	}
 }
+
+// TestSaveNameOffered: a stack with no file yet (an imported model) offers
+// the name it was opened under as a stack file, on save and on save-as;
+// without one, net.yaml.
+func TestSaveNameOffered(t *testing.T) {
+	for _, tt := range []struct{ saveName, want string }{{"models/cap-inspector.yaml", "models/cap-inspector.yaml"}, {"", "net.yaml"}} {
+		for _, keys := range [][]string{{"w"}, {"W"}} {
+			m := New(Options{Stack: &engine.Stack{Name: "cap-inspector", Input: engine.Shape{C: 3, H: 32, W: 32}}, SaveName: tt.saveName,
+				Keys: keymap.DefaultKeyMap(), Styles: styles.DefaultStyles(), Files: memFiles{}})
+			m.Update(tea.WindowSizeMsg{Width: 100, Height: 30})
+			press(m, keys...)
+			if m.Mode() != modePrompt || promptOf(m).Value() != tt.want {
+				t.Errorf("save name %q, keys %v: mode %v, offered %q; want %q", tt.saveName, keys, m.Mode(), promptOf(m).Value(), tt.want)
+			}
+		}
+	}
+}

@@ -21,6 +21,10 @@ import (
 type Options struct {
 	Stack *engine.Stack // the stack to edit; nil starts an empty one
 	Path  string        // where Save writes; "" asks on first save
+	// SaveName is the file name save-as offers while Path is "" (an
+	// imported model offers its own name as a stack file); "" offers
+	// net.yaml.
+	SaveName string
 	// Base is the file's content as it was read (nil for a new file): a
 	// save checks that the file still holds it and keeps its comments.
 	Base    []byte
@@ -126,7 +130,9 @@ type Model struct {
 // or wrote there, and the journal that keeps unsaved edits.
 type fileState struct {
 	path string
-	base []byte // the file's content as last read or written; nil when never
+	// saveName is what save-as offers while path is "".
+	saveName string
+	base     []byte // the file's content as last read or written; nil when never
 	// unprotected: the last journal write failed, so a crash would lose
 	// the unsaved edits; the header says so until a write succeeds.
 	unprotected bool
@@ -167,7 +173,7 @@ func New(opt Options) *Model {
 		keys:   opt.Keys,
 		st:     opt.Styles,
 		stack:  opt.Stack,
-		file:   fileState{path: opt.Path, base: opt.Base, journalFor: opt.JournalFor, files: opt.Files, keysFile: opt.KeysPath},
+		file:   fileState{path: opt.Path, saveName: opt.SaveName, base: opt.Base, journalFor: opt.JournalFor, files: opt.Files, keysFile: opt.KeysPath},
 		tree:   stackTree{anchor: -1, folded: map[string]bool{}, opened: map[string]bool{}},
 		nums:   numbers{assume: engine.DefaultAssumptions()},
 		width:  80,

@@ -136,7 +136,7 @@ func (m *Model) normal(msg tea.KeyMsg) tea.Cmd {
 	case key.Matches(msg, k.SaveAs):
 		name := m.file.path
 		if name == "" {
-			name = "net.yaml"
+			name = m.untitledName()
 		}
 		m.openPrompt(promptSaveAs, "save as", name)
 	case key.Matches(msg, k.Open):
