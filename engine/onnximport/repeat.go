@@ -2,18 +2,46 @@ package onnximport
 
 import (
 	"fmt"
+	"slices"
 	"strings"
 
 	"stackfit/engine"
 )
 
-// finish turns the items read into the stack's layers: consecutive
-// identical units merge into one block with a repeat count, the
+// finish turns the items read into the stack's layers: repeated units
+// fold into blocks with repeat counts and relative widths, one-unit
+// stages read from one module become blocks of one repeat, the
 // constructs and weighted layers get names from the graph's node names,
-// and the flattens a person would not write are left out.
+// and the flattens a person would not write are left out. The folded
+// stack must compute what the unfolded one does, row for row; where it
+// does not, the simpler merge of identical repeats is kept, and where
+// even that differs, the items as read.
 func (b *builder) finish(s *engine.Stack, items []*item) []engine.Layer {
-	items = b.merge(items)
+	f := newFolder(s, items)
+	merged, plain := cloneItems(items), cloneItems(items)
+	tries := []func() []*item{
+		func() []*item { return f.groupModules(b, f.fold(items, 0)) },
+		func() []*item { return b.merge(merged) },
+		func() []*item { return plain },
+	}
+	var ls []engine.Layer
+	for i, try := range tries {
+		b.names = map[string]bool{}
+		ls = b.layers(s, f, try())
+		if i == len(tries)-1 || f.sameRows(s, ls) {
+			break
+		}
+	}
+	return ls
+}
+
+// layers names the items and builds their layers.
+func (b *builder) layers(s *engine.Stack, f *folder, items []*item) []engine.Layer {
 	for _, it := range items {
+		if g, ok := f.group[it]; ok {
+			it.l.Name = b.unique(sanitise(g))
+			continue
+		}
 		if it.tap || it.l.Kind.HasWeights() || it.l.Kind == engine.KindBlock || it.l.Kind == engine.KindFork || it.l.Kind == engine.KindGate {
 			it.l.Name = b.name(it)
 		}
@@ -117,15 +145,22 @@ func allNodes(it *item) []int {
 // name names an item after its graph nodes: a layer after the module its
 // node belongs to ("/layer1/layer1.0/conv1/Conv" → conv1), a construct
 // after the deepest module holding all its nodes (layer1.0's nodes →
-// layer1_0, the merged repeats of layer1 → layer1), sanitised to the
-// stack file's rules and made unique.
+// layer1-0, the merged repeats of layer1 → layer1). A construct that holds
+// only some of that module's parts is named after the first and last of
+// them (features.2 to features.3 → features-2-3). The name is sanitised
+// to the stack file's rules and made unique.
 func (b *builder) name(it *item) string {
-	var common []string
-	for i, k := range allNodes(it) {
+	split := func(k int) []string {
 		parts := strings.FieldsFunc(b.g.nodes[k].GetName(), func(r rune) bool { return r == '/' })
 		if len(parts) > 1 {
 			parts = parts[:len(parts)-1] // the operator's own part
 		}
+		return parts
+	}
+	ns := allNodes(it)
+	var common []string
+	for i, k := range ns {
+		parts := split(k)
 		if i == 0 {
 			common = parts
 			continue
@@ -139,7 +174,42 @@ func (b *builder) name(it *item) string {
 	if len(common) == 0 {
 		return ""
 	}
-	return b.unique(sanitise(common[len(common)-1]))
+	last := common[len(common)-1]
+	if isConstruct(it.l.Kind) {
+		// the module's parts below common that the item holds, in order
+		next := func(k int) string {
+			if parts := split(k); len(parts) > len(common) && slices.Equal(parts[:len(common)], common) {
+				return parts[len(common)]
+			}
+			return ""
+		}
+		held := map[string]bool{}
+		var first, end string
+		lo, hi := len(b.g.nodes), -1
+		for _, k := range ns {
+			if p := next(k); p != "" {
+				held[p] = true
+				if k < lo {
+					lo, first = k, p
+				}
+				if k > hi {
+					hi, end = k, p
+				}
+			}
+		}
+		whole := true
+		for k := range b.g.nodes {
+			if p := next(k); p != "" && !held[p] {
+				whole = false
+				break
+			}
+		}
+		if !whole && first != end {
+			tail := func(p string) string { return strings.TrimPrefix(p, last+".") }
+			return b.unique(sanitise(last + "." + tail(first) + "." + tail(end)))
+		}
+	}
+	return b.unique(sanitise(last))
 }
 
 // unique makes a name unique among those given.
@@ -156,23 +226,39 @@ func (b *builder) unique(s string) string {
 }
 
 // sanitise keeps what the stack file's names allow (letters, digits, '_'
-// and '-', starting with a letter), other runs becoming one '_'.
+// and '-', starting with a letter): a module path's dots become '-' and
+// other runs of what is not allowed one '_'. A name too long for the
+// stack file (with room left for a suffix that makes it unique) ends at
+// the last whole word that fits.
 func sanitise(name string) string {
 	var sb strings.Builder
+	sep := byte(0)
 	for _, r := range name {
-		if sb.Len() >= engine.MaxNameLen-4 {
-			break
-		}
 		switch {
 		case r < 128 && (r >= 'a' && r <= 'z' || r >= 'A' && r <= 'Z' || r >= '0' && r <= '9'), r == '_', r == '-':
+			if sb.Len() == 0 && !(r >= 'a' && r <= 'z' || r >= 'A' && r <= 'Z') {
+				continue // a name starts with a letter
+			}
+			if sep != 0 {
+				sb.WriteByte(sep)
+				sep = 0
+			}
 			sb.WriteRune(r)
 		case sb.Len() > 0:
-			sb.WriteByte('_')
+			if r == '.' && sep == 0 {
+				sep = '-'
+			} else {
+				sep = '_'
+			}
 		}
 	}
 	s := strings.Trim(sb.String(), "_-")
-	for len(s) > 0 && !(s[0] >= 'a' && s[0] <= 'z' || s[0] >= 'A' && s[0] <= 'Z') {
-		s = s[1:]
+	if limit := engine.MaxNameLen - 4; len(s) > limit {
+		cut := strings.LastIndexAny(s[:limit+1], "_-")
+		if cut <= 0 {
+			cut = limit // one word longer than a name: nothing better to cut at
+		}
+		s = strings.Trim(s[:cut], "_-")
 	}
 	return s
 }
