@@ -46,6 +46,13 @@ func (im *importer) graph(g *onnxpb.Graph, x string) (*graph, error) {
 			for _, o := range n.GetOutput() {
 				im.consts[o] = &onnxpb.Tensor{} // folded
 			}
+			if ins := n.GetInput(); op == "Identity" && len(ins) == 1 && im.initial[ins[0]] {
+				// The exporter routes a weight shared between layers (or
+				// equal folded values it deduplicated) through Identity:
+				// the output is that weight, counted again by each layer
+				// that reads it.
+				im.consts[n.GetOutput()[0]], im.initial[n.GetOutput()[0]] = im.consts[ins[0]], true
+			}
 			if len(n.GetOutput()) == 1 {
 				im.fold(n)
 			}

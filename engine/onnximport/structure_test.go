@@ -60,3 +60,23 @@ func TestImportFlattenedConcat(t *testing.T) {
 		t.Errorf("interleaved nested inputs imported")
 	}
 }
+
+// TestImportSharedWeight: an export routes a weight that two layers use
+// (or equal folded values it deduplicated) through Identity; each layer
+// counts it, as the module it came from does (common practice: PyTorch's
+// exporter writes Identity for a tensor read under a second name). 4·4·3·3
+// weights twice.
+func TestImportSharedWeight(t *testing.T) {
+	data := model(t, [4]int64{1, 4, 8, 8}, 13, map[string][]int64{"w": {4, 4, 3, 3}},
+		node("Conv", "/a/Conv", []string{"x", "w"}, "c", ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1)),
+		node("Identity", "Identity_0", []string{"w"}, "w2"),
+		node("Conv", "/b/Conv", []string{"c", "w2"}, "y", ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1)),
+	)
+	s, _, err := Import(data, "shared")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r := engine.Evaluate(s); r.Errors != 0 || r.Totals.Params != 2*4*4*3*3 {
+		t.Errorf("params %d, %v", r.Totals.Params, r.Diags)
+	}
+}
