@@ -94,12 +94,14 @@ type Memory struct {
 	Total       int64
 	Budget      int64 // 0 when none
 	Reserve     int64 // the part of the budget kept free (headroom)
-	// Estimated is false when the stack has errors: the rows past the
-	// first error count nothing, so the figures are partial and no verdict
-	// is given (Fits is false, the fit solver gives no answers). Reason
-	// says why.
+	// Estimated is false when the stack has errors (the rows past the
+	// first error count nothing, so the figures are partial) or has no
+	// layers at all (there is nothing to train, so a verdict or a largest
+	// batch would mean nothing). Then no verdict is given: Fits is false
+	// and the fit solver gives no answers. Reason says why.
 	Estimated   bool
 	StackErrors int  // the errors that stopped the estimate (0 when Estimated)
+	Empty       bool // the stack has no layers (Estimated is false)
 	Fits        bool // Estimated and Total ≤ Budget − Reserve (true when estimated with no budget)
 
 	ActPerSample     int64   // activation bytes per sample kept for backward
@@ -144,10 +146,14 @@ func (m *Memory) Categories() [6]struct {
 }
 
 // Reason says why the memory is not estimated ("the stack has 2
-// error(s)"), or "" when it is.
+// error(s)", "the stack is empty; add a layer for an estimate"), or ""
+// when it is.
 func (m *Memory) Reason() string {
-	if m.Estimated {
+	switch {
+	case m.Estimated:
 		return ""
+	case m.StackErrors == 0 && m.Empty:
+		return "the stack is empty; add a layer for an estimate"
 	}
 	return fmt.Sprintf("the stack has %d error(s)", m.StackErrors)
 }
@@ -209,8 +215,10 @@ func (m *Memory) fill(r *Result, t Training) {
 	m.Budget = t.Budget
 	m.Reserve = int64(math.Ceil(float64(t.Budget) * t.HeadroomShare()))
 	// With errors the rows past the first one count nothing: partial
-	// figures are no estimate, and give no verdict.
-	m.Estimated, m.StackErrors = r.Errors == 0, r.Errors
+	// figures are no estimate, and give no verdict. An empty stack has
+	// nothing to train: no verdict either.
+	m.Empty = len(r.Rows) == 0
+	m.Estimated, m.StackErrors = r.Errors == 0 && !m.Empty, r.Errors
 	m.Fits = m.Estimated && (t.Budget == 0 || (!ov && m.Total <= t.Budget-m.Reserve))
 }
 

@@ -245,6 +245,10 @@ type Field struct {
 	// Applies, when set, says whether the field means something for a
 	// layer (forms hide it otherwise).
 	Applies func(*Layer) bool
+	// Limit is the longest text the field holds, in bytes: the limit
+	// the stack file has for it. 0: none of its own (a number or a word,
+	// which Set judges).
+	Limit int
 }
 
 // Field turns the parameter into a form field.
@@ -281,30 +285,33 @@ func FieldsFor(k Kind) []Field {
 }
 
 // nameField is the optional layer name every kind takes; empty clears it.
-var nameField = Field{"name", "short identifier (letters, digits, _ and -), or empty",
-	func(l *Layer) string { return l.Name },
-	func(l *Layer, s string) error {
+var nameField = Field{Key: "name", Help: "short identifier (letters, digits, _ and -), or empty", Limit: MaxNameLen,
+	Get: func(l *Layer) string { return l.Name },
+	Set: func(l *Layer, s string) error {
 		t := strings.TrimSpace(s)
 		if t != "" && !ValidName(t) {
 			return &FieldError{"name", s, "use letters, digits, '_' and '-', starting with a letter, at most 32 characters"}
 		}
 		l.Name = t
 		return nil
-	}, nil}
+	}}
 
 // noteField is the free-text note every kind takes.
-var noteField = Field{"note", "free text",
-	func(l *Layer) string { return l.Note },
-	func(l *Layer, s string) error {
+var noteField = Field{Key: "note", Help: "free text", Limit: MaxNoteLen,
+	Get: func(l *Layer) string { return l.Note },
+	Set: func(l *Layer, s string) error {
 		if len(s) > MaxNoteLen {
-			return &FieldError{"note", s[:32] + "…", "keep it under 4096 bytes"}
+			return &FieldError{"note", s[:32] + "…", fmt.Sprintf("keep it to %d bytes", MaxNoteLen)}
 		}
 		l.Note = s
 		return nil
-	}, nil}
+	}}
 
-// MaxNoteLen is the longest note a layer or stack may carry.
+// MaxNoteLen is the longest note a layer or stack may carry, in bytes.
 const MaxNoteLen = 4096
+
+// MaxStackNameLen is the longest name a stack may carry, in bytes.
+const MaxStackNameLen = 200
 
 func shapeText(s Shape) string {
 	return strconv.FormatInt(s.C, 10) + "x" + strconv.FormatInt(s.H, 10) + "x" + strconv.FormatInt(s.W, 10)

@@ -98,16 +98,76 @@ func FormatBytes(n int64) string {
 	return formatSig(v) + " " + units[i]
 }
 
-// FormatBytesExact writes n in the largest binary unit that divides it
-// exactly, for saving sizes without loss ("24GiB", "1536MiB", "1000B").
+// FormatBytesExact writes n for saving without loss: in the largest binary
+// unit that divides it exactly ("24GiB", "1536MiB", "1000B"), or, when
+// only bytes divide it, as a decimal of at most three places in its
+// largest unit that ParseBytes reads back to n exactly ("25.9MiB" for
+// 27158118, the byte nearest 25.9 MiB), else in bytes.
 func FormatBytesExact(n int64) string {
 	units := []string{"B", "KiB", "MiB", "GiB", "TiB"}
-	i := 0
-	for i < len(units)-1 && n != 0 && n%1024 == 0 {
-		n /= 1024
+	i, m := 0, n
+	for i < len(units)-1 && m != 0 && m%1024 == 0 {
+		m /= 1024
 		i++
 	}
-	return strconv.FormatInt(n, 10) + units[i]
+	if i == 0 && n >= 1024 {
+		if s, ok := decimalBytes(n); ok {
+			return s
+		}
+	}
+	return strconv.FormatInt(m, 10) + units[i]
+}
+
+// decimalBytes writes n ≥ 1024 as a decimal in its largest binary unit
+// (KiB to TiB) that ParseBytes reads back to n, with at most three places.
+func decimalBytes(n int64) (string, bool) {
+	units := []string{"KiB", "MiB", "GiB", "TiB"}
+	unit, i := float64(1024), 0
+	for i < len(units)-1 && float64(n) >= unit*1024 {
+		unit *= 1024
+		i++
+	}
+	for places := 1; places <= 3; places++ {
+		s := strconv.FormatFloat(float64(n)/unit, 'f', places, 64) + units[i]
+		if back, err := ParseBytes(s); err == nil && back == n {
+			return s, true
+		}
+	}
+	return "", false
+}
+
+// CeilBytes rounds n up to the precision FormatBytes shows (three
+// significant digits in n's binary unit), so a measured size written for
+// a person stays an upper bound: 27097776 (25.84 MiB) → 27158118 (the
+// byte nearest 25.9 MiB, which FormatBytesExact writes "25.9MiB"). Sizes
+// below 1 KiB are returned as they are.
+func CeilBytes(n int64) int64 {
+	if n < 1024 {
+		return n
+	}
+	unit, v := 1.0, float64(n)
+	for i := 0; i < 6 && v >= 1024; i++ {
+		v /= 1024
+		unit *= 1024
+	}
+	scale := 100.0 // as formatSig: 1.23, 12.3, 123
+	switch {
+	case v >= 100:
+		scale = 1
+	case v >= 10:
+		scale = 10
+	}
+	// The smallest shown value whose nearest byte (as ParseBytes reads
+	// it back) is at least n: a size saved as "1.2GiB" stays 1.2 GiB.
+	k := math.Ceil(v * scale)
+	if k > 1 && math.Round((k-1)/scale*unit) >= float64(n) {
+		k--
+	}
+	up := math.Round(k / scale * unit)
+	if !(up >= float64(n)) || up >= math.MaxInt64 {
+		return n
+	}
+	return max(int64(up), n)
 }
 
 // formatSig formats v (≥ 1) with three significant digits.

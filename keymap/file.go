@@ -6,6 +6,7 @@ import (
 	"io"
 	"io/fs"
 	"os"
+	"slices"
 	"sort"
 	"strings"
 	"syscall"
@@ -14,6 +15,7 @@ import (
 	"gopkg.in/yaml.v3"
 
 	"stackfit/engine"
+	"stackfit/engine/textsafe"
 )
 
 // ErrKeys is wrapped by every error about a keys file.
@@ -114,7 +116,10 @@ func keysRegular(path string, m fs.FileMode) error {
 //	undo: []        # no key: the action is disabled
 //
 // Unknown action names and keys that two actions of one mode would share
-// are errors that name them.
+// are errors that name them, and so are a file that disables quit,
+// force-quit or save (no way out, or no way to keep the work) and one that
+// gives AlwaysQuit (ctrl+c) to another action: ctrl+c always quits. Key
+// labels are escaped (textsafe.Line) as they are read.
 func Parse(data []byte, base KeyMap) (KeyMap, error) {
 	km := base
 	var raw map[string]yaml.Node
@@ -157,18 +162,49 @@ func Parse(data []byte, base KeyMap) (KeyMap, error) {
 			if strings.TrimSpace(k) == "" {
 				return base, fmt.Errorf("%w: %s: empty key", ErrKeys, name)
 			}
+			if k == AlwaysQuit && name != "force-quit" {
+				return base, fmt.Errorf("%w: %s: %s always quits and cannot be bound to another action; give %s another key", ErrKeys, name, AlwaysQuit, name)
+			}
 		}
 		if len(keys) == 0 {
+			if why := needed(name); why != "" {
+				return base, fmt.Errorf("%w: %s: [] would leave no key to %s; give %s a key", ErrKeys, name, why, name)
+			}
 			b.SetEnabled(false)
 			continue
 		}
+		if name == "force-quit" && !slices.Contains(keys, AlwaysQuit) {
+			keys = append(keys, AlwaysQuit) // ctrl+c quits whatever the file says
+		}
 		help := b.Help()
-		*b = key.NewBinding(key.WithKeys(keys...), key.WithHelp(strings.Join(keys, "/"), help.Desc))
+		// The label is what the help line shows: escaped here, once, so
+		// no key name from the file reaches the terminal raw.
+		*b = key.NewBinding(key.WithKeys(keys...), key.WithHelp(textsafe.Line(strings.Join(keys, "/")), help.Desc))
 	}
 	if err := km.Check(); err != nil {
 		return base, err
 	}
 	return km, nil
+}
+
+// AlwaysQuit is the key that quits in every mode whatever a keys file
+// says: a keys file cannot take it from force-quit nor give it to another
+// action.
+const AlwaysQuit = "ctrl+c"
+
+// needed says what an action that a keys file may rebind but not disable
+// is for ("" for any other action): without quit, force-quit and save the
+// editor could not be left, nor the work kept.
+func needed(action string) string {
+	switch action {
+	case "quit":
+		return "leave the editor"
+	case "force-quit":
+		return "leave the editor from any screen"
+	case "save":
+		return "save your work"
+	}
+	return ""
 }
 
 // Check reports two enabled bindings of one mode that share a key.

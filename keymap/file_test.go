@@ -4,10 +4,13 @@ import (
 	"errors"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"syscall"
 	"testing"
 	"time"
+
+	"stackfit/engine/textsafe"
 )
 
 // loadWithin runs LoadFile(path) and fails the test when it has not
@@ -64,5 +67,70 @@ func TestLoadFileSizeCap(t *testing.T) {
 	os.WriteFile(p, []byte(head+strings.Repeat("x", MaxFileBytes+1-len(head))), 0o644)
 	if _, err := LoadFile(p, DefaultKeyMap()); !errors.Is(err, ErrKeys) || !strings.Contains(err.Error(), p+" is over 65536 bytes (64 KiB)") {
 		t.Errorf("over the limit: %v", err)
+	}
+}
+
+// TestParseKeepsAWayOut: a keys file may rebind quit, force-quit and save
+// but not leave them without a key, and may not give ctrl+c to another
+// action; the message names the action and the fix. Common practice:
+// ctrl+c ends a terminal program whatever else is configured.
+func TestParseKeepsAWayOut(t *testing.T) {
+	tests := []struct {
+		file string
+		want string // "" when the file is accepted
+	}{
+		{"quit: []", "quit: [] would leave no key to leave the editor; give quit a key"},
+		{"force-quit: []", "force-quit: [] would leave no key to leave the editor from any screen"},
+		{"save: []", "save: [] would leave no key to save your work; give save a key"},
+		{"undo: ctrl+c", "undo: ctrl+c always quits and cannot be bound to another action; give undo another key"},
+		{"quit: [Q, ctrl+c]", "quit: ctrl+c always quits"},
+		{"quit: Q\nsave: [S]", ""},
+		{"undo: []", ""},
+		{"force-quit: ctrl+q", ""},
+	}
+	for _, tt := range tests {
+		km, err := Parse([]byte(tt.file), DefaultKeyMap())
+		if tt.want == "" {
+			if err != nil {
+				t.Errorf("%q: %v", tt.file, err)
+			}
+			if !km.ForceQuit.Enabled() || !slices.Contains(km.ForceQuit.Keys(), AlwaysQuit) {
+				t.Errorf("%q: force-quit %v lacks %s", tt.file, km.ForceQuit.Keys(), AlwaysQuit)
+			}
+			continue
+		}
+		if !errors.Is(err, ErrKeys) || !strings.Contains(err.Error(), tt.want) {
+			t.Errorf("%q: %v; want %q", tt.file, err, tt.want)
+		}
+		if !km.Quit.Enabled() || !km.Save.Enabled() || !slices.Contains(km.ForceQuit.Keys(), AlwaysQuit) {
+			t.Errorf("%q: a refused file must leave the defaults", tt.file)
+		}
+	}
+}
+
+// TestLoadFileEscapesLabels: a key name holding an escape sequence (an
+// OSC that retitles the terminal, a CSI) comes back with a label that
+// holds no control character, whatever renders it.
+func TestLoadFileEscapesLabels(t *testing.T) {
+	p := filepath.Join(t.TempDir(), "keys.yaml")
+	tests := []string{
+		"\"\\e]0;owned\\a\"",
+		"\"\\e[2J\"",
+		"\"a\\u009b31m\"",
+		"\"\\u202eq\"",
+	}
+	for _, k := range tests {
+		os.WriteFile(p, []byte("quit: "+k+"\n"), 0o644)
+		km, err := LoadFile(p, DefaultKeyMap())
+		if err != nil {
+			t.Fatalf("%s: %v", k, err)
+		}
+		label := km.Quit.Help().Key
+		if !textsafe.Safe(label) {
+			t.Errorf("%s: label %q reaches the terminal raw", k, label)
+		}
+		if !strings.Contains(label, `\x1b`) && !strings.Contains(label, `\u`) {
+			t.Errorf("%s: label %q does not show the escape", k, label)
+		}
 	}
 }

@@ -22,6 +22,11 @@ func writeEstimate(w io.Writer, an *engine.Analysis) {
 	am := &an.Memory
 	fmt.Fprintf(w, "\n\n# stackfit's estimate for one GPU (an estimate: keep headroom), for the measuring entry point.\n")
 	fmt.Fprintf(w, "ESTIMATE = {\n")
+	// The stack file's training settings, as the header names them: the
+	// measuring entry point's defaults (its flags override them). The
+	// batch is one GPU's micro-batch, what one process runs per step.
+	t := an.Training
+	fmt.Fprintf(w, "    \"batch\": %d,\n    \"precision\": %q,\n    \"optimizer\": %q,\n", am.MicroBatch, t.Precision.String(), t.Optimizer.String())
 	fmt.Fprintf(w, "    \"workspace\": %d,\n    \"overhead\": %d,\n", am.Workspace-am.ScratchPerSample*am.MicroBatch, am.Overhead)
 	// One Memory for every setting: its storage is reused, and Retarget
 	// changes the optimizer without walking the rows again.
@@ -44,6 +49,9 @@ func writeEstimate(w io.Writer, an *engine.Analysis) {
 // measureTool is the module's measuring entry point, run as
 //
 //	python net.py --measure --batch 64 --precision bf16-mixed --optimizer adamw
+//
+// Without those flags it measures the stack file's training settings (one
+// GPU's micro-batch, the precision and the optimizer ESTIMATE records).
 //
 // It trains a few steps on synthetic data (CUDA when present, the CPU
 // otherwise) and prints, per category, stackfit's estimate beside the
@@ -89,7 +97,7 @@ def measure(batch, precision, optimizer, steps=3, device=None):
     bytes over one step, plus the model states made before it."""
     device = device or ("cuda" if torch.cuda.is_available() else "cpu")
     if precision.endswith("-master"):
-        raise SystemExit("precision %s: the master-copy scheme needs its own training loop; measure fp32, fp16-mixed, bf16-mixed or bf16" % precision)
+        raise SystemExit("precision %s: the master-copy scheme needs its own training loop; measure with --precision fp32, fp16-mixed, bf16-mixed or bf16" % precision)
     model = MODEL().to(device).train()
     if precision == "bf16":
         model = model.to(torch.bfloat16)
@@ -142,9 +150,9 @@ def main(argv=None):
     import argparse
     ap = argparse.ArgumentParser(description="Measure one GPU's training memory for this module and compare it with stackfit's estimate.")
     ap.add_argument("--measure", action="store_true", help="run a few training steps on synthetic data and report")
-    ap.add_argument("--batch", type=int, default=ESTIMATE.get("batch", 1))
-    ap.add_argument("--precision", default="fp32", choices=sorted(ESTIMATE["per_sample"]))
-    ap.add_argument("--optimizer", default="sgd", choices=["sgd", "momentum", "adam", "adamw", "adagrad", "rmsprop"])
+    ap.add_argument("--batch", type=int, default=ESTIMATE["batch"], help="samples per step on this GPU (default: the stack file's micro-batch, %(default)s)")
+    ap.add_argument("--precision", default=ESTIMATE["precision"], choices=sorted(ESTIMATE["per_sample"]), help="default: the stack file's, %(default)s")
+    ap.add_argument("--optimizer", default=ESTIMATE["optimizer"], choices=["sgd", "momentum", "adam", "adamw", "adagrad", "rmsprop"], help="default: the stack file's, %(default)s")
     ap.add_argument("--device", choices=["cuda", "cpu"], help="default: cuda when present")
     args = ap.parse_args(argv)
     if not args.measure:

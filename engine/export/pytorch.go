@@ -11,6 +11,7 @@ import (
 	"strconv"
 	"strings"
 	"unicode"
+	"unicode/utf8"
 
 	"stackfit/engine"
 )
@@ -34,7 +35,10 @@ func PyTorch(w io.Writer, an *engine.Analysis, source string) error {
 	// The walk runs three times: once to find any error before a byte is
 	// written, then once for __init__'s lines and once for forward's, each
 	// written as it is made, so a module of any size is never held whole.
-	g := newGen(an, nil, phaseCheck)
+	// The check walk also finds which named outputs a merge reads and
+	// which saved inputs a residual reads (only those get a variable), and
+	// which helpers the layers call (only those are defined).
+	g := newGen(an, nil, phaseCheck, nil)
 	g.walk(an.Stack.Layers, engine.Path{})
 	if g.err != nil {
 		return g.err
@@ -44,13 +48,18 @@ func PyTorch(w io.Writer, an *engine.Analysis, source string) error {
 	var head strings.Builder
 	g.header(&head, source)
 	b.WriteString(head.String())
-	b.WriteString(prelude)
+	b.WriteString(preludeHead)
+	for _, h := range helpers {
+		if g.uses[h.name] {
+			b.WriteString("\n\n\n" + h.code)
+		}
+	}
 	fmt.Fprintf(b, "\n\n\nclass %s(nn.Module):\n", class)
 	fmt.Fprintf(b, "    \"\"\"%s → %s; every tensor is N×C×H×W.\"\"\"\n\n", an.Stack.Input, r.Output)
 	b.WriteString("    def __init__(self):\n        super().__init__()\n")
-	newGen(an, b, phaseInit).walk(an.Stack.Layers, engine.Path{})
+	newGen(an, b, phaseInit, g).walk(an.Stack.Layers, engine.Path{})
 	b.WriteString("\n    def forward(self, x):\n")
-	newGen(an, b, phaseForward).walk(an.Stack.Layers, engine.Path{})
+	newGen(an, b, phaseForward, g).walk(an.Stack.Layers, engine.Path{})
 	b.WriteString("        return x\n")
 	fmt.Fprintf(b, "\n\nINPUT_SHAPE = (%d, %d, %d)\nMODEL = %s\n", an.Stack.Input.C, an.Stack.Input.H, an.Stack.Input.W, class)
 	writeEstimate(b, an)
@@ -58,13 +67,21 @@ func PyTorch(w io.Writer, an *engine.Analysis, source string) error {
 	return b.Flush()
 }
 
-// prelude holds the helpers the generated class may use.
-const prelude = `
+// preludeHead is what every module starts with after its header.
+const preludeHead = `
 import torch
-import torch.nn as nn
+import torch.nn as nn`
 
+// helper is a class or function the generated class may use; the module
+// defines only those its layers call.
+type helper struct {
+	name string // the Python name, as the generated code calls it
+	code string // its definition
+}
 
-class ChannelLayerNorm(nn.Module):
+// helpers are the module's helpers in the order they are written.
+var helpers = []helper{
+	{"ChannelLayerNorm", `class ChannelLayerNorm(nn.Module):
     """Layer norm over the channels at each position."""
 
     def __init__(self, channels, affine=True, eps=1e-5):
@@ -72,10 +89,8 @@ class ChannelLayerNorm(nn.Module):
         self.norm = nn.LayerNorm(channels, eps=eps, elementwise_affine=affine)
 
     def forward(self, x):
-        return self.norm(x.permute(0, 2, 3, 1)).permute(0, 3, 1, 2)
-
-
-class Dense(nn.Module):
+        return self.norm(x.permute(0, 2, 3, 1)).permute(0, 3, 1, 2)`},
+	{"Dense", `class Dense(nn.Module):
     """A fully connected layer on an N×C×1×1 map, giving N×units×1×1."""
 
     def __init__(self, features, units, bias=True):
@@ -83,10 +98,8 @@ class Dense(nn.Module):
         self.fc = nn.Linear(features, units, bias=bias)
 
     def forward(self, x):
-        return self.fc(x.flatten(1))[:, :, None, None]
-
-
-class PositionDense(nn.Module):
+        return self.fc(x.flatten(1))[:, :, None, None]`},
+	{"PositionDense", `class PositionDense(nn.Module):
     """A fully connected layer applied at every position of an N×C×H×W map,
     over its channels."""
 
@@ -95,10 +108,8 @@ class PositionDense(nn.Module):
         self.fc = nn.Linear(features, units, bias=bias)
 
     def forward(self, x):
-        return self.fc(x.permute(0, 2, 3, 1)).permute(0, 3, 1, 2)
-
-
-class ChannelScale(nn.Module):
+        return self.fc(x.permute(0, 2, 3, 1)).permute(0, 3, 1, 2)`},
+	{"ChannelScale", `class ChannelScale(nn.Module):
     """A learnable factor per channel (layer scale)."""
 
     def __init__(self, channels, init=1.0):
@@ -106,10 +117,8 @@ class ChannelScale(nn.Module):
         self.gamma = nn.Parameter(torch.full((channels, 1, 1), float(init)))
 
     def forward(self, x):
-        return x * self.gamma
-
-
-class DropPath(nn.Module):
+        return x * self.gamma`},
+	{"DropPath", `class DropPath(nn.Module):
     """Stochastic depth: zeroes a sample's residual branch with probability p
     while training, scaling the kept ones by 1 / (1 - p)."""
 
@@ -122,21 +131,46 @@ class DropPath(nn.Module):
             return x
         keep = 1.0 - self.p
         noise = torch.empty([x.shape[0], 1, 1, 1], dtype=x.dtype, device=x.device).bernoulli_(keep)
-        return x * noise.div_(keep)
-
-
-def center_crop(x, h, w):
+        return x * noise.div_(keep)`},
+	{"center_crop", `def center_crop(x, h, w):
     top, left = (x.shape[2] - h) // 2, (x.shape[3] - w) // 2
-    return x[:, :, top:top + h, left:left + w]`
+    return x[:, :, top:top + h, left:left + w]`},
+}
 
-// comment writes text as comment lines, escaping anything unprintable, so
-// no line of it can become code.
+// comment writes text as comment lines, one per line of text, with
+// anything unprintable escaped (see readable), so no line of it can become
+// code.
 func comment(b *strings.Builder, prefix, text string) {
 	for _, line := range strings.FieldsFunc(text, func(r rune) bool { return r == '\n' || r == '\r' || r == '\u2028' || r == '\u2029' || r == '\x85' }) {
-		q := strconv.Quote(line)
-		b.WriteString(prefix + "# " + q[1:len(q)-1] + "\n")
+		b.WriteString(prefix + "# " + readable(line) + "\n")
 	}
 }
+
+// readable returns text as it may stand inside a one-line Python comment:
+// printable characters as they are (quotes and backslashes too, so a name
+// reads as written), and everything else — line breaks, tabs, terminal
+// and bidirectional controls, invalid UTF-8 — as a Go escape (\n, \t,
+// \x1b, \u202e), so no line break or control reaches the file.
+func readable(text string) string {
+	var b strings.Builder
+	for i, w := 0, 0; i < len(text); i += w {
+		r, n := utf8.DecodeRuneInString(text[i:])
+		w = n
+		switch {
+		case r == utf8.RuneError && n == 1:
+			fmt.Fprintf(&b, "\\x%02x", text[i])
+		case r == ' ' || unicode.IsPrint(r):
+			b.WriteRune(r)
+		default:
+			q := strconv.QuoteRuneToASCII(r)
+			b.WriteString(q[1 : len(q)-1])
+		}
+	}
+	return b.String()
+}
+
+// quoted is a name in double quotes, readable (see readable).
+func quoted(name string) string { return `"` + readable(name) + `"` }
 
 func (g *gen) header(b *strings.Builder, source string) {
 	an, r := g.an, g.r
@@ -147,7 +181,7 @@ func (g *gen) header(b *strings.Builder, source string) {
 	b.WriteString("# -*- coding: utf-8 -*-\n")
 	b.WriteString("# Generated by stackfit. Regenerate rather than edit.\n")
 	if source != "" {
-		b.WriteString("# from " + strconv.Quote(source) + "\n")
+		b.WriteString("# from " + quoted(source) + "\n")
 	}
 	comment(b, "", "stack: "+an.Stack.Name)
 	comment(b, "", an.Stack.Note)
@@ -155,8 +189,12 @@ func (g *gen) header(b *strings.Builder, source string) {
 	fmt.Fprintf(b, "# parameters %s, buffers %s, MACs per sample %s\n",
 		engine.GroupDigits(r.Totals.Params), engine.GroupDigits(r.Totals.Buffers), engine.GroupDigits(r.Totals.MACs))
 	m, t := &an.Memory, an.Training
-	fmt.Fprintf(b, "# training memory per GPU (estimate; keep headroom): %s at batch %d, %s, %s\n",
-		engine.FormatBytes(m.Total), max(t.Batch, 1), t.Precision, t.Optimizer)
+	micro := ""
+	if m.MicroBatch != max(t.Batch, 1) {
+		micro = fmt.Sprintf(" (micro-batch %d per GPU)", m.MicroBatch)
+	}
+	fmt.Fprintf(b, "# training memory per GPU (estimate; keep headroom): %s at batch %d%s, %s, %s\n",
+		engine.FormatBytes(m.Total), max(t.Batch, 1), micro, t.Precision, t.Optimizer)
 }
 
 // className turns a stack name into a Python class name: the name's ASCII
@@ -221,21 +259,18 @@ memoryview min next object oct open ord pow print property quit range repr rever
 round set setattr slice sorted staticmethod str sum super tuple type vars zip
 torch nn MODEL INPUT_SHAPE ESTIMATE`
 
-// reserved reports whether s is one of pythonNames or a class or function
-// the prelude defines.
+// reserved reports whether s is one of pythonNames or the name of a helper
+// (any helper, used or not, so a class name does not change with the
+// layers).
 func reserved(s string) bool {
 	for _, n := range strings.Fields(pythonNames) {
 		if n == s {
 			return true
 		}
 	}
-	for _, line := range strings.Split(prelude, "\n") {
-		for _, def := range []string{"class ", "def "} {
-			if rest, ok := strings.CutPrefix(line, def); ok {
-				if end := strings.IndexAny(rest, "(:"); end > 0 && rest[:end] == s {
-					return true
-				}
-			}
+	for _, h := range helpers {
+		if h.name == s {
+			return true
 		}
 	}
 	return false
@@ -260,26 +295,103 @@ type gen struct {
 	phase phase
 	taps  map[string]string // layer name → Python variable
 	err   error
+
+	// Filled by the check walk and shared with the writing ones: the
+	// names a merge reads and the saved inputs (r… variables) a residual
+	// or dense link reads, the only ones kept in a variable; and the
+	// helpers the generated lines call.
+	read, keep, uses map[string]bool
 }
 
-func newGen(an *engine.Analysis, out *bufio.Writer, ph phase) *gen {
-	return &gen{an: an, r: an.Result, out: out, phase: ph, taps: map[string]string{}}
+// newGen makes a walk of phase ph; a writing walk takes what the check
+// walk found.
+func newGen(an *engine.Analysis, out *bufio.Writer, ph phase, check *gen) *gen {
+	g := &gen{an: an, r: an.Result, out: out, phase: ph, taps: map[string]string{}}
+	if check != nil {
+		g.read, g.keep, g.uses = check.read, check.keep, check.uses
+	} else {
+		g.read, g.keep, g.uses = map[string]bool{}, map[string]bool{}, map[string]bool{}
+	}
+	return g
+}
+
+// save writes "v = x" where a later line reads v (every time in the check
+// walk, which finds that out).
+func (g *gen) save(v string) {
+	if g.phase == phaseCheck || g.keep[v] {
+		g.fwdLine(v + " = x")
+	}
+}
+
+// reads marks the saved input v as read.
+func (g *gen) reads(v string) {
+	if g.phase == phaseCheck {
+		g.keep[v] = true
+	}
 }
 
 // initLine writes one line of __init__ in the init phase.
 func (g *gen) initLine(s string) {
-	if g.phase == phaseInit {
+	switch g.phase {
+	case phaseInit:
 		g.out.WriteString("        " + s + "\n")
+	case phaseCheck:
+		g.noteHelpers(s)
 	}
 }
 
 // fwdLine writes lines of forward in the forward phase.
 func (g *gen) fwdLine(lines ...string) {
-	if g.phase == phaseForward {
-		for _, s := range lines {
+	for _, s := range lines {
+		switch g.phase {
+		case phaseForward:
 			g.out.WriteString("        " + s + "\n")
+		case phaseCheck:
+			g.noteHelpers(s)
 		}
 	}
+}
+
+// noteHelpers records the helpers a generated line calls. Comment lines
+// (which hold names from the stack) are skipped.
+func (g *gen) noteHelpers(line string) {
+	if strings.HasPrefix(line, "#") {
+		return
+	}
+	for _, h := range helpers {
+		for rest := line; ; {
+			i := strings.Index(rest, h.name+"(")
+			if i < 0 {
+				break
+			}
+			if i == 0 || !isIdentByte(rest[i-1]) {
+				g.uses[h.name] = true
+				break
+			}
+			rest = rest[i+len(h.name):]
+		}
+	}
+}
+
+// isIdentByte reports whether c may be part of an ASCII Python identifier.
+func isIdentByte(c byte) bool {
+	return c == '_' || c >= '0' && c <= '9' || c >= 'a' && c <= 'z' || c >= 'A' && c <= 'Z'
+}
+
+// named writes the lines after an item with a name: a comment naming it,
+// and, when a merge reads it, the variable that keeps it.
+func (g *gen) named(name string) {
+	if name == "" {
+		return
+	}
+	if g.phase == phaseCheck {
+		g.tap(name) // every name, to find a merge reading an unknown one
+	}
+	if !g.read[name] {
+		g.fwdLine("# output of " + quoted(name))
+		return
+	}
+	g.fwdLine("# output of "+quoted(name), g.tap(name)+" = x")
 }
 
 func ident(p engine.Path) string {
@@ -328,7 +440,7 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 				saved := ""
 				if l.Residual || l.DenseLinks {
 					saved = "r" + strings.TrimPrefix(ident(rp), "l")
-					g.fwdLine(saved + " = x")
+					g.save(saved)
 				}
 				g.walk(l.Body, rp)
 				if l.Residual {
@@ -340,17 +452,14 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 						return
 					}
 					g.next++
+					g.reads(saved)
 					g.fwdLine("x = torch.cat([" + saved + ", x], 1)") // the repeat's input first, as DenseNet orders them
 				}
 			}
 		default:
 			g.row()
 		}
-		if l.Name != "" {
-			var c strings.Builder
-			comment(&c, "", "output of "+strconv.Quote(l.Name))
-			g.fwdLine(strings.TrimSuffix(c.String(), "\n"), g.tap(l.Name)+" = x")
-		}
+		g.named(l.Name)
 	}
 }
 
@@ -375,11 +484,7 @@ func (g *gen) fork(l *engine.Layer, p engine.Path) {
 		g.walk(br.Body, p.Append(b+1))
 		out := fmt.Sprintf("b%s_%d", base, b+1)
 		g.fwdLine(out + " = x")
-		if br.Name != "" {
-			var c strings.Builder
-			comment(&c, "", "output of "+strconv.Quote(br.Name))
-			g.fwdLine(strings.TrimSuffix(c.String(), "\n"), g.tap(br.Name)+" = x")
-		}
+		g.named(br.Name)
 		outs = append(outs, out)
 	}
 	if g.next >= len(g.r.Rows) || g.r.Rows[g.next].Role != engine.RoleJoin {
@@ -399,6 +504,7 @@ func (g *gen) residual(saved string) {
 		g.next++
 		id := ident(row.Path)
 		g.initLine(fmt.Sprintf("self.%s = %s", id, g.module(row)))
+		g.reads(sc)
 		g.fwdLine(fmt.Sprintf("sc = self.%s(%s)", id, sc))
 		sc = "sc"
 	}
@@ -412,6 +518,7 @@ func (g *gen) residual(saved string) {
 			g.initLine(fmt.Sprintf("self.%s = DropPath(%s)", id, strconv.FormatFloat(rate, 'g', -1, 64)))
 			body = fmt.Sprintf("self.%s(x)", id)
 		}
+		g.reads(sc)
 		g.fwdLine("x = " + body + " + " + sc)
 	case sc == saved:
 		// An identity-only residual whose shapes differ: no addition.
@@ -445,6 +552,9 @@ func (g *gen) row() {
 	id := ident(row.Path)
 	if t.Expr != "" {
 		if strings.Contains(t.Expr, engine.OtherVar) {
+			if g.phase == phaseCheck {
+				g.read[row.Layer.From] = true
+			}
 			other, ok := g.taps[row.Layer.From]
 			if !ok {
 				g.fail("row %s merges an unknown output", row.Path)

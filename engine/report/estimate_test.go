@@ -23,6 +23,15 @@ layers:
   - {conv: 512, kernel: 3}
 `
 
+// A stack with a budget and no layers: nothing to train, so no verdict and
+// no largest batch (the batch solver's "none" would read as "nothing fits").
+const emptyStack = `stackfit: 1
+name: blank
+input: [3, 32, 32]
+training: {batch: 8, budget: 24GiB}
+layers: []
+`
+
 // The same stack without its broken layers: a real estimate with a verdict.
 const cleanStack = `stackfit: 1
 name: cap inspector draft
@@ -52,6 +61,14 @@ func TestReportsSayNotEstimated(t *testing.T) {
 		{"markdown, errors", brokenStack, func(b *bytes.Buffer, an *engine.Analysis) error { return WriteMarkdown(b, an) },
 			[]string{"**Training memory per GPU** at batch 8 on 1 GPU(s), fp32, sgd: " + line, "**Diagnostics**", "kernel height spans 99"},
 			[]string{"fits", "| category | size |", "holds"}},
+		{"text, empty", emptyStack, func(b *bytes.Buffer, an *engine.Analysis) error { return WriteText(b, an) },
+			[]string{"memory not estimated: the stack is empty; add a layer for an estimate\n"},
+			[]string{"fits", "batch none", "peak in", "fix them", "nowhere"}},
+		{"markdown, empty", emptyStack, func(b *bytes.Buffer, an *engine.Analysis) error { return WriteMarkdown(b, an) },
+			[]string{"fp32, sgd: memory not estimated: the stack is empty; add a layer for an estimate."},
+			[]string{"fits", "Largest batch", "fix them", "nowhere"}},
+		{"csv, empty", emptyStack, func(b *bytes.Buffer, an *engine.Analysis) error { return WriteCSV(b, an) },
+			nil, []string{"fits", "none", "nowhere"}},
 		{"text, clean", cleanStack, func(b *bytes.Buffer, an *engine.Analysis) error { return WriteText(b, an) },
 			[]string{"training memory per GPU — estimate", "→ fits;", "fits at most: batch"},
 			[]string{"not estimated"}},
@@ -80,9 +97,9 @@ func TestReportsSayNotEstimated(t *testing.T) {
 	}
 }
 
-// TestJSONNotEstimated: with errors the JSON report keeps every memory
-// field, adds estimated: false with the reason, and gives fits false and
-// fit null; a clean stack gives estimated true, an empty reason and its
+// TestJSONNotEstimated: with errors, or with no layers, the JSON report
+// keeps every memory field, adds estimated: false with the reason, and
+// gives fits false and fit null (not fits true beside a largest batch of 0); a clean stack gives estimated true, an empty reason and its
 // answers. The streamed report holds the same document.
 func TestJSONNotEstimated(t *testing.T) {
 	tests := []struct {
@@ -94,6 +111,7 @@ func TestJSONNotEstimated(t *testing.T) {
 		fit       bool
 	}{
 		{"errors", brokenStack, false, "the stack has 1 error(s)", false, false},
+		{"empty", emptyStack, false, "the stack is empty; add a layer for an estimate", false, false},
 		{"clean", cleanStack, true, "", true, true},
 	}
 	fields := []string{"estimate", "estimated", "reason", "setup", "weights", "gradients", "optimizer", "activations",

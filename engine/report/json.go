@@ -8,6 +8,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"unicode/utf8"
 
 	"stackfit/engine"
 )
@@ -28,7 +29,7 @@ type JSON struct {
 // JSONMemory is the training-memory estimate for one GPU, in bytes.
 type JSONMemory struct {
 	Estimate    bool           `json:"estimate"`  // always true: see the assumptions
-	Estimated   bool           `json:"estimated"` // false when the stack has errors: the figures are partial, fits is false and fit null
+	Estimated   bool           `json:"estimated"` // false when the stack has errors (the figures are partial) or no layers: fits is false, fit null and reason says why
 	Reason      string         `json:"reason"`    // why the memory is not estimated ("the stack has 2 error(s)"); "" when it is
 	Setup       JSONSetup      `json:"setup"`
 	Weights     int64          `json:"weights"`
@@ -218,7 +219,11 @@ func buildHead(an *engine.Analysis) *JSON {
 
 // WriteJSON writes the JSON report with one top-level field, and one
 // layer, per line: readable, diffable, and several times faster to write
-// than fully indented JSON.
+// than fully indented JSON. Besides what encoding/json escapes, the C1
+// controls and the bidirectional controls are written as \uXXXX escapes
+// (escapeInvisible), so a report shown on a terminal or in a review
+// neither acts on them nor reorders around them; it decodes to the same
+// strings.
 func WriteJSON(w io.Writer, an *engine.Analysis) error {
 	doc := buildHead(an)
 	b := bufio.NewWriterSize(w, 64<<10)
@@ -227,7 +232,7 @@ func WriteJSON(w io.Writer, an *engine.Analysis) error {
 		if err != nil {
 			return err
 		}
-		fmt.Fprintf(b, "  %q: %s", name, data)
+		fmt.Fprintf(b, "  %q: %s", name, escapeInvisible(data))
 		if !last {
 			b.WriteByte(',')
 		}
@@ -254,7 +259,7 @@ func WriteJSON(w io.Writer, an *engine.Analysis) error {
 		if err := enc.Encode(&jl); err != nil {
 			return fmt.Errorf("layer %s: %w", jl.Path, err)
 		}
-		if _, err := b.Write(line.Bytes()[:line.Len()-1]); err != nil { // Encode ends the value with a newline
+		if _, err := b.Write(escapeInvisible(line.Bytes()[:line.Len()-1])); err != nil { // Encode ends the value with a newline
 			return err
 		}
 	}
@@ -271,4 +276,50 @@ func WriteJSON(w io.Writer, an *engine.Analysis) error {
 	}
 	b.WriteString("}\n")
 	return b.Flush()
+}
+
+// escapeInvisible returns the encoded JSON data with every C1 control
+// (U+0080–U+009F: a terminal acts on the 8-bit CSI, OSC and string
+// terminator, and U+0085 breaks lines) and every bidirectional control
+// (U+061C, U+200E, U+200F, U+202A–U+202E, U+2066–U+2069: they reorder the
+// text around them) written as a \uXXXX escape. In encoded JSON such a
+// character can stand only inside a string, where the escape means the
+// same character, so the data decodes to the same values. Data with none
+// comes back as it is, without a copy.
+func escapeInvisible(data []byte) []byte {
+	i := invisibleAt(data)
+	if i < 0 {
+		return data
+	}
+	out := make([]byte, 0, len(data)+16)
+	for i >= 0 {
+		r, n := utf8.DecodeRune(data[i:])
+		out = append(out, data[:i]...)
+		out = append(out, '\\', 'u', hexDigit[r>>12&0xf], hexDigit[r>>8&0xf], hexDigit[r>>4&0xf], hexDigit[r&0xf])
+		data = data[i+n:]
+		i = invisibleAt(data)
+	}
+	return append(out, data...)
+}
+
+const hexDigit = "0123456789abcdef"
+
+// invisibleAt returns where the first character escapeInvisible escapes
+// starts in data, or -1.
+func invisibleAt(data []byte) int {
+	for i := 0; i < len(data); i++ {
+		if data[i] < utf8.RuneSelf {
+			continue
+		}
+		r, n := utf8.DecodeRune(data[i:])
+		switch {
+		case r >= 0x80 && r <= 0x9f,
+			r == 0x061c, r == 0x200e, r == 0x200f,
+			r >= 0x202a && r <= 0x202e,
+			r >= 0x2066 && r <= 0x2069:
+			return i
+		}
+		i += n - 1
+	}
+	return -1
 }

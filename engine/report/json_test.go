@@ -28,7 +28,8 @@ func analyze(t *testing.T, src []byte) *engine.Analysis {
 }
 
 // compareWithReference checks that every layer line WriteJSON writes is
-// encoding/json's form of BuildJSON's value of that layer, and that the
+// encoding/json's form of BuildJSON's value of that layer (with the C1
+// and bidirectional controls escaped), and that the
 // whole report is valid JSON that decodes to BuildJSON's document.
 func compareWithReference(t *testing.T, an *engine.Analysis) {
 	t.Helper()
@@ -44,6 +45,7 @@ func compareWithReference(t *testing.T, an *engine.Analysis) {
 		if err != nil {
 			t.Fatal(err)
 		}
+		want = escapeInvisible(want) // what WriteJSON escapes besides
 		line := strings.TrimSuffix(strings.TrimPrefix(lines[first+i], "    "), ",")
 		if line != string(want) {
 			t.Fatalf("layer %d\ngot  %s\nwant %s", i, line, want)
@@ -126,4 +128,53 @@ layers:
 		t.Fatalf("the stack should have errors and warnings, has %v", sev)
 	}
 	compareWithReference(t, an)
+}
+
+// TestWriteJSONEscapesInvisible: C1 controls (ECMA-48's C1 set: U+009B is
+// CSI, U+009D OSC, U+0085 next line) and the bidirectional controls of
+// Unicode's bidirectional algorithm (UAX #9: LRM, RLM, ALM, the embeddings
+// and overrides U+202A–U+202E, the isolates U+2066–U+2069) in a stack
+// name, a layer name and a diagnostic come out as \uXXXX escapes, never
+// raw, and the report decodes (encoding/json) to the very same strings.
+func TestWriteJSONEscapesInvisible(t *testing.T) {
+	tests := []struct {
+		name, raw, escaped string
+	}{
+		{"CSI", "a\u009b2Jb", `a\u009b2Jb`},
+		{"next line", "a\u0085b", `a\u0085b`},
+		{"C1 ends", "\u0080\u009f", `\u0080\u009f`},
+		{"OSC", "\u009d0;x\u009c", `\u009d0;x\u009c`},
+		{"right-to-left override", "abc\u202Etxt.exe", `abc\u202etxt.exe`},
+		{"embeddings", "\u202a\u202b\u202c\u202d", `\u202a\u202b\u202c\u202d`},
+		{"isolates", "\u2066\u2067\u2068\u2069", `\u2066\u2067\u2068\u2069`},
+		{"marks", "\u200e\u200f\u061c", `\u200e\u200f\u061c`},
+		{"beside plain text", "日本\u202eü\u00a0", `日本\u202eü` + "\u00a0"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			an := analyze(t, []byte("stackfit: 1\nname: x\ninput: [3, 8, 8]\nlayers:\n  - conv: 4\n    kernel: 3\n  - add: nowhere\n"))
+			an.Stack.Name = tt.raw
+			an.Stack.Layers[0].Name = tt.raw
+			an.Stack.Layers[1].From = tt.raw // the error quotes it
+			var out bytes.Buffer
+			if err := WriteJSON(&out, an); err != nil {
+				t.Fatal(err)
+			}
+			got := out.String()
+			if i := invisibleAt(out.Bytes()); i >= 0 {
+				t.Errorf("a control is left raw at byte %d: %q", i, got[i:min(i+12, len(got))])
+			}
+			if !strings.Contains(got, `"name": "`+tt.escaped+`"`) || !strings.Contains(got, `"name":"`+tt.escaped+`"`) {
+				t.Errorf("no escaped %s in\n%s", tt.escaped, got)
+			}
+			var doc JSON
+			if err := json.Unmarshal(out.Bytes(), &doc); err != nil {
+				t.Fatalf("not valid JSON: %v", err)
+			}
+			if doc.Name != tt.raw || doc.Layers[0].Name != tt.raw {
+				t.Errorf("decodes to %q, %q; want %q", doc.Name, doc.Layers[0].Name, tt.raw)
+			}
+			compareWithReference(t, an)
+		})
+	}
 }

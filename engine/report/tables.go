@@ -130,8 +130,12 @@ func WriteMarkdown(w io.Writer, an *engine.Analysis) error {
 	}
 	t := an.Training
 	if !m.Estimated {
-		fmt.Fprintf(b, "\n**Training memory per GPU** at batch %d on %d GPU(s), %s, %s: %s; fix them (see the diagnostics) for an estimate.\n",
-			max(t.Batch, 1), max(t.GPUs, 1), t.Precision, t.Optimizer, NotEstimated(m))
+		fix := "; fix them (see the diagnostics) for an estimate"
+		if m.StackErrors == 0 {
+			fix = "" // the reason says the fix (an empty stack)
+		}
+		fmt.Fprintf(b, "\n**Training memory per GPU** at batch %d on %d GPU(s), %s, %s: %s%s.\n",
+			max(t.Batch, 1), max(t.GPUs, 1), t.Precision, t.Optimizer, NotEstimated(m), fix)
 		writeDiagnostics(b, r)
 		return b.Flush()
 	}

@@ -215,7 +215,11 @@ func writeMemory(w io.Writer, an *engine.Analysis) {
 	}
 	fmt.Fprintln(w)
 	if !m.Estimated {
-		fmt.Fprintf(w, "  %s; fix them (listed below) for an estimate\n", NotEstimated(m))
+		fix := "; fix them (listed below) for an estimate"
+		if m.StackErrors == 0 {
+			fix = "" // the reason says the fix (an empty stack)
+		}
+		fmt.Fprintf(w, "  %s%s\n", NotEstimated(m), fix)
 		return
 	}
 	tb := table{align: []byte("lrr")}
@@ -251,8 +255,8 @@ func writeMemory(w io.Writer, an *engine.Analysis) {
 }
 
 // NotEstimated is the line every report gives instead of a memory verdict
-// when the stack has errors: "memory not estimated: the stack has 2
-// error(s)".
+// when the stack has errors or no layers: "memory not estimated: the stack
+// has 2 error(s)".
 func NotEstimated(m *engine.Memory) string {
 	return "memory not estimated: " + m.Reason()
 }

@@ -20,10 +20,11 @@ const Version = 1
 // Limits on what a stack file may hold. They keep absurd values from
 // reaching the engine and bound the work a hostile file can cause.
 const (
-	MaxFileBytes = 8 << 20           // largest stack file accepted
-	MaxNameLen   = engine.MaxNameLen // longest layer name
-	MaxNoteLen   = engine.MaxNoteLen // longest note
-	maxErrors    = 20                // problems reported before giving up
+	MaxFileBytes    = 8 << 20                // largest stack file accepted
+	MaxNameLen      = engine.MaxNameLen      // longest layer name
+	MaxNoteLen      = engine.MaxNoteLen      // longest note
+	MaxStackNameLen = engine.MaxStackNameLen // longest stack name
+	maxErrors       = 20                     // problems reported before giving up
 )
 
 // Layer fields are bounded by their kinds' descriptions in the engine;
@@ -244,7 +245,7 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 				d.fail(v, "stackfit", ErrVersion, "format version %d is not supported; this stackfit reads version %d", ver, Version)
 			}
 		case "name":
-			s.Name, _ = d.text(v, "name", 200)
+			s.Name, _ = d.text(v, "name", MaxStackNameLen)
 		case "note":
 			s.Note, _ = d.text(v, "note", MaxNoteLen)
 		case "input":

@@ -77,7 +77,8 @@ func readCalibration(r io.Reader) (calibration, error) {
 }
 
 // runCalibrate sets the training section's workspace and overhead from a
-// measurement the exported module made on the training box.
+// measurement the exported module made on the training box, each rounded
+// up to three significant digits (engine.CeilBytes).
 func runCalibrate(args []string, std IO) int {
 	fs := flag.NewFlagSet("calibrate", flag.ContinueOnError)
 	fs.SetOutput(io.Discard)
@@ -120,6 +121,9 @@ func runCalibrate(args []string, std IO) int {
 		fmt.Fprintf(std.Err, "stackfit calibrate: %s\n", textsafe.Text(err.Error()))
 		return ExitUsage
 	}
+	// Rounded up to the precision a person reads (25.9MiB, not
+	// 27097776B), so the file stays readable and the estimate errs high.
+	c.workspace, c.overhead = engine.CeilBytes(c.workspace), engine.CeilBytes(c.overhead)
 	was := s.Training
 	s.Training.Workspace, s.Training.Overhead = c.workspace, c.overhead
 	if _, note, err := disk.Save(file, s, data, store.SaveMode{}); err != nil {

@@ -88,7 +88,7 @@ func editorOptions(path string, builtin []byte, env environment, std IO) (editor
 		keysNote = keysNotice(err)
 		fmt.Fprintf(std.Err, "stackfit: %s\n", textsafe.Text(keysNote))
 	}
-	opt := editor.Options{Path: path, Keys: km, Styles: styles.DefaultStyles(), KeysPath: env.paths.Keys, Files: store.Disk{}}
+	opt := editor.Options{Path: path, Keys: km, Styles: stylesFor(env.color), KeysPath: env.paths.Keys, Files: store.Disk{}}
 	var importNote string
 	switch {
 	case strings.EqualFold(filepath.Ext(path), ".onnx"):
@@ -132,6 +132,16 @@ func editorOptions(path string, builtin []byte, env environment, std IO) (editor
 	opt.Recovery, notice = recovery(path, env.paths.State, opt.Base, opt.Stack, opt.NewFile)
 	opt.Notice = joinNotices(keysNote, importNote, notice)
 	return opt, release, ExitOK
+}
+
+// stylesFor picks the editor's look for the terminal's colours: without
+// any (NO_COLOR, or none supported) no attribute shows either, and the
+// no-colour styles mark what only a style would.
+func stylesFor(p termenv.Profile) styles.Styles {
+	if p == termenv.Ascii {
+		return styles.NoColorStyles()
+	}
+	return styles.DefaultStyles()
 }
 
 // keysNotice says that the keys file could not be used and the default

@@ -32,7 +32,7 @@ func needReference(t *testing.T) {
 const measureStack = `stackfit: 1
 name: cap inspector
 input: [1, 32, 32]
-training: {batch: 4}
+training: {batch: 4, precision: bf16-mixed, optimizer: adamw}
 layers:
   - {conv: 8, kernel: 3, pad: 1}
   - {norm: batch}
@@ -48,8 +48,10 @@ layers:
 // estimate table gives the engine's own figures for several settings, runs
 // its measuring entry point on the CPU (a few real training steps with
 // Debian's python3-torch; the CUDA path is the same code behind one
-// branch, run when a GPU is present), and feeds the output to stackfit
-// calibrate, which must write the workspace and overhead into the file.
+// branch, run when a GPU is present) — without flags it measures the
+// file's training settings, which its flags override — and feeds the
+// output to stackfit calibrate, which must write the workspace and
+// overhead into the file, rounded up to what a person reads.
 func TestMeasureAndCalibrate(t *testing.T) {
 	needReference(t)
 	if err := exec.Command(python, "-c", "import torch").Run(); err != nil {
@@ -77,10 +79,14 @@ func TestMeasureAndCalibrate(t *testing.T) {
 spec = importlib.util.spec_from_file_location("cap", sys.argv[1]); m = importlib.util.module_from_spec(spec); spec.loader.exec_module(m)
 print(json.dumps([m._estimate(b, p, o) for b, p, o in [(4, "fp32", "sgd"), (16, "bf16-mixed", "adamw"), (3, "fp16-master", "momentum")]]))
 print(json.dumps(torch.cuda.is_available()))
+buf = io.StringIO()
+with contextlib.redirect_stdout(buf):
+    m.main(["--measure", "--batch", "2", "--precision", "fp32", "--optimizer", "sgd", "--device", "cpu"])
+print(json.dumps(buf.getvalue()))
 for dev in ["cpu"] + (["cuda"] if torch.cuda.is_available() else []):
     buf = io.StringIO()
     with contextlib.redirect_stdout(buf):
-        m.main(["--measure", "--batch", "4", "--device", dev])
+        m.main(["--measure", "--device", dev])
     print(json.dumps(buf.getvalue()))`
 	out, err := exec.Command(python, "-c", probe, mod).CombinedOutput()
 	if err != nil {
@@ -89,8 +95,13 @@ for dev in ["cpu"] + (["cuda"] if torch.cuda.is_available() else []):
 	lines := strings.Split(strings.TrimSpace(string(out)), "\n")
 	var got []map[string]int64
 	var cuda bool
-	if len(lines) < 3 || json.Unmarshal([]byte(lines[0]), &got) != nil || json.Unmarshal([]byte(lines[1]), &cuda) != nil {
+	var override string
+	if len(lines) < 4 || json.Unmarshal([]byte(lines[0]), &got) != nil || json.Unmarshal([]byte(lines[1]), &cuda) != nil ||
+		json.Unmarshal([]byte(lines[2]), &override) != nil {
 		t.Fatalf("probe output:\n%s", out)
+	}
+	if !strings.Contains(override, ", batch 2, fp32, sgd\n") {
+		t.Errorf("the flags did not override the file's settings:\n%s", override)
 	}
 	for i, tr := range []engine.Training{{Batch: 4}, {Batch: 16, Precision: engine.BF16Mixed, Optimizer: engine.AdamW}, {Batch: 3, Precision: engine.FP16Master, Optimizer: engine.Momentum}} {
 		var m engine.Memory
@@ -106,12 +117,13 @@ for dev in ["cpu"] + (["cuda"] if torch.cuda.is_available() else []):
 	if !cuda {
 		t.Log("no CUDA device here: the CUDA measurement is not run")
 	}
-	for i, dev := range []string{"cpu", "cuda"}[:len(lines)-2] {
+	for i, dev := range []string{"cpu", "cuda"}[:len(lines)-3] {
 		var meas string
-		if err := json.Unmarshal([]byte(lines[2+i]), &meas); err != nil {
+		if err := json.Unmarshal([]byte(lines[3+i]), &meas); err != nil {
 			t.Fatalf("%s measurement: %v", dev, err)
 		}
-		for _, want := range []string{"stackfit measure: ", "activations", "measured peak (allocated)", calibrationPrefix + " device="} {
+		// Without flags: the file's batch, precision and optimizer.
+		for _, want := range []string{"stackfit measure: ", ", batch 4, bf16-mixed, adamw\n", "activations", "measured peak (allocated)", calibrationPrefix + " device="} {
 			if !strings.Contains(meas, want) {
 				t.Errorf("%s measurement lacks %q:\n%s", dev, want, meas)
 			}
@@ -137,8 +149,9 @@ for dev in ["cpu"] + (["cuda"] if torch.cuda.is_available() else []):
 		if err != nil {
 			t.Fatal(err)
 		}
-		if s.Training.Workspace != c.workspace || s.Training.Overhead != c.overhead || s.Training.Batch != 4 {
-			t.Errorf("calibrated training %+v, want workspace %d overhead %d", s.Training, c.workspace, c.overhead)
+		ws, oh := engine.CeilBytes(c.workspace), engine.CeilBytes(c.overhead)
+		if s.Training.Workspace != ws || s.Training.Overhead != oh || s.Training.Batch != 4 {
+			t.Errorf("calibrated training %+v, want workspace %d overhead %d (the measured %d and %d rounded up)", s.Training, ws, oh, c.workspace, c.overhead)
 		}
 	}
 }

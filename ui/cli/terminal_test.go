@@ -7,8 +7,11 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/muesli/termenv"
+
 	"stackfit/engine/examples"
 	"stackfit/ui/store"
+	"stackfit/ui/styles"
 )
 
 // TestDumbTerminal: a terminal whose TERM is dumb cannot move the cursor,
@@ -80,6 +83,9 @@ func TestKeysFileNotice(t *testing.T) {
 		{"clash", write("clash.yaml", "add: j\n"), `key "j" is bound to both "down" and "add" in normal mode`, "a"},
 		{"not YAML", write("junk.yaml", "- [\n"), "not a YAML mapping of action: keys", "a"},
 		{"a folder", dir, "is a folder, not a keys file", "a"},
+		{"no way out", write("noquit.yaml", "add: i\nquit: []\n"), "quit: [] would leave no key to leave the editor; give quit a key", "a"},
+		{"no save", write("nosave.yaml", "save: []\n"), "save: [] would leave no key to save your work", "a"},
+		{"ctrl+c taken", write("ctrlc.yaml", "add: ctrl+c\n"), "add: ctrl+c always quits", "a"},
 		{"a good file", write("good.yaml", "add: i\n"), "", "i"},
 		{"no file", filepath.Join(dir, "none.yaml"), "", "a"},
 	}
@@ -116,5 +122,31 @@ func TestKeysFileNotice(t *testing.T) {
 	}
 	if got := joinNotices("a", "", "b"); got != "a; b" {
 		t.Errorf("joinNotices = %q", got)
+	}
+}
+
+// TestNoColourStyles: with NO_COLOR (the ascii profile) the editor gets the
+// no-colour styles, which mark a selected field value; with colours, the
+// default ones, where reverse video shows it.
+func TestNoColourStyles(t *testing.T) {
+	tests := []struct {
+		profile termenv.Profile
+		marks   [2]string
+	}{
+		{termenv.Ascii, styles.NoColorStyles().SelectMarks},
+		{termenv.ANSI, [2]string{}},
+		{termenv.TrueColor, [2]string{}},
+	}
+	for _, tt := range tests {
+		var errb bytes.Buffer
+		env := environment{paths: store.Paths{State: t.TempDir()}, color: tt.profile}
+		opt, release, code := editorOptions("", examples.FruitGrader(), env, IO{Err: &errb})
+		release()
+		if code != ExitOK || opt.Styles.SelectMarks != tt.marks {
+			t.Errorf("profile %v: exit %d, marks %q; want %q", tt.profile, code, opt.Styles.SelectMarks, tt.marks)
+		}
+	}
+	if m := styles.NoColorStyles().SelectMarks; m[0] == "" || m[1] == "" {
+		t.Errorf("the no-colour styles do not mark a selected value: %q", m)
 	}
 }

@@ -5,6 +5,7 @@ import (
 	"strings"
 
 	"stackfit/engine"
+	"stackfit/engine/textsafe"
 	"stackfit/ui/editor/cells"
 )
 
@@ -28,7 +29,11 @@ func (fr *frame) footer(over []string) string {
 	case fr.previewBlocked:
 		lines[0] = fr.st.Bad.Render("memory not estimated") + " while a field is invalid (✗ in the form)"
 	case !mem.Estimated:
-		lines[0] = fr.st.Bad.Render("memory not estimated") + ": " + mem.Reason() + " (✗ marks them) · resolved rows: " + sizes
+		marks := " (✗ marks them)"
+		if mem.StackErrors == 0 {
+			marks = "" // an empty stack: the reason says the fix
+		}
+		lines[0] = fr.st.Bad.Render("memory not estimated") + ": " + mem.Reason() + marks + " · resolved rows: " + sizes
 	default:
 		verdict := ""
 		budget, short, bare := " (no budget)", " (no budget)", ""
@@ -141,7 +146,7 @@ func (fr *frame) legend(mem *engine.Memory) string {
 // with the batch).
 func (fr *frame) fitLine(mem *engine.Memory, ft engine.Fit, batch int64) string {
 	if !ft.HasBudget {
-		return fr.st.Dim.Render("set a budget (" + fr.keys.Settings.Help().Key + ") to see the largest batch and width that fit")
+		return fr.st.Dim.Render("set a budget (" + textsafe.Line(fr.keys.Settings.Help().Key) + ") to see the largest batch and width that fit")
 	}
 	var w string
 	switch {

@@ -21,19 +21,22 @@ func (m *Model) analyzeQuick(s *engine.Stack) *engine.Analysis {
 // accepted one.
 func (m *Model) layerForm(title string, orig engine.Layer, place func(s *engine.Stack, l engine.Layer), commit func(l engine.Layer) tea.Cmd, cancelled string) {
 	fields := engine.FieldsFor(orig.Kind)
+	ff := make([]form.Field, len(fields))
+	for i, fl := range fields {
+		ff[i] = form.Field{Key: fl.Key, Help: fl.Help, Value: fl.Get(&orig), Limit: fl.Limit}
+	}
 	build := func(values []string) (engine.Layer, []string) {
 		l := orig
 		errs := make([]string, len(fields))
 		for i, fl := range fields {
+			if values[i] == ff[i].Value {
+				continue // untouched: the layer keeps it as it is
+			}
 			if err := fl.Set(&l, values[i]); err != nil {
 				errs[i] = err.Error()
 			}
 		}
 		return l.Normalized(), errs
-	}
-	ff := make([]form.Field, len(fields))
-	for i, fl := range fields {
-		ff[i] = form.Field{Key: fl.Key, Help: fl.Help, Value: fl.Get(&orig)}
 	}
 	check := func(values []string) ([]string, []bool) {
 		l, errs := build(values)

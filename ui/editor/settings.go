@@ -39,7 +39,12 @@ func settingsSpecs() []settingSpec {
 	for _, s := range engine.StageSettings() {
 		help := s.Help
 		if s.Default == "" {
-			help += " (empty: as the stack around the stage)"
+			// Each template field's own help already says what empty
+			// means ("empty: as the stack, else …"); only a field that
+			// lacks it gets the general rule.
+			if !strings.Contains(help, "(empty:") {
+				help += " (empty: as the stack around the stage)"
+			}
 		} else {
 			help += " (default " + s.Default + ")"
 		}
@@ -54,16 +59,16 @@ func settingsSpecs() []settingSpec {
 // its name, its note and the input shape.
 func stackSpecs() []stackSpec {
 	return []stackSpec{
-		{"name", "the stack's name (shown in reports and the export)",
+		{"name", "the stack's name (shown in reports and the export)", engine.MaxStackNameLen, nil,
 			func(s *engine.Stack) string { return s.Name },
 			func(s *engine.Stack, v string) error {
-				if len(v) > engine.MaxNoteLen {
-					return fmt.Errorf("name: at most %d characters", engine.MaxNoteLen)
+				if len(v) > engine.MaxStackNameLen {
+					return fmt.Errorf("name: at most %d bytes", engine.MaxStackNameLen)
 				}
 				s.Name = strings.TrimSpace(v)
 				return nil
 			}},
-		{"note", "free text kept with the stack (" + lineBreak + " marks a line break)",
+		{"note", "free text kept with the stack (" + lineBreak + " marks a line break)", engine.MaxNoteLen, noteBytes,
 			func(s *engine.Stack) string {
 				return strings.ReplaceAll(strings.TrimSuffix(s.Note, "\n"), "\n", lineBreak)
 			},
@@ -73,12 +78,12 @@ func stackSpecs() []stackSpec {
 					note += "\n" // as the file had it
 				}
 				if len(note) > engine.MaxNoteLen {
-					return fmt.Errorf("note: at most %d characters", engine.MaxNoteLen)
+					return fmt.Errorf("note: at most %d bytes", engine.MaxNoteLen)
 				}
 				s.Note = note
 				return nil
 			}},
-		{"input", "one sample, channels×height×width, e.g. 3x256x256",
+		{"input", "one sample, channels×height×width, e.g. 3x256x256", 0, nil,
 			func(s *engine.Stack) string { return s.Input.String() },
 			func(s *engine.Stack, v string) error {
 				in, err := engine.ParseShape("input", v)
@@ -91,9 +96,15 @@ func stackSpecs() []stackSpec {
 // lineBreak stands for a line break of a note in its one-line field.
 const lineBreak = " ⏎ "
 
+// noteBytes measures the note field's text as the note it stands for (each
+// lineBreak one line feed), the length the stack file limits.
+func noteBytes(v string) int { return len(strings.ReplaceAll(v, lineBreak, "\n")) }
+
 // stackSpec is one of the stack's own fields in the setup form.
 type stackSpec struct {
 	key, help string
+	limit     int              // the stack file's limit (form.Field's Limit)
+	measure   func(string) int // how the limit counts (nil: bytes)
 	get       func(s *engine.Stack) string
 	set       func(s *engine.Stack, v string) error
 }
@@ -105,7 +116,7 @@ func (m *Model) editSettings() {
 	own, specs := stackSpecs(), settingsSpecs()
 	var fields []form.Field
 	for _, sp := range own {
-		fields = append(fields, form.Field{Key: sp.key, Help: sp.help, Value: sp.get(s0)})
+		fields = append(fields, form.Field{Key: sp.key, Help: sp.help, Value: sp.get(s0), Limit: sp.limit, Measure: sp.measure})
 	}
 	for _, sp := range specs {
 		fields = append(fields, form.Field{Key: sp.key, Help: sp.help, Value: sp.get(s0)})
@@ -114,11 +125,17 @@ func (m *Model) editSettings() {
 		s := s0.Clone()
 		errs := make([]string, len(values))
 		for i, sp := range own {
+			if values[i] == fields[i].Value {
+				continue // untouched: the stack keeps it as it is
+			}
 			if err := sp.set(s, values[i]); err != nil {
 				errs[i] = err.Error()
 			}
 		}
 		for i, sp := range specs {
+			if values[len(own)+i] == fields[len(own)+i].Value {
+				continue
+			}
 			if err := sp.set(s, values[len(own)+i]); err != nil {
 				errs[len(own)+i] = err.Error()
 			}

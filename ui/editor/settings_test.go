@@ -1,6 +1,7 @@
 package editor
 
 import (
+	"strings"
 	"testing"
 
 	"stackfit/engine"
@@ -54,5 +55,21 @@ func TestSetupFormFromSettings(t *testing.T) {
 	press(m, "enter")
 	if m.stack.Training.GPUs != 0 || m.file.dirty {
 		t.Errorf("gpus 1, the default, was written: %+v (dirty %v)", m.stack.Training, m.file.dirty)
+	}
+}
+
+// TestSetupHintsSayEmptyOnce: each setup-form hint says what an empty
+// field means at most once (a template field's own help already names
+// its default; the form must not add a second, general one), and every
+// stage field that falls back to the stack says so. Source: the form's
+// own contract that a hint is one short line.
+func TestSetupHintsSayEmptyOnce(t *testing.T) {
+	for _, s := range settingsSpecs() {
+		if n := strings.Count(s.help, "empty:"); n > 1 {
+			t.Errorf("%s: hint says what empty means %d times: %q", s.key, n, s.help)
+		}
+		if strings.HasPrefix(s.key, "stage ") && !strings.Contains(s.help, "empty:") && !strings.Contains(s.help, "(default ") {
+			t.Errorf("%s: hint names no default: %q", s.key, s.help)
+		}
 	}
 }

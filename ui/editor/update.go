@@ -5,6 +5,7 @@ import (
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
+	"stackfit/keymap"
 	"stackfit/ui/editor/confirm"
 	"stackfit/ui/editor/form"
 	"stackfit/ui/editor/prompt"
@@ -46,7 +47,7 @@ func (m *Model) Update(msg tea.Msg) (tea.Model, tea.Cmd) {
 // key gives a key to the open overlay, or to the stack view.
 func (m *Model) key(msg tea.KeyMsg) tea.Cmd {
 	m.statusNew = false
-	if key.Matches(msg, m.keys.ForceQuit) {
+	if key.Matches(msg, m.keys.ForceQuit) || msg.String() == keymap.AlwaysQuit {
 		if _, asking := m.overlay.(*confirm.Model); asking {
 			return m.quit() // ctrl+c on a question quits at once
 		}

@@ -27,7 +27,7 @@ func (m *Model) View() string {
 	}
 	lay := m.layout()
 	if lay.tooSmall {
-		note := fmt.Sprintf("stackfit needs a %d×%d window; this one is %d×%d.\nEnlarge it, or press q to quit.", minWidth, minHeight, m.width, m.height)
+		note := fmt.Sprintf("stackfit needs a %d×%d window; this one is %d×%d.\nEnlarge it, or press %s to quit.", minWidth, minHeight, m.width, m.height, textsafe.Line(m.keys.Quit.Help().Key))
 		return lipgloss.Place(max(m.width, 1), max(m.height, 1), lipgloss.Center, lipgloss.Center, note)
 	}
 	if h, ok := m.overlay.(*helpscreen.Model); ok {
@@ -189,9 +189,12 @@ func (m *Model) hintBar(bindings, keep []key.Binding) string {
 	sepW := cells.Width(sep)
 	// Widths from the plain text: styles are rendered only for the hints
 	// that are shown, once.
-	width := func(b key.Binding) int { return cells.Width(b.Help().Key) + 1 + cells.Width(b.Help().Desc) + sepW }
+	// Labels come from the keys file: escaped here too (textsafe.Line).
+	width := func(b key.Binding) int {
+		return cells.Width(textsafe.Line(b.Help().Key)) + 1 + cells.Width(textsafe.Line(b.Help().Desc)) + sepW
+	}
 	part := func(b key.Binding) string {
-		return m.st.Label.Render(b.Help().Key) + " " + m.st.Help.Render(b.Help().Desc)
+		return m.st.Label.Render(textsafe.Line(b.Help().Key)) + " " + m.st.Help.Render(textsafe.Line(b.Help().Desc))
 	}
 	isKept := func(b key.Binding) bool {
 		for _, k := range keep {

@@ -29,6 +29,10 @@ type Styles struct {
 	GaugeGlyph [6]string
 	// Free is the gauge's unused part; Reserve the headroom kept free.
 	Free, Reserve lipgloss.Style
+	// SelectMarks go either side of a text field's selected value (the
+	// one typing replaces), drawn in Cursor: empty where Cursor shows it,
+	// marks where it cannot (no colour: no attributes either).
+	SelectMarks [2]string
 }
 
 // DefaultStyles returns stackfit's look.
@@ -61,4 +65,15 @@ func DefaultStyles() Styles {
 		Free:       lipgloss.NewStyle().Foreground(c("8")),
 		Reserve:    lipgloss.NewStyle().Foreground(c("1")),
 	}
+}
+
+// NoColorStyles returns the look for NO_COLOR and terminals without
+// colour, where no colour nor attribute (reverse video included) shows:
+// DefaultStyles, with marks for what only a style showed there, as the
+// list's and the picker's cursor marks and the gauge's glyphs do. A text
+// field's selected value shows as ‹value›.
+func NoColorStyles() Styles {
+	st := DefaultStyles()
+	st.SelectMarks = [2]string{"‹", "›"}
+	return st
 }

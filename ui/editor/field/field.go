@@ -17,18 +17,30 @@ import (
 type Model struct {
 	input    textinput.Model
 	selected bool // the value is selected: typing replaces it
+	limit    int  // the most the value may measure; 0: no limit
+	measure  func(string) int
+	refused  bool // the last key would have taken the value past limit
 }
 
-// New returns a field holding value, at most limit characters long.
-func New(value string, limit int) Model {
+// New returns a field holding value. An edit that would make the value
+// measure more than limit (and more than before) is refused whole, not
+// cut: see Refused. The value given is never cut, whatever its length.
+// measure nil counts bytes; limit 0 sets no limit.
+func New(value string, limit int, measure func(string) int) Model {
 	in := textinput.New()
 	in.Prompt = ""
-	in.CharLimit = limit
 	in.Cursor.SetMode(cursor.CursorStatic)
 	in.SetValue(value)
 	in.CursorEnd()
-	return Model{input: in, selected: value != ""}
+	if measure == nil {
+		measure = func(s string) int { return len(s) }
+	}
+	return Model{input: in, selected: value != "", limit: limit, measure: measure}
 }
+
+// Refused reports whether the last key was refused because the value would
+// have measured more than the field's limit.
+func (m *Model) Refused() bool { return m.refused }
 
 // Value returns the text.
 func (m *Model) Value() string { return m.input.Value() }
@@ -60,8 +72,25 @@ func (m *Model) Blur() { m.input.Blur() }
 // Focused reports whether the field has the cursor.
 func (m *Model) Focused() bool { return m.input.Focused() }
 
-// Update applies a key to the field.
+// Update applies a key to the field. A key (a paste, most often) that
+// would take the value past the limit changes nothing, and Refused says
+// so.
 func (m *Model) Update(msg tea.KeyMsg) tea.Cmd {
+	old, pos, sel := m.input.Value(), m.input.Position(), m.selected
+	m.refused = false
+	cmd := m.update(msg)
+	if v := m.input.Value(); m.limit > 0 && v != old {
+		if n := m.measure(v); n > m.limit && n > m.measure(old) {
+			m.input.SetValue(old)
+			m.input.SetCursor(pos)
+			m.selected, m.refused = sel, true
+			return nil
+		}
+	}
+	return cmd
+}
+
+func (m *Model) update(msg tea.KeyMsg) tea.Cmd {
 	if m.selected {
 		m.selected = false
 		switch msg.Type {
@@ -77,10 +106,12 @@ func (m *Model) Update(msg tea.KeyMsg) tea.Cmd {
 	return cmd
 }
 
-// View draws the field; a selected value is drawn in the selected style.
-func (m *Model) View(selected lipgloss.Style) string {
+// View draws the field; a selected value is drawn in the selected style,
+// between marks (empty where the style alone shows it, styles.Styles'
+// SelectMarks).
+func (m *Model) View(selected lipgloss.Style, marks [2]string) string {
 	if m.Selected() {
-		return selected.Render(m.input.Value())
+		return marks[0] + selected.Render(m.input.Value()) + marks[1]
 	}
 	return m.input.View()
 }

@@ -7,6 +7,7 @@
 package form
 
 import (
+	"fmt"
 	"strings"
 
 	"github.com/charmbracelet/bubbles/key"
@@ -26,9 +27,16 @@ type KeyMap = keymap.FormKeys
 // DefaultKeyMap returns the form's built-in keys.
 func DefaultKeyMap() KeyMap { return keymap.DefaultKeyMap().Form() }
 
-// Field describes one field: its key, a help text, and its first value.
+// Field describes one field: its key, a help text, its first value, and
+// the most its value may hold.
 type Field struct {
 	Key, Help, Value string
+	// Limit is the most the value may measure (the limit the stack file
+	// has for it); 0: no limit of the form's own (Check judges the value).
+	// An edit past it is refused, not cut; the first value is never cut.
+	Limit int
+	// Measure measures a value against Limit; nil counts bytes.
+	Measure func(string) int
 }
 
 // Check judges all values as they stand: a message per invalid field (""
@@ -50,6 +58,7 @@ type row struct {
 	input  field.Model
 	err    string
 	hidden bool
+	edited bool // the value was changed; until then Values gives Field.Value as it came
 }
 
 // Model is an open form.
@@ -69,7 +78,7 @@ type Model struct {
 func New(title string, fields []Field, check Check, tag any, keys KeyMap, st styles.Styles) *Model {
 	f := &Model{Title: title, KeyMap: keys, tag: tag, check: check, st: st}
 	for _, fl := range fields {
-		f.rows = append(f.rows, row{Field: fl, input: field.New(fl.Value, 256)})
+		f.rows = append(f.rows, row{Field: fl, input: field.New(fl.Value, fl.Limit, fl.Measure)})
 	}
 	if len(f.rows) > 0 {
 		f.rows[0].input.Focus()
@@ -78,11 +87,17 @@ func New(title string, fields []Field, check Check, tag any, keys KeyMap, st sty
 	return f
 }
 
-// Values returns the fields' text, in order.
+// Values returns the fields' text, in order. A field the user has not
+// changed gives its first value exactly as it came (the text field shows
+// line breaks and tabs as spaces), so accepting a form never rewrites a
+// value nobody touched.
 func (f *Model) Values() []string {
 	out := make([]string, len(f.rows))
 	for i := range f.rows {
-		out[i] = f.rows[i].input.Value()
+		out[i] = f.rows[i].Value
+		if f.rows[i].edited {
+			out[i] = f.rows[i].input.Value()
+		}
 	}
 	return out
 }
@@ -173,7 +188,14 @@ func (f *Model) Update(msg tea.Msg) (tea.Msg, tea.Cmd) {
 	if len(f.rows) == 0 {
 		return nil, nil
 	}
-	cmd := f.rows[f.focus].input.Update(k)
+	r := &f.rows[f.focus]
+	before := r.input.Value()
+	cmd := r.input.Update(k)
+	if r.input.Refused() {
+		f.notice = fmt.Sprintf("%s holds at most %d bytes; that would make it longer, so nothing was added — shorten it first", r.Key, r.Limit)
+		return nil, nil
+	}
+	r.edited = r.edited || r.input.Value() != before
 	f.validate()
 	return nil, cmd
 }
@@ -183,7 +205,7 @@ func (f *Model) Update(msg tea.Msg) (tea.Msg, tea.Cmd) {
 func (f *Model) View(width, height int) string {
 	title := f.st.Label.Render(textsafe.Line(f.Title)) + f.st.Dim.Render("  — numbers below follow as you type")
 	if f.notice != "" {
-		title = f.st.Error.Render(f.notice)
+		title = f.st.Error.Render(textsafe.Line(f.notice)) // names a key of the keys file
 	}
 	lines := []string{title}
 	labelW := 0
@@ -216,7 +238,7 @@ func (f *Model) View(width, height int) string {
 		if r.err != "" {
 			note = f.st.Error.Render("✗ " + textsafe.Line(r.err))
 		}
-		line := mark + f.st.Label.Render(cells.Fit(r.Key, labelW)) + "  " + cells.Fit(r.input.View(f.st.Cursor), 18) + "  "
+		line := mark + f.st.Label.Render(cells.Fit(r.Key, labelW)) + "  " + cells.Fit(r.input.View(f.st.Cursor, f.st.SelectMarks), 18) + "  "
 		if i != f.focus || r.err == "" || cells.Width(line+note) <= width {
 			lines = append(lines, line+note)
 		} else {

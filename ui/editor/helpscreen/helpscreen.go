@@ -13,6 +13,7 @@ import (
 	tea "github.com/charmbracelet/bubbletea"
 	"github.com/charmbracelet/x/ansi"
 
+	"stackfit/engine/textsafe"
 	"stackfit/keymap"
 	"stackfit/ui/editor/cells"
 	"stackfit/ui/styles"
@@ -118,15 +119,15 @@ func (h *Model) layout(width int) []string {
 				continue
 			}
 			shown = append(shown, b)
-			keyW = max(keyW, cells.Width(b.Help().Key))
-			descW = max(descW, cells.Width(b.Help().Desc))
+			keyW = max(keyW, cells.Width(textsafe.Line(b.Help().Key)))
+			descW = max(descW, cells.Width(textsafe.Line(b.Help().Desc)))
 		}
 		if len(shown) == 0 {
 			continue
 		}
 		c := column{width: keyW + 1 + descW}
 		for _, b := range shown {
-			c.lines = append(c.lines, h.st.Label.Render(cells.Fit(b.Help().Key, keyW))+" "+h.st.Help.Render(cells.Fit(b.Help().Desc, descW)))
+			c.lines = append(c.lines, h.st.Label.Render(cells.Fit(textsafe.Line(b.Help().Key), keyW))+" "+h.st.Help.Render(cells.Fit(textsafe.Line(b.Help().Desc), descW)))
 		}
 		cols = append(cols, c)
 	}
@@ -163,7 +164,7 @@ func (h *Model) layout(width int) []string {
 	}
 	for _, s := range h.sections {
 		if s.Title != "" {
-			out = append(out, h.st.Title.Render(s.Title))
+			out = append(out, h.st.Title.Render(textsafe.Line(s.Title)))
 		}
 		out = append(out, strings.Split(ansi.Wrap(s.Body, max(width, 20), " "), "\n")...)
 		out = append(out, "")
@@ -181,7 +182,7 @@ func (h *Model) View(width, height int) string {
 	if h.offset == 0 && end == len(h.lines) {
 		where = "all shown"
 	}
-	foot := h.st.Dim.Render(where + " · " + h.Keys.Up.Help().Key + " " + h.Keys.Down.Help().Key + " " +
-		h.Keys.PageDown.Help().Key + " scroll · " + h.Keys.Close.Help().Key + " or " + h.Keys.Cancel.Help().Key + " closes")
+	foot := h.st.Dim.Render(textsafe.Line(where + " · " + h.Keys.Up.Help().Key + " " + h.Keys.Down.Help().Key + " " +
+		h.Keys.PageDown.Help().Key + " scroll · " + h.Keys.Close.Help().Key + " or " + h.Keys.Cancel.Help().Key + " closes"))
 	return cells.Block(shown, page, width) + cells.Fit(foot, width)
 }

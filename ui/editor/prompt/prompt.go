@@ -9,6 +9,7 @@ package prompt
 
 import (
 	"strings"
+	"unicode/utf8"
 
 	"github.com/charmbracelet/bubbles/key"
 	tea "github.com/charmbracelet/bubbletea"
@@ -59,7 +60,7 @@ type Model struct {
 // New returns a prompt holding value (selected); check and complete may be
 // nil.
 func New(label, value string, check Check, complete Complete, tag any, keys KeyMap, st styles.Styles) *Model {
-	p := &Model{Label: label, Keys: keys, tag: tag, input: field.New(value, 512), check: check, complete: complete, st: st}
+	p := &Model{Label: label, Keys: keys, tag: tag, input: field.New(value, 512, utf8.RuneCountInString), check: check, complete: complete, st: st}
 	p.input.Focus()
 	p.validate()
 	return p
@@ -123,7 +124,7 @@ func (p *Model) Update(msg tea.Msg) (tea.Msg, tea.Cmd) {
 func (p *Model) View(width int) string {
 	// The field itself is safe: the text input drops control characters
 	// from what it is given or typed.
-	line := p.st.Label.Render(textsafe.Line(p.Label)+": ") + p.input.View(p.st.Cursor)
+	line := p.st.Label.Render(textsafe.Line(p.Label)+": ") + p.input.View(p.st.Cursor, p.st.SelectMarks)
 	hint := textsafe.Line(p.hint)
 	if p.bad {
 		hint = p.st.Error.Render(hint)
