@@ -1,6 +1,10 @@
 package engine
 
-import "math"
+import (
+	"maps"
+	"math"
+	"slices"
+)
 
 // MaxBlockDepth is how deeply blocks may nest (paths hold item and repeat
 // numbers for each level).
@@ -254,7 +258,11 @@ func (c *calc) merge(f *flow) {
 			if c.r.stack != nil && hasName(c.r.stack.Layers, name) {
 				code = ErrMergeLater
 			}
-			c.fail(Diagnostic{Code: code, Field: l.Kind.String(), Name: name})
+			d := Diagnostic{Code: code, Field: l.Kind.String(), Name: name}
+			if code == ErrMergeUnknown {
+				d.Hint = c.r.closestTap(name)
+			}
+			c.fail(d)
 			return
 		}
 		other = t.f
@@ -315,4 +323,11 @@ func hasName(ls []Layer, name string) bool {
 		}
 	}
 	return false
+}
+
+// closestTap returns the earlier output's name that name is likely a slip
+// for (Suggest, over the names seen so far), or "". It runs only on the
+// error path.
+func (r *Result) closestTap(name string) string {
+	return Suggest(name, slices.Sorted(maps.Keys(r.taps))) // sorted: ties resolve the same way every time
 }

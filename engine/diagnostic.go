@@ -73,6 +73,82 @@ const (
 	WarnForkOne                       // a fork with a single branch joins nothing
 )
 
+// codeNames are the diagnostics' stable names: the words a stack file's
+// quiet: list and the reports use. A name never changes once given, so a
+// file that silences a warning keeps doing so.
+var codeNames = [...]string{
+	ErrOutputSize:     "output-size",
+	ErrKernelTooLarge: "kernel-too-large",
+	ErrGroupsChannels: "groups-channels",
+	ErrGroupsFilters:  "groups-filters",
+	ErrDenseSpatial:   "dense-on-map",
+	ErrReshapeCount:   "reshape-count",
+	ErrOverflow:       "overflow",
+	ErrPoolPad:        "pool-padding",
+	ErrOutPad:         "output-padding",
+	ErrSamePad:        "same-padding",
+	ErrNormGroups:     "norm-groups",
+	ErrValue:          "value-range",
+	ErrNormSingle:     "norm-single-position",
+	ErrTooManyRows:    "too-many-rows",
+	ErrMergeUnknown:   "merge-unknown",
+	ErrMergeLater:     "merge-later",
+	ErrMergeShape:     "merge-size",
+	ErrAddChannels:    "add-channels",
+	ErrNameTwice:      "name-twice",
+	ErrProjection:     "shortcut-impossible",
+	ErrNesting:        "nesting-depth",
+	WarnStrideDrop:    "stride-drops-edge",
+	WarnSameAsym:      "same-padding-uneven",
+	WarnFinalRF:       "small-receptive-field",
+	WarnParamShare:    "parameter-heavy-layer",
+	WarnChannels8:     "channels-not-multiple-of-8",
+	WarnMergeJump:     "merge-stride-mismatch",
+	InfoCrop:          "merge-crop",
+	ErrGateShape:      "gate-shape",
+	ErrDenseShape:     "dense-link-size",
+	ErrShuffleGroups:  "shuffle-groups",
+	ErrWidthZero:      "width-zero",
+	ErrForkEmpty:      "fork-empty",
+	ErrSplitWidth:     "split-width",
+	ErrBranchShape:    "branch-size",
+	ErrBranchPlace:    "branch-place",
+	WarnForkOne:       "fork-one-branch",
+}
+
+// Name returns the code's stable name, e.g. "small-receptive-field"; ""
+// for an unknown code.
+func (c Code) Name() string {
+	if int(c) < len(codeNames) {
+		return codeNames[c]
+	}
+	return ""
+}
+
+// warningCodes are the codes whose diagnostics are warnings.
+var warningCodes = []Code{WarnStrideDrop, WarnSameAsym, WarnFinalRF, WarnParamShare, WarnChannels8, WarnMergeJump, WarnForkOne}
+
+// WarningNames lists the names of every warning, the ones a stack may
+// silence, in code order.
+func WarningNames() []string {
+	out := make([]string, len(warningCodes))
+	for i, c := range warningCodes {
+		out[i] = c.Name()
+	}
+	return out
+}
+
+// WarningByName returns the warning code named name (exactly as
+// WarningNames spells it).
+func WarningByName(name string) (Code, bool) {
+	for _, c := range warningCodes {
+		if c.Name() == name {
+			return c, true
+		}
+	}
+	return 0, false
+}
+
 // Diagnostic is one problem found in a stack, tied to a row of the result.
 // Name carries a layer name the message needs (merges).
 type Diagnostic struct {
@@ -82,6 +158,9 @@ type Diagnostic struct {
 	Row      int    // index into Result.Rows
 	Field    string // the stack-file field at fault, e.g. "kernel"
 	Axis     byte   // 'h', 'w' or 'b' (both) for per-axis problems, else 0
+	// Hint is what the message offers in place of a misspelt word (a
+	// merge's likely target); "" when nothing is close.
+	Hint string
 	// The numbers involved; their meaning depends on Code.
 	A, B, C, D, E int64
 }
@@ -143,6 +222,9 @@ func (d Diagnostic) Message() string {
 	case ErrTooManyRows:
 		return fmt.Sprintf("the repeats expand the stack to %d layers; the limit is %d — lower a repeat count", d.A, d.B)
 	case ErrMergeUnknown:
+		if d.Hint != "" {
+			return fmt.Sprintf("no earlier layer or block is named %q; did you mean %q?", d.Name, d.Hint)
+		}
 		return fmt.Sprintf("no layer or block is named %q; name the layer to merge with name: %s", d.Name, d.Name)
 	case ErrMergeLater:
 		return fmt.Sprintf("%q comes later in the stack; a merge can only use an earlier output", d.Name)

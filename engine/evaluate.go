@@ -104,6 +104,7 @@ type Result struct {
 	Notes    int // diagnostics of SevInfo
 
 	tally tally
+	quiet uint64 // bit c set: warnings of code c are silenced (Stack.Quiet)
 	stack *Stack
 	taps  map[string]tap // named outputs seen so far
 	synth synthPool      // layers residual blocks add, reused between evaluations
@@ -159,6 +160,12 @@ func (r *Result) Evaluate(s *Stack) {
 	r.Errors, r.Warnings, r.Notes = 0, 0, 0
 	r.Input = s.Input
 	r.stack = s
+	r.quiet = 0
+	for _, c := range s.Quiet {
+		if c < 64 {
+			r.quiet |= 1 << c
+		}
+	}
 	r.synth.reset()
 	r.fixed.init()
 	if r.taps == nil {
@@ -208,6 +215,9 @@ func (r *Result) inputError(in Shape) {
 //
 //go:noinline
 func (r *Result) diag(d Diagnostic) {
+	if d.Severity == SevWarning && d.Code < 64 && r.quiet&(1<<d.Code) != 0 {
+		return // the stack silences this warning
+	}
 	switch d.Severity {
 	case SevError:
 		r.Errors++
@@ -358,7 +368,10 @@ func (r *Result) finish() {
 		pct := int64(math.Round(100 * float64(p) / float64(r.Totals.Params)))
 		r.diag(Diagnostic{Severity: SevWarning, Code: WarnParamShare, Row: b, Field: "parameters", A: p, B: r.Totals.Params, C: pct})
 	}
-	if last := len(r.Rows) - 1; r.Errors == 0 && last >= 0 {
+	// A stack whose output keeps a spatial map (a segmenter, a detector's
+	// grid) gives one answer per position, each meant to see a part of
+	// the image: only a single-position output should see all of it.
+	if last := len(r.Rows) - 1; r.Errors == 0 && last >= 0 && r.Rows[last].Out.H <= 1 && r.Rows[last].Out.W <= 1 {
 		rf := r.Rows[last].RF
 		in := r.Input
 		if int64(rf.H) < in.H || int64(rf.W) < in.W {

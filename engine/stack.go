@@ -1,5 +1,7 @@
 package engine
 
+import "slices"
+
 // Stack is a whole network description: a name, the per-sample input shape,
 // the layers in order, the training settings and the settings of the
 // stage InsertStage adds.
@@ -10,12 +12,16 @@ type Stack struct {
 	Layers   []Layer
 	Training Training
 	Stage    Stage
+	// Quiet lists the warnings this stack silences (each a warning code,
+	// once): Evaluate does not report them.
+	Quiet []Code
 }
 
 // Clone returns a deep copy of the stack, safe to edit independently.
 func (s *Stack) Clone() *Stack {
 	c := *s
 	c.Layers = CloneLayers(s.Layers)
+	c.Quiet = slices.Clone(s.Quiet)
 	return &c
 }
 

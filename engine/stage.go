@@ -37,6 +37,7 @@ type Stage struct {
 	ActSet  bool     // Act or NoAct was chosen; false: from the stack
 	NoAct   bool     // no activation
 	Slope   float64  // leaky-relu's slope; 0: from the stack
+	Up      UpMode   // how the up-stage key doubles the size (UpDeconv by default)
 }
 
 // StageTemplate returns the options of a stage inserted after top-level
@@ -55,7 +56,7 @@ type Stage struct {
 // A stack using leaky-relu 0.2 so gets leaky-relu 0.2.
 func StageTemplate(s *Stack, after int) StageOptions {
 	st := s.Stage
-	opt := StageOptions{Cap: DefaultStageCap, Repeat: DefaultStageLayers}
+	opt := StageOptions{Cap: DefaultStageCap, Repeat: DefaultStageLayers, Up: st.Up}
 	if st.Cap > 0 {
 		opt.Cap = st.Cap
 	}
@@ -306,6 +307,18 @@ func StageSettings() []StageSetting {
 				return nil
 			},
 			clear: func(st *Stage) { st.Slope = 0 }},
+		{Key: "up", Help: "how an up-stage doubles the size: deconv (2×2, stride 2) or upsample (nearest ×2, then a convolution)",
+			Kind: SettingChoice, Options: append([]string{}, upNames[:]...), Default: UpDeconv.String(), Example: "upsample",
+			get: func(st Stage) (string, bool) { return st.Up.String(), st.Up != UpDeconv },
+			parse: func(st *Stage, text string) error {
+				i, err := ParseChoice("up", text, upNames[:])
+				if err != nil {
+					return err
+				}
+				st.Up = UpMode(i)
+				return nil
+			},
+			clear: func(st *Stage) { st.Up = UpDeconv }},
 	}
 }
 

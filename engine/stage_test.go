@@ -3,6 +3,7 @@ package engine
 import (
 	"errors"
 	"reflect"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -14,7 +15,7 @@ func TestStageSettingsCoverStage(t *testing.T) {
 	owner := map[string]string{}
 	for _, s := range StageSettings() {
 		texts := []string{s.Example}
-		if s.Kind == SettingChoice {
+		if s.Kind == SettingChoice && slices.Contains(s.Options, "none") {
 			texts = append(texts, "none")
 		}
 		changed := 0
@@ -46,7 +47,7 @@ func TestStageSettingsCoverStage(t *testing.T) {
 	if n := reflect.TypeFor[Stage]().NumField(); len(owner) != n {
 		t.Errorf("stage settings set %d of Stage's %d fields: %v", len(owner), n, owner)
 	}
-	if strings.Join(StageSettingKeys(), " ") != "cap layers kernel bias norm groups act slope" {
+	if strings.Join(StageSettingKeys(), " ") != "cap layers kernel bias norm groups act slope up" {
 		t.Errorf("keys %v", StageSettingKeys())
 	}
 }
@@ -77,6 +78,8 @@ func TestStageSettingsParse(t *testing.T) {
 		{"act", "relu", Stage{Act: ActReLU, ActSet: true}, "relu"},
 		{"act", "none", Stage{ActSet: true, NoAct: true}, "none"},
 		{"slope", "0.2", Stage{Slope: 0.2}, "0.2"},
+		{"up", "Upsample", Stage{Up: UpResize}, "upsample"},
+		{"up", "deconv", Stage{}, "deconv"},
 	}
 	for _, tt := range tests {
 		s, ok := StageSettingFor(tt.key)
@@ -115,6 +118,7 @@ func TestStageSettingsRefuse(t *testing.T) {
 		{"act", "lrelu", `act: "lrelu" is not valid; give one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid, none; did you mean "leaky-relu"?`},
 		{"slope", "0", `slope: "0" is not valid; give a number above 0 and below 1e6, e.g. 0.2`},
 		{"slope", "NaN", `slope: "NaN" is not valid; give a number above 0 and below 1e6, e.g. 0.2`},
+		{"up", "transposed", `up: "transposed" is not valid; give one of deconv, upsample`},
 	}
 	for _, tt := range tests {
 		s, _ := StageSettingFor(tt.key)

@@ -121,6 +121,7 @@ type StageOptions struct {
 	NoAct  bool     // no activation after each norm
 	Act    ActKind  // the activation (ReLU by default)
 	Slope  float64  // leaky-relu's negative slope; 0 means its default, 0.01
+	Up     UpMode   // how an up-stage (InsertUpStage) doubles the size
 }
 
 // InsertStage returns a copy of s with a downsampling stage inserted after
@@ -130,39 +131,14 @@ type StageOptions struct {
 // norm and the activation of opt — run opt.Repeat + 1 times. A block's
 // later repeats run with stride 1 (strides: first), so the first repeat
 // halves the resolution and the others keep it: the same rows as the
-// convolution, norm and activation written out Repeat + 1 times. It also
-// returns how many items it inserted (1: the block, at index after + 1).
+// convolution, norm and activation written out Repeat + 1 times. The block
+// is named DownStagePrefix and the first free number ("down1", "down2"),
+// so a later up-stage can join it (InsertUpStage). It also returns how
+// many items it inserted (1: the block, at index after + 1).
 func InsertStage(s *Stack, after int, opt StageOptions) (*Stack, int, error) {
-	if after < -1 || after >= len(s.Layers) {
-		return nil, 0, fmt.Errorf("%w: no layer %d to insert after (the stack has %d)", ErrTransform, after+1, len(s.Layers))
-	}
-	if opt.Repeat < 0 || opt.Repeat > MaxStageLayers {
-		return nil, 0, fmt.Errorf("%w: stage repeat %d must be between 0 and %d", ErrTransform, opt.Repeat, MaxStageLayers)
-	}
-	if opt.Cap < 0 {
-		return nil, 0, fmt.Errorf("%w: channel cap %d must not be negative", ErrTransform, opt.Cap)
-	}
-	k := opt.Kernel
-	if k == 0 {
-		k = DefaultStageKernel
-	}
-	if k < 1 || k > MaxStageKernel || k%2 == 0 {
-		return nil, 0, fmt.Errorf("%w: kernel %d must be odd, from 1 to %d (the padding k/2 then keeps the size)", ErrTransform, k, MaxStageKernel)
-	}
-	if int(opt.Norm) >= len(normNames) || int(opt.Act) >= len(activations) || opt.Groups < 0 || !(opt.Slope >= 0 && opt.Slope < maxStageSlope) {
-		return nil, 0, fmt.Errorf("%w: the stage template is not valid (norm %d, groups %d, activation %d, slope %g)", ErrTransform, opt.Norm, opt.Groups, opt.Act, opt.Slope)
-	}
-	in := s.Input
-	if after >= 0 {
-		prefix := &Stack{Input: s.Input, Layers: s.Layers[:after+1]}
-		r := Evaluate(prefix)
-		if r.Errors > 0 {
-			return nil, 0, fmt.Errorf("%w: layer %d has no known output (fix the errors above it first)", ErrTransform, after+1)
-		}
-		in = r.Output
-	}
-	if in.C < 1 {
-		return nil, 0, fmt.Errorf("%w: the input has no channels", ErrTransform)
+	k, in, err := stageInput(s, after, opt)
+	if err != nil {
+		return nil, 0, err
 	}
 	c := 2 * in.C
 	if opt.Cap > 0 {
@@ -170,7 +146,21 @@ func InsertStage(s *Stack, after int, opt StageOptions) (*Stack, int, error) {
 	}
 	conv := Layer{Kind: KindConv, Filters: c, Kernel: Square(k), Stride: Square(2), Pad: Padding{Size: Square(k / 2)},
 		NoBias: !opt.Bias.Or(opt.NoNorm)}
+	body, err := stageBody(conv, opt)
+	if err != nil {
+		return nil, 0, err
+	}
+	block := Layer{Kind: KindBlock, Name: FreeName(s, DownStagePrefix), Repeat: int64(opt.Repeat) + 1, Body: body}
+	out := s.Clone()
+	out.Layers = append(out.Layers[:after+1:after+1], append([]Layer{block}, s.Layers[after+1:]...)...)
+	return out, 1, nil
+}
+
+// stageBody returns conv followed by the norm and the activation of opt:
+// one repeat of a stage.
+func stageBody(conv Layer, opt StageOptions) ([]Layer, error) {
 	body := []Layer{conv}
+	c := conv.Filters
 	if !opt.NoNorm {
 		norm := Layer{Kind: KindNorm, Norm: opt.Norm}
 		if opt.Norm == NormGroup {
@@ -179,7 +169,7 @@ func InsertStage(s *Stack, after int, opt StageOptions) (*Stack, int, error) {
 				norm.NormGroups = DefaultStageGroups
 			}
 			if c%norm.NormGroups != 0 {
-				return nil, 0, fmt.Errorf("%w: group norm's %d groups do not divide the stage's %d channels; set the stage's groups to a divisor of %d", ErrTransform, norm.NormGroups, c, c)
+				return nil, fmt.Errorf("%w: group norm's %d groups do not divide the stage's %d channels; set the stage's groups to a divisor of %d", ErrTransform, norm.NormGroups, c, c)
 			}
 		}
 		body = append(body, norm)
@@ -191,8 +181,42 @@ func InsertStage(s *Stack, after int, opt StageOptions) (*Stack, int, error) {
 		}
 		body = append(body, act)
 	}
-	block := Layer{Kind: KindBlock, Repeat: int64(opt.Repeat) + 1, Body: body}
-	out := s.Clone()
-	out.Layers = append(out.Layers[:after+1:after+1], append([]Layer{block}, s.Layers[after+1:]...)...)
-	return out, 1, nil
+	return body, nil
+}
+
+// stageInput checks a stage's options and its place (after a top-level
+// item, −1: at the start) and returns its kernel and the shape it reads.
+func stageInput(s *Stack, after int, opt StageOptions) (int64, Shape, error) {
+	if after < -1 || after >= len(s.Layers) {
+		return 0, Shape{}, fmt.Errorf("%w: no layer %d to insert after (the stack has %d)", ErrTransform, after+1, len(s.Layers))
+	}
+	if opt.Repeat < 0 || opt.Repeat > MaxStageLayers {
+		return 0, Shape{}, fmt.Errorf("%w: stage repeat %d must be between 0 and %d", ErrTransform, opt.Repeat, MaxStageLayers)
+	}
+	if opt.Cap < 0 {
+		return 0, Shape{}, fmt.Errorf("%w: channel cap %d must not be negative", ErrTransform, opt.Cap)
+	}
+	k := opt.Kernel
+	if k == 0 {
+		k = DefaultStageKernel
+	}
+	if k < 1 || k > MaxStageKernel || k%2 == 0 {
+		return 0, Shape{}, fmt.Errorf("%w: kernel %d must be odd, from 1 to %d (the padding k/2 then keeps the size)", ErrTransform, k, MaxStageKernel)
+	}
+	if int(opt.Norm) >= len(normNames) || int(opt.Act) >= len(activations) || opt.Groups < 0 || !(opt.Slope >= 0 && opt.Slope < maxStageSlope) {
+		return 0, Shape{}, fmt.Errorf("%w: the stage template is not valid (norm %d, groups %d, activation %d, slope %g)", ErrTransform, opt.Norm, opt.Groups, opt.Act, opt.Slope)
+	}
+	in := s.Input
+	if after >= 0 {
+		prefix := &Stack{Input: s.Input, Layers: s.Layers[:after+1]}
+		r := Evaluate(prefix)
+		if r.Errors > 0 {
+			return 0, Shape{}, fmt.Errorf("%w: layer %d has no known output (fix the errors above it first)", ErrTransform, after+1)
+		}
+		in = r.Output
+	}
+	if in.C < 1 {
+		return 0, Shape{}, fmt.Errorf("%w: the input has no channels", ErrTransform)
+	}
+	return k, in, nil
 }

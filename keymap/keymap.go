@@ -38,7 +38,7 @@ type KeyMap struct {
 	Up, Down, PageUp, PageDown, Top, Bottom, Fold key.Binding
 	// Editing the stack.
 	Edit, Add, QuickAdd, Copy, Delete, MoveUp, MoveDown, Select, Wrap key.Binding
-	Widen, Narrow, Width, Stage, Undo, Redo                           key.Binding
+	Widen, Narrow, Width, Stage, UpStage, Undo, Redo                  key.Binding
 	// Panels and files.
 	Settings, ChartView, Baseline, ShowHelp, Save, SaveAs, Open, Quit, ForceQuit key.Binding
 	// Forms, pickers and prompts.
@@ -47,6 +47,8 @@ type KeyMap struct {
 	Yes, No key.Binding
 	// Reload reads a file again (offered when it changed on disk).
 	Reload key.Binding
+	// Folding everything, jumping between problems, scrolling the details.
+	FoldAll, UnfoldAll, NextProblem, PrevProblem, DetailsDown, DetailsUp key.Binding
 }
 
 // DefaultKeyMap returns the built-in bindings. Arrow keys and vim-style
@@ -67,7 +69,7 @@ func DefaultKeyMap() KeyMap {
 		Edit:     b("enter/e", "edit fields", "enter", "e"),
 		Add:      b("a", "add layer below", "a"),
 		QuickAdd: b(":", "type a layer line", ":"),
-		Copy:     b("c", "copy layer below", "c"),
+		Copy:     b("c", "copy layer/range below", "c"),
 		Delete:   b("x", "delete", "x", "delete"),
 		MoveUp:   b("K/⇧↑", "move up", "K", "shift+up"),
 		MoveDown: b("J/⇧↓", "move down", "J", "shift+down"),
@@ -77,6 +79,7 @@ func DefaultKeyMap() KeyMap {
 		Narrow:   b("<", "filters ÷2", "<", ","),
 		Width:    b("*", "width multiplier", "*"),
 		Stage:    b("n", "new downsample stage", "n"),
+		UpStage:  b("N", "new upsample stage", "N"),
 		Undo:     b("u", "undo", "u", "ctrl+z"),
 		Redo:     b("U/ctrl+r", "redo", "U", "ctrl+y", "ctrl+r"), // ctrl+r: vi's redo
 
@@ -99,6 +102,13 @@ func DefaultKeyMap() KeyMap {
 		Yes:    b("y", "yes", "y"),
 		No:     b("n", "no", "n"),
 		Reload: b("r", "reload", "r"),
+
+		FoldAll:     b("-", "fold all", "-"),
+		UnfoldAll:   b("+", "unfold all", "+", "="),
+		NextProblem: b("f", "next error/warning", "f"),
+		PrevProblem: b("F", "previous error/warning", "F"),
+		DetailsDown: b("}", "scroll details down", "}"),
+		DetailsUp:   b("{", "scroll details up", "{"),
 	}
 }
 
@@ -121,7 +131,7 @@ func (k *KeyMap) Actions() []Action {
 		{"edit", n, &k.Edit}, {"add", n, &k.Add}, {"quick-add", n, &k.QuickAdd}, {"copy", n, &k.Copy},
 		{"delete", n, &k.Delete}, {"move-up", n, &k.MoveUp}, {"move-down", n, &k.MoveDown},
 		{"select", n, &k.Select}, {"wrap", n, &k.Wrap}, {"widen", n, &k.Widen}, {"narrow", n, &k.Narrow},
-		{"width", n, &k.Width}, {"stage", n, &k.Stage}, {"undo", n, &k.Undo}, {"redo", n, &k.Redo},
+		{"width", n, &k.Width}, {"stage", n, &k.Stage}, {"up-stage", n, &k.UpStage}, {"undo", n, &k.Undo}, {"redo", n, &k.Redo},
 		{"settings", n, &k.Settings}, {"chart", []Mode{Normal, Chart}, &k.ChartView}, {"baseline", n, &k.Baseline},
 		{"help", []Mode{Normal, Help}, &k.ShowHelp}, {"save", n, &k.Save}, {"save-as", n, &k.SaveAs},
 		{"open", n, &k.Open}, {"quit", n, &k.Quit},
@@ -131,6 +141,9 @@ func (k *KeyMap) Actions() []Action {
 		{"cancel", []Mode{Form, Picker, Prompt, Confirm, Chart, Help}, &k.Cancel},
 		{"complete", []Mode{Prompt}, &k.Complete},
 		{"yes", []Mode{Confirm}, &k.Yes}, {"no", []Mode{Confirm}, &k.No}, {"reload", []Mode{Confirm}, &k.Reload},
+		{"fold-all", n, &k.FoldAll}, {"unfold-all", n, &k.UnfoldAll},
+		{"next-problem", n, &k.NextProblem}, {"prev-problem", n, &k.PrevProblem},
+		{"details-down", n, &k.DetailsDown}, {"details-up", n, &k.DetailsUp},
 	}
 }
 
@@ -142,10 +155,11 @@ func (k KeyMap) ShortHelp() []key.Binding {
 // FullHelp is the help screen, in columns.
 func (k KeyMap) FullHelp() [][]key.Binding {
 	return [][]key.Binding{
-		{k.Up, k.Down, k.PageUp, k.PageDown, k.Top, k.Bottom, k.Fold},
+		{k.Up, k.Down, k.PageUp, k.PageDown, k.Top, k.Bottom, k.Fold, k.FoldAll, k.UnfoldAll},
 		{k.Edit, k.Add, k.QuickAdd, k.Copy, k.Delete, k.MoveUp, k.MoveDown, k.Select, k.Wrap},
-		{k.Widen, k.Narrow, k.Width, k.Stage, k.Undo, k.Redo, k.Baseline},
+		{k.Widen, k.Narrow, k.Width, k.Stage, k.UpStage, k.Undo, k.Redo, k.Baseline},
 		{k.Settings, k.ChartView, k.ShowHelp, k.Save, k.SaveAs, k.Open, k.Quit, k.ForceQuit},
+		{k.NextProblem, k.PrevProblem, k.DetailsDown, k.DetailsUp},
 	}
 }
 

@@ -236,7 +236,7 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 	}
 	s := &engine.Stack{}
 	var haveInput, haveLayers bool
-	top := []string{"stackfit", "name", "note", "input", "training", "stage", "layers"}
+	top := []string{"stackfit", "name", "note", "input", "training", "stage", "quiet", "layers"}
 	for _, kv := range d.mapping(doc.Content[0], "file", "a stack (stackfit:, name:, input:, layers:)") {
 		k, v := kv[0], kv[1]
 		switch k.Value {
@@ -254,6 +254,8 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 			s.Training = d.training(v)
 		case "stage":
 			s.Stage = d.stage(v)
+		case "quiet":
+			s.Quiet = d.quiet(v)
 		case "layers":
 			haveLayers = true
 			s.Layers = d.layers(v)
@@ -515,6 +517,43 @@ func (d *decoder) stage(n *yaml.Node) engine.Stage {
 		}
 	}
 	return st
+}
+
+// quiet reads the list of warnings the stack silences, by their names
+// (engine.WarningNames): each a warning, once. An empty list is no list.
+func (d *decoder) quiet(n *yaml.Node) []engine.Code {
+	n = d.deref(n, "quiet")
+	if n == nil {
+		return nil
+	}
+	allowed := engine.WarningNames()
+	if n.Kind != yaml.SequenceNode {
+		d.fail(n, "quiet", ErrType, "expected a list of warning names, e.g. quiet: [%s]; found %s", allowed[0], describe(n))
+		return nil
+	}
+	var out []engine.Code
+	seen := map[engine.Code]bool{}
+	for _, e := range n.Content {
+		sc := d.scalar(e, "quiet", "a warning name")
+		if sc == nil {
+			continue
+		}
+		c, ok := engine.WarningByName(sc.Value)
+		switch {
+		case ok && seen[c]:
+			d.fail(sc, "quiet", ErrUnknown, "%q is listed twice; keep one", sc.Value)
+		case ok:
+			seen[c] = true
+			out = append(out, c)
+		default:
+			if hint := engine.Suggest(sc.Value, allowed); hint != "" {
+				d.fail(sc, "quiet", ErrUnknown, "no warning is named %q; did you mean %q? (warnings: %s)", sc.Value, hint, strings.Join(allowed, ", "))
+			} else {
+				d.fail(sc, "quiet", ErrUnknown, "no warning is named %q (warnings: %s; errors cannot be silenced)", sc.Value, strings.Join(allowed, ", "))
+			}
+		}
+	}
+	return out
 }
 
 // settingFor finds the setting named key in settings.

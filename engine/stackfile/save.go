@@ -32,6 +32,19 @@ func document(s *engine.Stack) *yaml.Node {
 	if st := stage(s.Stage); st != nil {
 		put(root, "stage", st)
 	}
+	if len(s.Quiet) > 0 {
+		q := &yaml.Node{Kind: yaml.SequenceNode, Style: yaml.FlowStyle}
+		seen := map[engine.Code]bool{}
+		for _, c := range s.Quiet {
+			if _, ok := engine.WarningByName(c.Name()); ok && !seen[c] { // what Load accepts, so the file loads back
+				seen[c] = true
+				q.Content = append(q.Content, strNode(c.Name()))
+			}
+		}
+		if len(q.Content) > 0 {
+			put(root, "quiet", q)
+		}
+	}
 	put(root, "layers", layerSeq(s.Layers))
 	return &yaml.Node{Kind: yaml.DocumentNode, Content: []*yaml.Node{root}}
 }

@@ -66,8 +66,8 @@ func TestStageErrors(t *testing.T) {
 		sentinel error
 		want     string
 	}{
-		{"stage: {caps: 256}\n", ErrUnknown, `3:9: stage: unknown key "caps"; did you mean "cap"? (allowed: cap, layers, kernel, bias, norm, groups, act, slope)`},
-		{"stage: {activation: relu}\n", ErrUnknown, `3:9: stage: unknown key "activation" (allowed: cap, layers, kernel, bias, norm, groups, act, slope)`},
+		{"stage: {caps: 256}\n", ErrUnknown, `3:9: stage: unknown key "caps"; did you mean "cap"? (allowed: cap, layers, kernel, bias, norm, groups, act, slope, up)`},
+		{"stage: {activation: relu}\n", ErrUnknown, `3:9: stage: unknown key "activation" (allowed: cap, layers, kernel, bias, norm, groups, act, slope, up)`},
 		{"stage: {cap: 0}\n", ErrRange, `3:14: stage → cap: 0 is out of range; it must be between 1 and 16777216`},
 		{"stage: {layers: 65}\n", ErrRange, `3:17: stage → layers: 65 is out of range; it must be between 0 and 64`},
 		{"stage: {kernel: 4}\n", ErrRange, `3:17: stage → kernel: 4 is out of range; give an odd number from 1 to 15 (the padding k/2 then keeps the size)`},

@@ -3,6 +3,7 @@ package cli
 import (
 	"fmt"
 	"io"
+	"strings"
 
 	"stackfit/engine"
 	"stackfit/engine/export"
@@ -29,6 +30,13 @@ func runCheck(args []string, std IO) int {
 			continue
 		}
 		fmt.Fprintf(std.Out, "%s: %s: %s\n", name, d.Severity, textsafe.Line(r.Describe(d)))
+	}
+	if q := an.Stack.Quiet; len(q) > 0 {
+		names := make([]string, len(q))
+		for i, c := range q {
+			names[i] = c.Name()
+		}
+		fmt.Fprintf(std.Out, "%s: silenced by the file's quiet: list: %s\n", name, strings.Join(names, ", "))
 	}
 	status := ExitOK
 	if r.Errors > 0 || (*strict && r.Warnings > 0) {

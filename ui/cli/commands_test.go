@@ -14,6 +14,9 @@ import (
 func TestCheck(t *testing.T) {
 	bad := "stackfit: 1\ninput: [3, 8, 8]\nlayers: [{conv: 8, kernel: 9}]\n"
 	warn := "stackfit: 1\ninput: [3, 32, 32]\nlayers: [{conv: 30, kernel: 3, pad: 1}, global-pool, {dense: 10}]\n"
+	// A small segmenter: a 3×3 conv, 1×1 convs and a per-pixel 1×1
+	// classifier on a 64×64 input, each output seeing a 3×3 patch.
+	seg := "stackfit: 1\ninput: [3, 64, 64]\nlayers: [{conv: 16, kernel: 3, pad: 1}, {conv: 16, kernel: 1}, {conv: 16, kernel: 1}, {conv: 8, kernel: 1}]\n"
 	tests := []struct {
 		name  string
 		stdin string
@@ -30,6 +33,12 @@ func TestCheck(t *testing.T) {
 		{"warnings pass", warn, []string{"check", "-"}, ExitOK,
 			[]string{"<stdin>: warning: layer 1 (conv): filters 30 is not a multiple of 8", "no budget to check against"}},
 		{"warnings fail when strict", warn, []string{"check", "-", "--strict"}, ExitProblems, nil},
+		{"a per-pixel output passes strict", seg, []string{"check", "-", "--strict"}, ExitOK,
+			[]string{"<stdin>: 0 error(s), 0 warning(s)"}},
+		{"silenced warnings pass strict", "quiet: [channels-not-multiple-of-8, parameter-heavy-layer]\n" + warn, []string{"check", "-", "--strict"}, ExitOK,
+			[]string{"<stdin>: silenced by the file's quiet: list: channels-not-multiple-of-8, parameter-heavy-layer", "<stdin>: 0 error(s), 0 warning(s)"}},
+		{"a misspelt silenced warning", "quiet: [channels-not-multiple-of-eight]\n" + warn, []string{"check", "-"}, ExitUsage,
+			[]string{}},
 		{"bad usage", "", []string{"check"}, ExitUsage, nil},
 	}
 	for _, tt := range tests {

@@ -128,6 +128,7 @@ func editorOptions(path string, builtin []byte, env environment, std IO) (editor
 		held = append(held, j)
 		return j
 	}
+	opt.FoldsFor = func(p string) editor.FoldState { return store.FoldsFor(p, env.paths.State) }
 	var notice string
 	opt.Recovery, notice = recovery(path, env.paths.State, opt.Base, opt.Stack, opt.NewFile)
 	opt.Notice = joinNotices(keysNote, importNote, notice)

@@ -13,20 +13,43 @@ import (
 
 // detailView explains the selected item in the panel's lines: the
 // heading, then its errors and warnings (never crowded out), then the
-// arithmetic, each wrapped to the window; what does not fit is counted on
-// the last line.
+// arithmetic, each wrapped to the window. Longer content scrolls (from
+// fr.detailOff); what does not fit is counted on the first and last line.
 func (fr *frame) detailView(lay layout) string {
+	lines := fr.detailWrapped()
+	h := lay.detailH
+	off := min(fr.detailOff, maxDetailOff(len(lines), h))
+	if off > 0 && h > 1 {
+		above := off + 1
+		lines = append([]string{fr.st.Dim.Render(firstFit(fr.width,
+			fmt.Sprintf("… %d line%s above: %s scrolls up", above, plural(above), fr.keys.DetailsUp.Help().Key),
+			fmt.Sprintf("… %d above", above)))}, lines[above:]...)
+	}
+	if n := len(lines); n > h {
+		more := n - h + 1
+		lines = append(lines[:h-1], fr.st.Dim.Render(firstFit(fr.width,
+			fmt.Sprintf("… %d more line%s: %s scrolls, a taller window shows them, or stackfit report", more, plural(more), fr.keys.DetailsDown.Help().Key),
+			fmt.Sprintf("… %d more (%s scrolls)", more, fr.keys.DetailsDown.Help().Key))))
+	}
+	return cells.Block(lines, h, fr.width)
+}
+
+// detailWrapped is the panel's content wrapped to the window.
+func (fr *frame) detailWrapped() []string {
 	var lines []string
 	for _, l := range fr.detailLines() {
 		lines = append(lines, strings.Split(ansi.Wrap(l, fr.width, " "), "\n")...)
 	}
-	if n := len(lines); n > lay.detailH {
-		more := n - lay.detailH + 1
-		lines = append(lines[:lay.detailH-1], fr.st.Dim.Render(firstFit(fr.width,
-			fmt.Sprintf("… %d more line%s: a taller window shows them, or stackfit report", more, plural(more)),
-			fmt.Sprintf("… %d more (a taller window, or stackfit report)", more))))
+	return lines
+}
+
+// maxDetailOff is the furthest the panel scrolls: n lines in h, the last
+// screen showing the end with one line saying what is above.
+func maxDetailOff(n, h int) int {
+	if n <= h || h < 2 {
+		return 0
 	}
-	return cells.Block(lines, lay.detailH, fr.width)
+	return n - h
 }
 
 func (fr *frame) detailLines() []string {

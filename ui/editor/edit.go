@@ -247,15 +247,38 @@ func stripNames(l *engine.Layer) {
 	}
 }
 
-// duplicate copies the selected item (names cleared) below it.
+// duplicate copies the selected item (names cleared) below it; with a
+// range marked, the whole range below its last item, as one step.
 func (m *Model) duplicate() tea.Cmd {
 	cur, err := m.tree.editable()
 	if err != nil {
 		return m.apply(edit{}, err)
 	}
+	if m.tree.anchor >= 0 {
+		return m.apply(m.tree.copyRange())
+	}
 	c := engine.CloneLayers([]engine.Layer{*cur.layer})[0]
 	stripNames(&c)
 	return m.insertAfter(c, "copied "+engine.Summary(cur.layer))
+}
+
+// copyRange copies the selected range (names cleared) below its last
+// item, and selects the first copy.
+func (t *stackTree) copyRange() (edit, error) {
+	parent, lo, hi, err := t.selection()
+	if err != nil {
+		return edit{}, err
+	}
+	n := hi - lo + 1
+	return edit{fmt.Sprintf("copied %d layer%s", n, plural(n)), func(s *engine.Stack) (addr, error) {
+		ls, _ := list(s, append(parent, lo))
+		cp := engine.CloneLayers((*ls)[lo : hi+1])
+		for i := range cp {
+			stripNames(&cp[i])
+		}
+		*ls = append((*ls)[:hi+1:hi+1], append(cp, (*ls)[hi+1:]...)...)
+		return append(parent, hi+1), nil
+	}}, nil
 }
 
 // errRange is the answer of a range edit on a range that is not one list.
@@ -399,6 +422,42 @@ func (m *Model) insertStage() tea.Cmd {
 		*s = *out
 		return addr{after + n}, nil
 	})
+}
+
+// insertUpStage adds an up-stage after the selected top-level item, as
+// one foldable block joined to the earlier item of its output size
+// (engine.InsertUpStage); the status line says what it joined, or that
+// nothing had the size.
+func (m *Model) insertUpStage() tea.Cmd {
+	after := -1
+	if cur := m.tree.current(); cur != nil {
+		after = cur.addr[0]
+	}
+	opt := engine.StageTemplate(m.stack, after)
+	var info engine.UpStage
+	fn := func(s *engine.Stack) (addr, error) {
+		out, up, err := engine.InsertUpStage(s, after, opt)
+		if err != nil {
+			return nil, err
+		}
+		*s, info = *out, up
+		return addr{after + 1}, nil
+	}
+	// A dry run on a copy words the status line; the change then runs
+	// once, as one undo step.
+	if _, err := fn(m.stack.Clone()); err != nil {
+		return m.apply(edit{}, err)
+	}
+	what := fmt.Sprintf("added %s: double the size to %d×%d, %d channel%s by %s", info.Name, info.Out.H, info.Out.W, info.Out.C, plural(int(info.Out.C)), opt.Up)
+	switch {
+	case info.Joined == "":
+		what += fmt.Sprintf("; no earlier layer is %d×%d, so nothing is joined", info.Out.H, info.Out.W)
+	case info.Named >= 0:
+		what += fmt.Sprintf("; joined item %d, now named %s", info.Named+1, info.Joined)
+	default:
+		what += "; joined " + info.Joined
+	}
+	return m.change(what, fn)
 }
 
 // stageKinds names a stage's layers, e.g. "conv k3, norm batch, act leaky-relu 0.2".

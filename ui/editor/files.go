@@ -122,6 +122,7 @@ func (m *Model) load(s *engine.Stack, data []byte, path string) {
 	m.hist = history{}
 	m.tree.cursor, m.tree.offset, m.tree.anchor = 0, 0, -1
 	m.tree.folded = map[string]bool{}
+	m.restoreFolds() // the opened file's, as last left
 	m.baseline = nil
 	m.recompute()
 	m.setStatus("opened "+path, statusInfo)

@@ -153,15 +153,20 @@ func TestWidthNoneFits(t *testing.T) {
 	}
 }
 
-// warned is a stack whose third row has two warnings (a dropout and a
-// final receptive field smaller than the input).
+// warned is a stack whose last row has two warnings (a stride that
+// leaves input rows unused, and a single-position output whose receptive
+// field is smaller than the input).
 const warned = `stackfit: 1
 input: [3, 64, 64]
 layers:
-  - conv: 16
-    kernel: 1
+  - conv: 32
+    kernel: 3
+    pad: 1
   - norm: batch
   - dropout: 0.9
+  - conv: 8
+    kernel: 1
+    stride: 64
 `
 
 // TestDetailsKeepWarnings: at 100×30 the detail panel shows a row's

@@ -46,6 +46,9 @@ type Options struct {
 	Recovery *Recovery
 	// Notice is shown on the status line at start.
 	Notice string
+	// FoldsFor returns where the fold state of the stack file at path is
+	// kept between runs; nil keeps none.
+	FoldsFor func(path string) FoldState
 }
 
 // Files is how the editor reaches stack files on disk.
@@ -124,6 +127,7 @@ type Model struct {
 	statusK   statusKind
 	statusNew bool // set since the last key: a long message shows whole
 	quitting  bool
+	detail    detailScroll // the details panel's scroll
 }
 
 // fileState is where the stack lives: its file, what the editor last read
@@ -141,6 +145,7 @@ type fileState struct {
 	journalFor  func(string) Journal
 	files       Files
 	keysFile    string
+	foldsFor    func(string) FoldState
 }
 
 // numbers are the current stack's figures, recomputed once per change.
@@ -192,6 +197,8 @@ func New(opt Options) *Model {
 		m.file.journal = m.file.journalFor(m.file.path)
 		m.file.journal.Rebase(m.file.base)
 	}
+	m.file.foldsFor = opt.FoldsFor
+	m.restoreFolds()
 	m.recompute()
 	if opt.NewFile {
 		m.openPrompt(promptInput, "input shape of one sample, channels×height×width", "3x224x224")

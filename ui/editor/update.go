@@ -39,6 +39,7 @@ func (m *Model) Update(msg tea.Msg) (tea.Model, tea.Cmd) {
 		}
 		cmd := m.key(msg)
 		m.tree.scroll(m.listHeight())
+		m.forgetDetailScroll()
 		return m, cmd
 	}
 	return m, nil
@@ -87,6 +88,19 @@ func (m *Model) normal(msg tea.KeyMsg) tea.Cmd {
 		m.tree.cursor = len(m.tree.items) - 1
 	case key.Matches(msg, k.Fold):
 		m.toggleFold()
+		m.saveFolds()
+	case key.Matches(msg, k.FoldAll):
+		m.setAllFolded(true)
+	case key.Matches(msg, k.UnfoldAll):
+		m.setAllFolded(false)
+	case key.Matches(msg, k.NextProblem):
+		m.jumpProblem(+1)
+	case key.Matches(msg, k.PrevProblem):
+		m.jumpProblem(-1)
+	case key.Matches(msg, k.DetailsDown):
+		m.scrollDetails(+1)
+	case key.Matches(msg, k.DetailsUp):
+		m.scrollDetails(-1)
 	case key.Matches(msg, k.Edit):
 		m.editLayer()
 	case key.Matches(msg, k.Add):
@@ -107,7 +121,7 @@ func (m *Model) normal(msg tea.KeyMsg) tea.Cmd {
 			m.setStatus("range cleared", statusInfo)
 		} else {
 			m.tree.anchor = m.tree.cursor
-			m.setStatus("range started: move, then b wraps it in a block or x deletes it (v clears)", statusInfo)
+			m.setStatus("range started: move, then b wraps it in a block, c copies it or x deletes it (v clears)", statusInfo)
 		}
 	case key.Matches(msg, k.Wrap):
 		return m.apply(m.tree.wrap(m.stack))
@@ -119,6 +133,8 @@ func (m *Model) normal(msg tea.KeyMsg) tea.Cmd {
 		m.openPrompt(promptWidth, "multiply every width by", "1.5")
 	case key.Matches(msg, k.Stage):
 		return m.insertStage()
+	case key.Matches(msg, k.UpStage):
+		return m.insertUpStage()
 	case key.Matches(msg, k.Undo):
 		return m.undo()
 	case key.Matches(msg, k.Redo):

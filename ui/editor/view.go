@@ -109,12 +109,13 @@ type frame struct {
 	preview        *engine.Analysis // a form's or prompt's preview, or nil
 	previewBlocked bool
 	widthState     widthState
+	detailOff      int // lines the details panel is scrolled
 }
 
 // frame gathers what the panels draw from.
 func (m *Model) frame() *frame {
 	return &frame{drawing: m.drawing(), keys: m.keys, stack: m.stack, fit: m.nums.fit, cur: m.tree.current(),
-		preview: m.preview, previewBlocked: m.previewBlocked, widthState: m.nums.widthState}
+		preview: m.preview, previewBlocked: m.previewBlocked, widthState: m.nums.widthState, detailOff: m.detailOffset()}
 }
 
 // shown returns the numbers to show: the preview while a form or prompt
