@@ -17,6 +17,9 @@ type graph struct {
 	data  [][]string     // each node's computed inputs, in order, aliases resolved
 	prod  map[string]int // tensor → the node that computes it
 	cons  map[string][]int
+	// shapes are the computed tensors' full shapes (the batch as the
+	// file gives it), where the operators that compute them are known.
+	shapes map[string][]int64
 	// ipdom is each node's immediate post-dominator: the first node every
 	// path from it to the graph's output passes through; len(nodes) is
 	// the output itself.
@@ -27,7 +30,10 @@ type graph struct {
 // data input x. A node that reads a tensor no earlier node computes (a
 // graph out of order, cyclic or dangling) is an error.
 func (im *importer) graph(g *onnxpb.Graph, x string) (*graph, error) {
-	gr := &graph{prod: map[string]int{}, cons: map[string][]int{}}
+	gr := &graph{prod: map[string]int{}, cons: map[string][]int{}, shapes: map[string][]int64{}}
+	if sh := inputShape(g, x); sh != nil {
+		gr.shapes[x] = sh
+	}
 	alias := map[string]string{}
 	resolve := func(t string) string {
 		if a, ok := alias[t]; ok {
@@ -56,6 +62,9 @@ func (im *importer) graph(g *onnxpb.Graph, x string) (*graph, error) {
 			if len(n.GetOutput()) == 1 {
 				im.fold(n)
 			}
+			if ins := n.GetInput(); len(ins) == 1 && len(n.GetOutput()) == 1 {
+				im.foldData(n, gr.shapes[resolve(ins[0])])
+			}
 			im.res.Read++
 			continue
 		}
@@ -78,6 +87,9 @@ func (im *importer) graph(g *onnxpb.Graph, x string) (*graph, error) {
 			// layer's output is N×units×1×1); a concatenation of one
 			// tensor is the tensor.
 			alias[out] = data[0]
+			if sh, ok := gr.shapes[data[0]]; ok {
+				gr.shapes[out] = sh
+			}
 			im.res.Read++
 			continue
 		case op == "Concat" && len(data) > 2:
@@ -94,6 +106,7 @@ func (im *importer) graph(g *onnxpb.Graph, x string) (*graph, error) {
 		case op == "Concat":
 			concats[strings.Join(data, "\x00")] = out
 		}
+		im.infer(n, func(t string) []int64 { return gr.shapes[resolve(t)] }, gr.shapes)
 		k := len(gr.nodes)
 		gr.nodes = append(gr.nodes, n)
 		gr.pos = append(gr.pos, pos)
@@ -113,6 +126,7 @@ func (im *importer) graph(g *onnxpb.Graph, x string) (*graph, error) {
 	for _, o := range g.GetOutput() {
 		outputs[resolve(o.GetName())] = true
 	}
+	im.rewrite(gr, outputs)
 	gr.postDominators(outputs)
 	return gr, nil
 }

@@ -150,8 +150,34 @@ func (b *builder) layer(k int) (*item, string, error) {
 		if a := attr(n, "epsilon"); a != nil {
 			l.Eps = f32(a.GetF())
 		}
+		if !im.initial[in(1)] {
+			l.Affine = engine.Off
+		}
 		b.count(false, in(1), in(2))
 		b.sawNorm = true
+	case "GroupNormalization":
+		// A group norm the rewrites found (Reshape, instance norm,
+		// Reshape back, Mul γ, Add β); γ and β per channel.
+		g := attr(n, "num_groups").GetI()
+		if g < 1 || g > 1<<31 {
+			return stop("%d groups", g)
+		}
+		l = engine.Layer{Kind: engine.KindNorm, Norm: engine.NormGroup, NormGroups: g, Eps: 1e-5}
+		if a := attr(n, "epsilon"); a != nil {
+			l.Eps = f32(a.GetF())
+		}
+		if !im.initial[in(1)] {
+			l.Affine = engine.Off
+		}
+		b.count(false, in(1), in(2))
+		b.sawNorm = true
+	case "ChannelShuffle":
+		// The channel shuffle the rewrites found.
+		g := attr(n, "groups").GetI()
+		if g < 1 || g > 1<<31 {
+			return stop("%d groups", g)
+		}
+		l = engine.Layer{Kind: engine.KindShuffle, Groups: g}
 	case "Relu", "Sigmoid", "Tanh", "HardSwish", "Gelu":
 		a, _ := activation(n)
 		l = engine.Layer{Kind: engine.KindAct, Act: a}
@@ -207,9 +233,10 @@ func (b *builder) layer(k int) (*item, string, error) {
 		if axes == nil && in(1) != "" {
 			axes, _ = im.ints(in(1))
 		}
-		keep := attr(n, "keepdims")
-		if len(axes) != 2 || axes[0] != 2 || axes[1] != 3 || (keep != nil && keep.GetI() != 1) || b.chanLast {
-			return stop("only a mean over the height and width that keeps them (axes 2, 3; keepdims 1) is read, as global average pooling")
+		// keepdims 0 gives N×C, which the stack reads as N×C×1×1: the
+		// flatten after the pool changes nothing.
+		if len(axes) != 2 || !(axes[0] == 2 || axes[0] == -2) || !(axes[1] == 3 || axes[1] == -1) || b.chanLast {
+			return stop("only a mean over the height and width (axes 2, 3) is read, as global average pooling")
 		}
 		l = engine.Layer{Kind: engine.KindGlobalPool, Pool: engine.PoolAvg}
 	case "Flatten":

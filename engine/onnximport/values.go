@@ -114,8 +114,21 @@ func (im *importer) fold(n *onnxpb.Node) {
 		im.values[out] = []int64{-1, -1, -1, -1} // only the batch, gathered, is used
 	case "Gather":
 		if len(ins) == 2 {
-			if idx, ok := im.intsOf(ins[1]); ok && len(idx) == 1 && idx[0] == 0 {
-				im.values[out] = []int64{-1}
+			v, ok1 := im.intsOf(ins[0])
+			idx, ok2 := im.intsOf(ins[1])
+			if ok1 && ok2 && len(idx) == 1 {
+				if i, ok := axisOf(idx[0], int64(len(v))); ok {
+					im.values[out] = []int64{v[i]}
+				}
+			}
+		}
+	case "Add", "Sub", "Mul", "Div":
+		// Shape arithmetic (a chunk's bounds: (C + 1) / 2 · k); integer
+		// division truncates. The batch (−1) and anything out of range
+		// leave the value unknown.
+		if len(ins) == 2 {
+			if v, ok := arith(n.GetOpType(), im, ins[0], ins[1]); ok {
+				im.values[out] = v
 			}
 		}
 	case "Unsqueeze", "Squeeze", "Identity", "Cast":
@@ -202,4 +215,61 @@ func (im *importer) floats(name string) ([]float64, bool) {
 		out = append(out, f32(math.Float32frombits(b)))
 	}
 	return out, true
+}
+
+// arith evaluates an element-wise operation on two folded int64 values
+// of equal length (or one of them a single value), where every value is
+// a size (0 ≤ v ≤ maxDim).
+func arith(op string, im *importer, a, b string) ([]int64, bool) {
+	x, ok1 := im.intsOf(a)
+	y, ok2 := im.intsOf(b)
+	if !ok1 || !ok2 || len(x) == 0 || len(y) == 0 || len(x) != len(y) && len(x) != 1 && len(y) != 1 {
+		return nil, false
+	}
+	out := make([]int64, max(len(x), len(y)))
+	for i := range out {
+		p, q := x[min(i, len(x)-1)], y[min(i, len(y)-1)]
+		if p < 0 || q < 0 || p > maxDim || q > maxDim {
+			return nil, false
+		}
+		switch op {
+		case "Add":
+			out[i] = p + q
+		case "Sub":
+			out[i] = p - q
+		case "Mul":
+			out[i] = p * q
+		case "Div":
+			if q == 0 {
+				return nil, false
+			}
+			out[i] = p / q
+		}
+	}
+	return out, true
+}
+
+// foldData completes the folding of a node with one input that reads a
+// computed tensor's shape or a weight: Shape gives the shape the shape
+// pass found (the batch −1), and Transpose of a weight matrix (a linear
+// layer's weight as the exporter writes it for MatMul) is that weight,
+// its dimensions permuted.
+func (im *importer) foldData(n *onnxpb.Node, sh []int64) {
+	out, in := n.GetOutput()[0], n.GetInput()[0]
+	switch n.GetOpType() {
+	case "Shape":
+		if sh != nil && attr(n, "start") == nil && attr(n, "end") == nil {
+			v := append([]int64{-1}, sh[1:]...)
+			im.values[out] = v
+		}
+	case "Transpose":
+		d, ok := im.dims(in)
+		perm := attr(n, "perm").GetInts()
+		if !ok || !im.initial[in] || len(d) != 2 || perm != nil && (len(perm) != 2 || perm[0] != 1 || perm[1] != 0) {
+			return
+		}
+		t := im.consts[in]
+		im.consts[out] = &onnxpb.Tensor{Name: &out, Dims: []int64{d[1], d[0]}, ElemType: t.ElemType}
+		im.initial[out] = true
+	}
 }
