@@ -90,6 +90,14 @@ func (b *builder) seq(t string, via, end, depth int) ([]*item, string, error) {
 		}
 		k := next
 		next = -1
+		if b.g.nodes[k].GetOpType() == "Split" && len(b.g.data[k]) == 1 {
+			its, out, err := b.split(k, end, depth)
+			if err != nil {
+				return items, cur, err
+			}
+			items, cur = append(items, its...), out
+			continue
+		}
 		if len(b.g.data[k]) != 1 {
 			return items, cur, b.stop(k, "it merges %d computed tensors where the import expects one flow", len(b.g.data[k]))
 		}
@@ -437,6 +445,56 @@ func (b *builder) nested(t string, j int, direct bool, others []int, depth int) 
 		b.spans = map[string]span{}
 	}
 	b.spans[out] = sp
+	b.itemOf[out] = fork
+	return []*item{fork}, out, nil
+}
+
+// split reads a Split node (equal parts of the channels, as the folding
+// pass leaves torch.chunk) whose parts run as branches into one
+// concatenation along the channels, in their order: a fork with split
+// input (ShuffleNet V2's units, Ma et al. 2018). A part may go straight
+// into the concatenation (an empty branch).
+func (b *builder) split(k, end, depth int) ([]*item, string, error) {
+	n := b.g.nodes[k]
+	outs := n.GetOutput()
+	if a := attr(n, "axis"); a == nil || (a.GetI() != 1 && a.GetI() != -3) || len(outs) < 2 {
+		return nil, "", b.stop(k, "only a split of the channels into equal parts is read")
+	}
+	var cs []int
+	for _, o := range outs {
+		cs = append(cs, b.g.cons[o]...)
+	}
+	j := b.g.join(cs)
+	if j >= len(b.g.nodes) || j > end || b.g.nodes[j].GetOpType() != "Concat" {
+		return nil, "", b.stop(k, "its parts do not meet again at one concatenation: a split has a stack-file form only as a fork whose branches are joined")
+	}
+	if a := attr(b.g.nodes[j], "axis"); a == nil || (a.GetI() != 1 && a.GetI() != -3) {
+		return nil, "", b.stop(j, "it joins the parts of a split along an axis other than the channels")
+	}
+	ins := b.g.data[j]
+	if len(ins) != len(outs) {
+		return nil, "", b.stop(j, "it joins %d maps where the split made %d parts", len(ins), len(outs))
+	}
+	b.mark(k)
+	branches := make([]*item, len(outs))
+	for i, o := range outs {
+		var path []*item
+		last := o
+		if cons := b.g.cons[o]; !(len(cons) == 1 && cons[0] == j) {
+			var err error
+			path, last, err = b.seq(o, -1, j, depth+1)
+			if err != nil {
+				return nil, "", err
+			}
+		}
+		if ins[i] != last {
+			return nil, "", b.stop(j, "the parts of the split %q are not joined in their order", n.GetName())
+		}
+		branches[i] = &item{l: engine.Layer{Kind: engine.KindBranch}, kids: path}
+	}
+	b.mark(j)
+	out := b.g.nodes[j].GetOutput()[0]
+	fork := &item{l: engine.Layer{Kind: engine.KindFork, Split: true}, kids: branches, nodes: []int{k, j}, out: out}
 	b.itemOf[out] = fork
 	return []*item{fork}, out, nil
 }

@@ -1,6 +1,7 @@
 package onnximport
 
 import (
+	"strings"
 	"testing"
 
 	"google.golang.org/protobuf/proto"
@@ -78,5 +79,37 @@ func TestImportSharedWeight(t *testing.T) {
 	}
 	if r := engine.Evaluate(s); r.Errors != 0 || r.Totals.Params != 2*4*4*3*3 {
 		t.Errorf("params %d, %v", r.Totals.Params, r.Diags)
+	}
+}
+
+// TestImportSplitFork: a split of the channels into two equal parts, one
+// passed on and one through a 1×1 convolution, joined in order — ShuffleNet
+// V2's unit (Ma et al. 2018, Figure 3c) — is a fork with split input; its
+// parts joined out of order have no stack-file form. 4·4 weights.
+func TestImportSplitFork(t *testing.T) {
+	build := func(order []string) []byte {
+		split := &onnxpb.Node{OpType: proto.String("Split"), Name: proto.String("/u/Split"), Input: []string{"x"}, Output: []string{"a", "b"},
+			Attribute: []*onnxpb.Attribute{axis1()}}
+		cat := node("Concat", "/u/Concat", order, "y")
+		cat.Attribute = append(cat.Attribute, axis1())
+		return model(t, [4]int64{1, 8, 8, 8}, 13, map[string][]int64{"w": {4, 4, 1, 1}},
+			split,
+			node("Conv", "/u/conv/Conv", []string{"b", "w"}, "c", ints("kernel_shape", 1, 1)),
+			cat,
+		)
+	}
+	s, _, err := Import(build([]string{"a", "c"}), "unit")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Layers) != 1 || s.Layers[0].Kind != engine.KindFork || !s.Layers[0].Split || len(s.Layers[0].Body) != 2 ||
+		len(s.Layers[0].Body[0].Body) != 0 || len(s.Layers[0].Body[1].Body) != 1 {
+		t.Fatalf("layers %+v", s.Layers)
+	}
+	if r := engine.Evaluate(s); r.Errors != 0 || r.Totals.Params != 16 || r.Output != (engine.Shape{C: 8, H: 8, W: 8}) {
+		t.Errorf("params %d, output %v, %v", r.Totals.Params, r.Output, r.Diags)
+	}
+	if _, _, err := Import(build([]string{"c", "a"}), "swapped"); err == nil || !strings.Contains(err.Error(), "order") {
+		t.Errorf("parts joined out of order: %v", err)
 	}
 }
