@@ -204,8 +204,10 @@ layers:
 // of 300 MB peak resident memory, read from the kernel's resource usage
 // of the child process (getrusage's ru_maxrss, the figure /usr/bin/time -v
 // prints; it also counts the test process's own pages at the moment of
-// exec, so it errs high). It takes about half a minute on two cores, so it runs when
-// STACKFIT_RSS=1 is set, as .ci/run does.
+// exec, so it errs high). Every command runs three times: as the file
+// says, with a budget, and with a budget and checkpointing. It takes about
+// a minute and a half on two cores, so it runs when STACKFIT_RSS=1 is set,
+// as .ci/run does.
 func TestMillionRowPeakRSS(t *testing.T) {
 	if os.Getenv("STACKFIT_RSS") != "1" {
 		t.Skip("set STACKFIT_RSS=1 to run the million-row memory check (.ci/run does)")
@@ -217,7 +219,7 @@ func TestMillionRowPeakRSS(t *testing.T) {
 		t.Fatal(err)
 	}
 	const limit = 300_000_000 // bytes
-	for _, args := range [][]string{
+	commands := [][]string{
 		{"check", file},
 		{"report", file},
 		{"report", "--format", "markdown", file},
@@ -226,7 +228,17 @@ func TestMillionRowPeakRSS(t *testing.T) {
 		{"report", "--format", "json", "-o", filepath.Join(dir, "million.json"), file},
 		{"export", file},
 		{"export", "-o", filepath.Join(dir, "million.py"), file},
-	} {
+	}
+	// Each again with a budget (the fit solver's width search re-evaluates
+	// the whole stack), and with a budget and checkpointing (the step
+	// simulation's segment bookkeeping).
+	var runs [][]string
+	for _, training := range [][]string{nil, {"--budget", "24GiB"}, {"--budget", "24GiB", "--checkpoint", "4"}} {
+		for _, c := range commands {
+			runs = append(runs, append(append([]string{}, c...), training...))
+		}
+	}
+	for _, args := range runs {
 		cmd := exec.Command(bin, args...)
 		cmd.Env = append(os.Environ(), "GOMEMLIMIT=") // the binary's own soft limit, as a user gets it
 		out, err := os.Create(filepath.Join(dir, "stdout"))
@@ -245,7 +257,7 @@ func TestMillionRowPeakRSS(t *testing.T) {
 		info, _ := os.Stat(filepath.Join(dir, "stdout"))
 		rss := cmd.ProcessState.SysUsage().(*syscall.Rusage).Maxrss * 1024 // kilobytes on Linux
 		label := strings.ReplaceAll(strings.Join(args, " "), dir+"/", "")
-		t.Logf("%-48s peak RSS %4d MB, %4d MB to stdout", label, rss/1_000_000, info.Size()/1_000_000)
+		t.Logf("%-80s peak RSS %4d MB, %4d MB to stdout", label, rss/1_000_000, info.Size()/1_000_000)
 		if rss > limit {
 			t.Errorf("%v: peak RSS %d MB, over the %d MB bound", args, rss/1_000_000, limit/1_000_000)
 		}

@@ -1,5 +1,7 @@
 package engine
 
+import "context"
+
 // Analysis bundles everything stackfit computes for one stack and one
 // training setup: the per-layer numbers, the memory estimate and the fit
 // solver's answers.
@@ -18,7 +20,17 @@ func Analyze(s *Stack, t Training, a Assumptions) *Analysis {
 	an := &Analysis{Stack: s, Training: t, Assumptions: a, Result: Evaluate(s)}
 	an.Result.Memory(t, a, &an.Memory)
 	if an.Result.Errors == 0 {
-		an.Fit = SolveFit(s, an.Result, &an.Memory, t, a)
+		f := SolveCapacity(an.Result, &an.Memory, t)
+		if f.HasBudget {
+			// The width search evaluates into the analysis's own storage
+			// rather than a second set of rows (on a million-row stack
+			// that second set was as large as the first), then s is
+			// evaluated again: one evaluation more, half the peak memory.
+			f.MaxWidth, f.WidthLimit, f.WidthExact, _ = SearchWidth(context.Background(), s, t, a, an.Result, &an.Memory)
+			an.Result.Evaluate(s)
+			an.Result.Memory(t, a, &an.Memory)
+		}
+		an.Fit = f
 	}
 	an.Memory.dropScratch() // a one-shot analysis keeps its figures, not the walk's storage
 	return an

@@ -1,6 +1,9 @@
 package engine
 
-import "math"
+import (
+	"context"
+	"math"
+)
 
 // Fit holds the fit solver's answers for a stack, a training setup and a
 // budget. A zero answer means nothing fits; the Limit fields name the
@@ -109,8 +112,17 @@ func SolveCapacity(r *Result, m *Memory, t Training) Fit {
 // that stops the next step, and whether the search converged (false when
 // even ×32 fits).
 func MaxWidth(s *Stack, t Training, a Assumptions) (float64, string, bool) {
-	var r Result
-	var m Memory
+	w, lim, exact, _ := SearchWidth(context.Background(), s, t, a, &Result{}, &Memory{})
+	return w, lim, exact
+}
+
+// SearchWidth is MaxWidth that stops when ctx is done and evaluates into
+// the caller's storage: r and m are overwritten by each try (their
+// slices' capacity is reused, so a search allocates no per-row storage
+// once they are large enough) and hold the last try's figures afterwards,
+// not s's. ctx is checked before every re-evaluation; a search stopped by
+// it returns ctx.Err() and no answer.
+func SearchWidth(ctx context.Context, s *Stack, t Training, a Assumptions, r *Result, m *Memory) (float64, string, bool, error) {
 	try := func(alpha float64) (bool, string) {
 		scaled, err := ScaleWidth(s, alpha, 8)
 		if err != nil {
@@ -120,18 +132,26 @@ func MaxWidth(s *Stack, t Training, a Assumptions) (float64, string, bool) {
 		if r.Errors > 0 {
 			return false, CatWeights
 		}
-		r.Memory(t, a, &m)
+		r.Memory(t, a, m)
 		return m.Fits, m.Largest()
 	}
 	lo, hi := math.Log(1.0/32), math.Log(32)
-	if ok, _ := try(math.Exp(lo)); !ok {
-		_, lim := try(math.Exp(lo))
-		return 0, lim, true
+	if err := ctx.Err(); err != nil {
+		return 0, "", false, err
+	}
+	if ok, lim := try(math.Exp(lo)); !ok {
+		return 0, lim, true, nil
+	}
+	if err := ctx.Err(); err != nil {
+		return 0, "", false, err
 	}
 	if ok, _ := try(math.Exp(hi)); ok {
-		return 32, "", false
+		return 32, "", false, nil
 	}
 	for i := 0; i < 40 && math.Exp(hi)-math.Exp(lo) > 0.005; i++ {
+		if err := ctx.Err(); err != nil {
+			return 0, "", false, err
+		}
 		mid := (lo + hi) / 2
 		if ok, _ := try(math.Exp(mid)); ok {
 			lo = mid
@@ -139,6 +159,9 @@ func MaxWidth(s *Stack, t Training, a Assumptions) (float64, string, bool) {
 			hi = mid
 		}
 	}
+	if err := ctx.Err(); err != nil {
+		return 0, "", false, err
+	}
 	_, lim := try(math.Exp(hi))
-	return math.Floor(math.Exp(lo)*100) / 100, lim, true
+	return math.Floor(math.Exp(lo)*100) / 100, lim, true, nil
 }

@@ -5,6 +5,7 @@
 package editor
 
 import (
+	"context"
 	"fmt"
 	"path/filepath"
 
@@ -157,6 +158,20 @@ type numbers struct {
 	assume     engine.Assumptions
 	widthGen   int        // generation of the background width search
 	widthState widthState // whether its answer is in
+	// widthStop stops the latest search (running, or waiting for the
+	// storage); a new search stops the one before it, so at most one runs.
+	widthStop context.CancelFunc
+	// widthStore holds the searches' storage while none runs (capacity
+	// one): a search takes it before its first evaluation and gives it
+	// back when it ends, so searches never run side by side and reuse one
+	// set of rows instead of allocating their own.
+	widthStore chan *widthScratch
+}
+
+// widthScratch is the storage the background width search evaluates into.
+type widthScratch struct {
+	res engine.Result
+	mem engine.Memory
 }
 
 // stackTree is the stack view's state: the visible lines, the cursor,
@@ -180,13 +195,14 @@ func New(opt Options) *Model {
 		stack:  opt.Stack,
 		file:   fileState{path: opt.Path, saveName: opt.SaveName, base: opt.Base, journalFor: opt.JournalFor, files: opt.Files, keysFile: opt.KeysPath},
 		tree:   stackTree{anchor: -1, folded: map[string]bool{}, opened: map[string]bool{}},
-		nums:   numbers{assume: engine.DefaultAssumptions()},
+		nums:   numbers{assume: engine.DefaultAssumptions(), widthStore: make(chan *widthScratch, 1)},
 		width:  80,
 		height: 24,
 	}
 	if m.stack == nil {
 		m.stack = &engine.Stack{Input: engine.Shape{C: 3, H: 224, W: 224}}
 	}
+	m.nums.widthStore <- &widthScratch{}
 	m.help = help.New()
 	m.help.Width = m.width
 	m.help.ShortSeparator = " · "
@@ -306,10 +322,14 @@ const (
 )
 
 // widthCmd starts the width search for the current stack (it re-evaluates
-// the stack a few dozen times, so it runs off the keystroke path).
+// the stack a few dozen times, so it runs off the keystroke path). It
+// stops the search before it: one that is running ends at its next
+// re-evaluation, one still waiting for the storage never starts; a
+// stopped search sends nothing.
 func (m *Model) widthCmd() tea.Cmd {
 	m.nums.widthGen++
 	gen := m.nums.widthGen
+	m.stopWidth()
 	if m.stack.Training.Budget <= 0 || !m.nums.mem.Estimated {
 		m.nums.fit.MaxWidth, m.nums.fit.WidthLimit, m.nums.widthState = 0, "", widthNone
 		return nil
@@ -317,9 +337,30 @@ func (m *Model) widthCmd() tea.Cmd {
 	m.nums.widthState = widthSearching
 	s := m.stack // never edited in place (see change), so safe to share
 	t, a := m.stack.Training, m.nums.assume
+	ctx, stop := context.WithCancel(context.Background())
+	m.nums.widthStop = stop
+	store := m.nums.widthStore
 	return func() tea.Msg {
-		w, lim, exact := engine.MaxWidth(s, t, a)
+		var sc *widthScratch
+		select {
+		case sc = <-store:
+		case <-ctx.Done():
+			return nil
+		}
+		defer func() { store <- sc }()
+		w, lim, exact, err := engine.SearchWidth(ctx, s, t, a, &sc.res, &sc.mem)
+		if err != nil {
+			return nil
+		}
 		return widthMsg{gen, w, lim, exact}
+	}
+}
+
+// stopWidth stops the latest width search, if any.
+func (m *Model) stopWidth() {
+	if m.nums.widthStop != nil {
+		m.nums.widthStop()
+		m.nums.widthStop = nil
 	}
 }
 

@@ -24,6 +24,7 @@ func (m *Model) Update(msg tea.Msg) (tea.Model, tea.Cmd) {
 		if msg.gen == m.nums.widthGen {
 			m.nums.fit.MaxWidth, m.nums.fit.WidthLimit, m.nums.fit.WidthExact = msg.width, msg.limit, msg.exact
 			m.nums.widthState = widthDone
+			m.stopWidth() // it has ended; this releases its context
 		}
 		return m, nil
 	case tea.KeyMsg:
