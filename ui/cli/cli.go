@@ -71,6 +71,8 @@ func Run(args []string, std IO) int {
 		return runCalibrate(args[1:], std)
 	case "import":
 		return runImport(args[1:], std)
+	case "scale":
+		return runScale(args[1:], std)
 	case "help", "-h", "--help", "-help":
 		if len(args) > 1 && args[1] != "help" && !strings.HasPrefix(args[1], "-") {
 			u, ok := commandUsage()[args[1]]
@@ -100,7 +102,7 @@ func Run(args []string, std IO) int {
 }
 
 // commands are stackfit's commands, for messages and suggestions.
-var commands = []string{"report", "check", "export", "calibrate", "import", "example", "help"}
+var commands = []string{"report", "check", "export", "calibrate", "import", "scale", "example", "help"}
 
 // didYouMean suggests the command that name is a likely typo of (within
 // one edit per four letters, at least one; insertions, deletions,
@@ -146,6 +148,9 @@ usage:
   stackfit calibrate FILE [M]     set FILE's workspace and overhead from a
                                   measurement M (python NET.py --measure)
   stackfit import MODEL.onnx      read an ONNX model into a stack file
+  stackfit scale FILE [flags]     write a wider, deeper or larger-input copy
+                                  (compound scaling too), or find the largest
+                                  that fits the budget
   stackfit example [NAME] [-o F]  list the built-in examples, edit one, or write it to F
   stackfit help COMMAND           the flags of one command (or COMMAND --help)
 
@@ -216,6 +221,7 @@ beside the measured peak, and a line stackfit calibrate reads.
 examples:
   stackfit export net.yaml --to pytorch -o net.py
 ` + trainingUsage(),
+		"scale": scaleUsage + trainingUsage(),
 		"import": `usage: stackfit import MODEL.onnx [-o NET.yaml] [--partial]
 
 Reads an ONNX model (torch.onnx.export writes them) into a stack file, one

@@ -42,7 +42,7 @@ func trainingUsage() string {
 		lines = append(lines, l)
 	}
 	var b strings.Builder
-	b.WriteString("\ntraining flags (report, check, export; they override the file's training section):\n")
+	b.WriteString("\ntraining flags (report, check, export, scale; they override the file's training section):\n")
 	for _, l := range lines {
 		fmt.Fprintf(&b, "  %-*s  %-*s  %s\n", flagW, l.flag, helpW, l.help, l.example)
 	}
