@@ -73,6 +73,8 @@ func Run(args []string, std IO) int {
 		return runImport(args[1:], std)
 	case "scale":
 		return runScale(args[1:], std)
+	case "sweep":
+		return runSweep(args[1:], std)
 	case "help", "-h", "--help", "-help":
 		if len(args) > 1 && args[1] != "help" && !strings.HasPrefix(args[1], "-") {
 			u, ok := commandUsage()[args[1]]
@@ -102,7 +104,7 @@ func Run(args []string, std IO) int {
 }
 
 // commands are stackfit's commands, for messages and suggestions.
-var commands = []string{"report", "check", "export", "calibrate", "import", "scale", "example", "help"}
+var commands = []string{"report", "check", "export", "calibrate", "import", "scale", "sweep", "example", "help"}
 
 // didYouMean suggests the command that name is a likely typo of (within
 // one edit per four letters, at least one; insertions, deletions,
@@ -151,6 +153,9 @@ usage:
   stackfit scale FILE [flags]     write a wider, deeper or larger-input copy
                                   (compound scaling too), or find the largest
                                   that fits the budget
+  stackfit sweep FILE [flags]     tabulate a grid of widths, depths, resolutions,
+                                  batches and precisions: MACs, memory estimate,
+                                  largest batch, and the compute-memory frontier
   stackfit example [NAME] [-o F]  list the built-in examples, edit one, or write it to F
   stackfit help COMMAND           the flags of one command (or COMMAND --help)
 
@@ -222,6 +227,7 @@ examples:
   stackfit export net.yaml --to pytorch -o net.py
 ` + trainingUsage(),
 		"scale": scaleUsage + trainingUsage(),
+		"sweep": sweepUsage + trainingUsage(),
 		"import": `usage: stackfit import MODEL.onnx [-o NET.yaml] [--partial]
 
 Reads an ONNX model (torch.onnx.export writes them) into a stack file, one

@@ -135,14 +135,14 @@ func TestBudgetZero(t *testing.T) {
 // error that suggests the likely command and lists them all.
 func TestUnknownCommand(t *testing.T) {
 	tests := []struct{ args, want string }{
-		{"reprot", `stackfit: unknown command "reprot"; did you mean "report"? (commands: report, check, export, calibrate, import, scale, example, help;`},
+		{"reprot", `stackfit: unknown command "reprot"; did you mean "report"? (commands: report, check, export, calibrate, import, scale, sweep, example, help;`},
 		{"chek", `unknown command "chek"; did you mean "check"?`},
 		{"exmaple", `unknown command "exmaple"; did you mean "example"?`},
 		{"ex", `unknown command "ex" (commands:`},                // export or example: no guess
 		{"exp", `unknown command "exp"; did you mean "export"?`}, // the one command it begins
 		{"rep", `unknown command "rep"; did you mean "report"?`},
-		{"zzz", `unknown command "zzz" (commands: report, check, export, calibrate, import, scale, example, help;`},
-		{"help NOSUCH", `stackfit help: no command is called "NOSUCH"; the commands: report, check, export, calibrate, import, scale, example, help`},
+		{"zzz", `unknown command "zzz" (commands: report, check, export, calibrate, import, scale, sweep, example, help;`},
+		{"help NOSUCH", `stackfit help: no command is called "NOSUCH"; the commands: report, check, export, calibrate, import, scale, sweep, example, help`},
 		{"help exprot", `stackfit help: no command is called "exprot"; did you mean "export"?; the commands:`},
 		{"--help chekc", `no command is called "chekc"; did you mean "check"?`},
 	}

@@ -12,14 +12,15 @@ import (
 // trainingFlags registers one flag per training setting (engine.Settings);
 // apply overrides the stack file's settings with the flags the user gave.
 type trainingFlags struct {
-	fs *flag.FlagSet
+	fs   *flag.FlagSet
+	skip map[string]bool // flags a command reads itself (sweep's lists of batches and precisions)
 }
 
 func addTrainingFlags(fs *flag.FlagSet) trainingFlags {
 	for _, s := range engine.Settings() {
 		fs.String(s.Key, "", flagHelp(s)+", e.g. "+s.Example)
 	}
-	return trainingFlags{fs}
+	return trainingFlags{fs: fs}
 }
 
 // flagHelp is a setting's help on the command line, where the budget can
@@ -42,7 +43,7 @@ func trainingUsage() string {
 		lines = append(lines, l)
 	}
 	var b strings.Builder
-	b.WriteString("\ntraining flags (report, check, export, scale; they override the file's training section):\n")
+	b.WriteString("\ntraining flags (report, check, export, scale, sweep; they override the file's training section):\n")
 	for _, l := range lines {
 		fmt.Fprintf(&b, "  %-*s  %-*s  %s\n", flagW, l.flag, helpW, l.help, l.example)
 	}
@@ -67,7 +68,7 @@ func (tf trainingFlags) apply(t engine.Training) (engine.Training, error) {
 	var err error
 	tf.fs.Visit(func(f *flag.Flag) {
 		s, ok := engine.SettingFor(f.Name)
-		if err != nil || !ok {
+		if err != nil || !ok || tf.skip[f.Name] {
 			return
 		}
 		v := f.Value.String()
