@@ -12,11 +12,15 @@ type Analysis struct {
 	Result      *Result
 	Memory      Memory
 	Fit         Fit
+	// Time is the training-time estimate, nil when the settings name no
+	// device (Training.GPU).
+	Time *Time
 }
 
 // Analyze evaluates s, estimates its training memory under t and runs the
 // fit solver when t has a budget.
 func Analyze(s *Stack, t Training, a Assumptions) *Analysis {
+	t = t.WithDevice()
 	an := &Analysis{Stack: s, Training: t, Assumptions: a, Result: Evaluate(s)}
 	an.Result.Memory(t, a, &an.Memory)
 	if an.Result.Errors == 0 {
@@ -31,6 +35,10 @@ func Analyze(s *Stack, t Training, a Assumptions) *Analysis {
 			an.Result.Memory(t, a, &an.Memory)
 		}
 		an.Fit = f
+	}
+	if d, ok := t.Device(); ok {
+		an.Time = new(Time)
+		an.Result.Time(t, d, DefaultEfficiency(), an.Time)
 	}
 	an.Memory.dropScratch() // a one-shot analysis keeps its figures, not the walk's storage
 	return an

@@ -60,6 +60,7 @@ var convSpec = Spec{
 	explain:    explainConv,
 	saved:      func(row *Row, s *saving) int64 { return s.input(row) },
 	torch:      torchConv,
+	work:       convWork,
 }
 
 var deconvSpec = Spec{
@@ -75,6 +76,7 @@ var deconvSpec = Spec{
 	explain:  explainConv,
 	saved:    func(row *Row, s *saving) int64 { return s.input(row) },
 	torch:    torchConv,
+	work:     convWork,
 }
 
 // rowStride is the stride a row ran with: 1 in later repeats of a block.
@@ -309,4 +311,14 @@ func (c *calc) deconvAxis(ax byte, in, k, s, d int64, pad Padding, p, op int64) 
 		return 0, false
 	}
 	return out, true
+}
+
+// convWork is both convolutions' time-estimate rule: weighted (2 FLOPs per
+// MAC forward, about twice that backward), as a grouped convolution when
+// the layer has groups (depthwise included), else a dense one.
+func convWork(row *Row) Work {
+	if row.Layer.Depthwise || row.Layer.Groups > 1 {
+		return weightedWork(row, ClassGrouped)
+	}
+	return weightedWork(row, ClassConv)
 }

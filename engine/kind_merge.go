@@ -12,15 +12,28 @@ var cropParam = Param{Key: "crop", Help: "yes or no (center-crop the larger map)
 	get: func(l *Layer) Value { return Value{Bool: l.Crop} },
 	set: func(l *Layer, v Value) { l.Crop = v.Bool }}
 
+var firstParam = Param{Key: "first", Help: "yes or no (the named map's channels come first, as a U-Net's decoder joins its encoder's map)", Type: TBool, Words: []string{"", "first"},
+	get: func(l *Layer) Value { return Value{Bool: l.First} },
+	set: func(l *Layer, v Value) { l.First = v.Bool }}
+
 var concatSpec = Spec{
 	Kind: KindConcat, Key: "concat", Help: "join a named earlier output along the channels", Example: "concat skip1 crop",
-	Main: &fromParam, Params: []Param{cropParam}, Merge: true,
+	Main: &fromParam, Params: []Param{cropParam, firstParam}, Merge: true,
 	eval: func(c *calc, f *flow) { c.merge(f) },
+	// Time estimate: a copy of both inputs into the output, no FLOPs; the
+	// gradient reaches each input as a view of the output's (no backward).
+	work: func(row *Row) Work {
+		out := elems(row.Out)
+		return Work{Class: ClassMemory, FwdRead: out, FwdWrite: out}
+	},
 	explain: func(row *Row) []string {
 		return []string{fmt.Sprintf("channels %d = %d here + %d from %q", row.Out.C, row.In.C, row.Out.C-row.In.C, row.Layer.From)}
 	},
 	torch: func(row *Row) Torch {
 		a, b := cropped(row)
+		if row.Layer.First {
+			a, b = b, a
+		}
 		return Torch{Expr: fmt.Sprintf("torch.cat([%s, %s], 1)", a, b)}
 	},
 }
@@ -29,6 +42,12 @@ var addSpec = Spec{
 	Kind: KindAdd, Key: "add", Help: "add a named earlier output", Example: "add skip2",
 	Main: &fromParam, Params: []Param{cropParam}, Merge: true,
 	eval: func(c *calc, f *flow) { c.merge(f) },
+	// Time estimate: one addition per element reading both inputs; the
+	// gradient passes to both inputs unchanged (no backward kernel).
+	work: func(row *Row) Work {
+		out := elems(row.Out)
+		return Work{Class: ClassMemory, FwdFLOPs: out, FwdRead: 2 * out, FwdWrite: out}
+	},
 	// A residual addition with stochastic depth keeps its per-sample keep
 	// mask (N×1×1×1, in the activation precision); any other addition
 	// keeps nothing.

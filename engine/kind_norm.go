@@ -32,6 +32,7 @@ var normSpec = Spec{
 		f.cl = f.cl || c.l.Norm == NormLayer
 	},
 	keepLayout: true,
+	work:       normWork,
 	explain: func(row *Row) []string {
 		var out []string
 		if row.Params > 0 {
@@ -125,4 +126,20 @@ func (c *calc) norm() {
 		c.row.Params = mul(&c.ov, 2, in.C)
 	}
 	c.checkOverflow("parameters")
+}
+
+// normWork is the normalisations' time-estimate rule, memory-bound:
+// forward reads the input twice (the statistics, then the normalisation)
+// and writes the output, about 7 FLOPs per element (sum, square and add
+// for the statistics; subtract and scale to normalise; the affine scale
+// and shift); backward about twice the forward's FLOPs, reading the
+// output's gradient and the input (twice: the reductions, then the
+// gradient) and writing the input's gradient.
+func normWork(row *Row) Work {
+	in := elems(row.In)
+	w := Work{Class: ClassMemory, FwdFLOPs: 7 * in, FwdRead: 2 * in, FwdWrite: in}
+	if row.Grad || row.Params > 0 {
+		w.BwdFLOPs, w.BwdRead, w.BwdWrite = 14*in, 3*in, in
+	}
+	return w
 }

@@ -21,6 +21,7 @@ var poolSpec = Spec{
 			get: func(l *Layer) Value { return Value{Bool: l.Ceil} },
 			set: func(l *Layer, v Value) { l.Ceil = v.Bool }}},
 	eval: func(c *calc, f *flow) { c.pool(f) },
+	work: func(row *Row) Work { return poolWork(row, float64(row.Layer.Kernel.H*row.Layer.Kernel.W)) },
 	explain: func(row *Row) []string {
 		return axisLines(row.Layer, row.In, row.Out, rowStride(row), Square(1))
 	},
@@ -40,6 +41,7 @@ var globalPoolSpec = Spec{
 	Kind: KindGlobalPool, Key: "global-pool", Help: "average or max over the whole map → C×1×1", Example: "global-pool avg",
 	Main: poolModeParam(true),
 	Bare: true,
+	work: func(row *Row) Work { return poolWork(row, float64(row.In.H*row.In.W)) },
 	eval: func(c *calc, f *flow) {
 		in := c.row.In
 		c.row.Out = Shape{in.C, 1, 1}
@@ -59,7 +61,11 @@ var poolToSpec = Spec{
 	Main: &Param{Key: "size", Help: "n or h×w", Type: TPair, Lo: 1, Hi: MaxSpatial, Label: "output size", Need: "an output size",
 		get: func(l *Layer) Value { return Value{Pair: l.Size} },
 		set: func(l *Layer, v Value) { l.Size = v.Pair }},
-	eval:  func(c *calc, f *flow) { c.poolTo(f) },
+	eval: func(c *calc, f *flow) { c.poolTo(f) },
+	// Each output averages about (input positions / output positions) values.
+	work: func(row *Row) Work {
+		return poolWork(row, float64(row.In.H*row.In.W)/float64(max(row.Out.H*row.Out.W, 1)))
+	},
 	saved: func(row *Row, s *saving) int64 { return s.input(row) },
 	torch: func(row *Row) Torch {
 		return Torch{Module: fmt.Sprintf("nn.AdaptiveAvgPool2d(%s)", tuple(row.Layer.Size))}
@@ -137,4 +143,19 @@ func (c *calc) poolTo(f *flow) {
 	f.rf.W += float64(ww-1) * f.jump.W
 	f.jump.H *= float64(in.H) / float64(sz.H)
 	f.jump.W *= float64(in.W) / float64(sz.W)
+}
+
+// poolWork is the pooling kinds' time-estimate rule: window FLOPs per
+// output element forward (a comparison or an addition per value read),
+// one per output element backward (spreading or routing its gradient);
+// forward reads the input and writes the output, backward reads the
+// output's gradient and writes the input's. Memory-bound. (Max pooling's
+// indices are not counted.)
+func poolWork(row *Row, window float64) Work {
+	in, out := elems(row.In), elems(row.Out)
+	w := Work{Class: ClassMemory, FwdFLOPs: window * out, FwdRead: in, FwdWrite: out}
+	if row.Grad {
+		w.BwdFLOPs, w.BwdRead, w.BwdWrite = out, out, in
+	}
+	return w
 }

@@ -231,6 +231,9 @@ type Layer struct {
 	From string
 	// concat, add: center-crop the larger map to the smaller one's size.
 	Crop bool
+	// concat: the named map's channels come first (torch.cat([skip, x]),
+	// as a U-Net's decoder joins its encoder's map).
+	First bool
 
 	// conv, deconv, dense: a relative width reads the input of the
 	// innermost enclosing block repeat, not of the innermost body (gate,

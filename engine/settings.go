@@ -92,6 +92,9 @@ func Settings() []Setting {
 		{Key: "headroom", Help: "share of the budget kept free (default " + FormatShare(DefaultHeadroom) + ")",
 			Kind: SettingShare, Default: FormatShare(DefaultHeadroom), Example: "15%",
 			share: func(t *Training) (*float64, *bool) { return &t.Headroom, &t.HeadroomSet }},
+		gpuSetting(),
+		count("dataset", "training samples per epoch, for the epoch-time estimate (0: none)", 0, MaxDataset, "1281167",
+			func(t *Training) *int64 { return &t.Dataset }),
 	}
 }
 
@@ -271,4 +274,14 @@ func orList(xs []string) string {
 		return strings.Join(xs, "")
 	}
 	return strings.Join(xs[:len(xs)-1], ", ") + " or " + xs[len(xs)-1]
+}
+
+// gpuSetting is the device choice: "none" or a device's --gpu name
+// (Devices). It sets the device of the time estimate and, when no budget
+// is set, the budget (Training.WithDevice).
+func gpuSetting() Setting {
+	options := append([]string{"none"}, DeviceKeys()...)
+	return Setting{Key: "gpu", Help: "GPU model: the device for the time estimate and, without a budget, the budget (e.g. a100-80gb, h100-sxm, l4, rtx-4090)",
+		Kind: SettingChoice, Options: options, Default: options[0], Example: "h100-sxm",
+		getOption: func(t Training) int { return t.GPU }, setOption: func(t *Training, i int) { t.GPU = i }}
 }

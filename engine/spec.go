@@ -48,6 +48,9 @@ type Spec struct {
 	explain func(row *Row) []string
 	saved   func(row *Row, s *saving) int64
 	torch   func(row *Row) Torch
+	// work is the kind's FLOP and byte rule for the time estimate (roofline.go);
+	// nil: element-wise (elementWork), or no work for views and containers.
+	work func(row *Row) Work
 }
 
 // Torch is how the PyTorch export writes one row: a module built in

@@ -116,6 +116,11 @@ type Training struct {
 	// distinguishes an explicit 0 from the default.
 	Headroom    float64
 	HeadroomSet bool
+	// GPU is the device (1 + its index in Devices; 0: none), for the time
+	// estimate and, when no budget is set, the budget.
+	GPU int
+	// Dataset is the training samples per epoch (0: not given).
+	Dataset int64
 }
 
 // MicroBatch returns the samples one GPU holds per forward/backward pass:
@@ -142,4 +147,24 @@ func orDefault(v, d int64) int64 {
 		return d
 	}
 	return v
+}
+
+// MaxDataset bounds the dataset setting (samples per epoch).
+const MaxDataset = 1 << 40
+
+// Device returns the device t names; ok is false when none.
+func (t Training) Device() (d Device, ok bool) {
+	if t.GPU <= 0 || t.GPU > len(devices) {
+		return Device{}, false
+	}
+	return devices[t.GPU-1], true
+}
+
+// WithDevice returns t with the budget set to the device's memory when t
+// names a device and sets no budget of its own.
+func (t Training) WithDevice() Training {
+	if d, ok := t.Device(); ok && t.Budget == 0 {
+		t.Budget = d.Memory
+	}
+	return t
 }

@@ -19,10 +19,11 @@ const (
 	Confirm             // answering a yes/no question
 	Chart               // the depth chart
 	Help                // the help screen
+	FitMap              // the map of the largest batch over widths and input sizes
 	modeCount
 )
 
-var modeNames = [...]string{"normal", "form", "picker", "prompt", "confirm", "chart", "help"}
+var modeNames = [...]string{"normal", "form", "picker", "prompt", "confirm", "chart", "help", "map"}
 
 // String names the mode.
 func (m Mode) String() string {
@@ -49,6 +50,8 @@ type KeyMap struct {
 	Reload key.Binding
 	// Folding everything, jumping between problems, scrolling the details.
 	FoldAll, UnfoldAll, NextProblem, PrevProblem, DetailsDown, DetailsUp key.Binding
+	// The map of what fits: opening it, and moving across it.
+	MapView, Left, Right key.Binding
 }
 
 // DefaultKeyMap returns the built-in bindings. Arrow keys and vim-style
@@ -109,6 +112,10 @@ func DefaultKeyMap() KeyMap {
 		PrevProblem: b("F", "previous error/warning", "F"),
 		DetailsDown: b("}", "scroll details down", "}"),
 		DetailsUp:   b("{", "scroll details up", "{"),
+
+		MapView: b("M", "what-fits map", "M"),
+		Left:    b("←/h", "left", "left", "h"),
+		Right:   b("→/l", "right", "right", "l"),
 	}
 }
 
@@ -123,7 +130,7 @@ type Action struct {
 // and its modes.
 func (k *KeyMap) Actions() []Action {
 	n := []Mode{Normal}
-	nav := []Mode{Normal, Picker, Help}
+	nav := []Mode{Normal, Picker, Help, FitMap}
 	ends := []Mode{Normal, Help}
 	return []Action{
 		{"up", nav, &k.Up}, {"down", nav, &k.Down}, {"page-up", nav, &k.PageUp}, {"page-down", nav, &k.PageDown},
@@ -132,18 +139,19 @@ func (k *KeyMap) Actions() []Action {
 		{"delete", n, &k.Delete}, {"move-up", n, &k.MoveUp}, {"move-down", n, &k.MoveDown},
 		{"select", n, &k.Select}, {"wrap", n, &k.Wrap}, {"widen", n, &k.Widen}, {"narrow", n, &k.Narrow},
 		{"width", n, &k.Width}, {"stage", n, &k.Stage}, {"up-stage", n, &k.UpStage}, {"undo", n, &k.Undo}, {"redo", n, &k.Redo},
-		{"settings", n, &k.Settings}, {"chart", []Mode{Normal, Chart}, &k.ChartView}, {"baseline", n, &k.Baseline},
+		{"settings", n, &k.Settings}, {"chart", []Mode{Normal, Chart}, &k.ChartView}, {"map", []Mode{Normal, FitMap}, &k.MapView}, {"baseline", n, &k.Baseline},
 		{"help", []Mode{Normal, Help}, &k.ShowHelp}, {"save", n, &k.Save}, {"save-as", n, &k.SaveAs},
 		{"open", n, &k.Open}, {"quit", n, &k.Quit},
-		{"force-quit", []Mode{Normal, Form, Picker, Prompt, Confirm, Chart, Help}, &k.ForceQuit},
+		{"force-quit", []Mode{Normal, Form, Picker, Prompt, Confirm, Chart, Help, FitMap}, &k.ForceQuit},
 		{"next", []Mode{Form}, &k.Next}, {"prev", []Mode{Form}, &k.Prev},
-		{"accept", []Mode{Form, Picker, Prompt}, &k.Accept},
-		{"cancel", []Mode{Form, Picker, Prompt, Confirm, Chart, Help}, &k.Cancel},
+		{"accept", []Mode{Form, Picker, Prompt, FitMap}, &k.Accept},
+		{"cancel", []Mode{Form, Picker, Prompt, Confirm, Chart, Help, FitMap}, &k.Cancel},
 		{"complete", []Mode{Prompt}, &k.Complete},
 		{"yes", []Mode{Confirm}, &k.Yes}, {"no", []Mode{Confirm}, &k.No}, {"reload", []Mode{Confirm}, &k.Reload},
 		{"fold-all", n, &k.FoldAll}, {"unfold-all", n, &k.UnfoldAll},
 		{"next-problem", n, &k.NextProblem}, {"prev-problem", n, &k.PrevProblem},
 		{"details-down", n, &k.DetailsDown}, {"details-up", n, &k.DetailsUp},
+		{"left", []Mode{FitMap}, &k.Left}, {"right", []Mode{FitMap}, &k.Right},
 	}
 }
 
@@ -159,7 +167,7 @@ func (k KeyMap) FullHelp() [][]key.Binding {
 		{k.Edit, k.Add, k.QuickAdd, k.Copy, k.Delete, k.MoveUp, k.MoveDown, k.Select, k.Wrap},
 		{k.Widen, k.Narrow, k.Width, k.Stage, k.UpStage, k.Undo, k.Redo, k.Baseline},
 		{k.Settings, k.ChartView, k.ShowHelp, k.Save, k.SaveAs, k.Open, k.Quit, k.ForceQuit},
-		{k.NextProblem, k.PrevProblem, k.DetailsDown, k.DetailsUp},
+		{k.NextProblem, k.PrevProblem, k.DetailsDown, k.DetailsUp, k.MapView},
 	}
 }
 

@@ -99,3 +99,23 @@ func (k KeyMap) Help() HelpKeys {
 	return HelpKeys{Up: k.Up, Down: k.Down, PageUp: k.PageUp, PageDown: k.PageDown, Top: k.Top, Bottom: k.Bottom,
 		Close: k.ShowHelp, Cancel: k.Cancel}
 }
+
+// FitMapKeys move over the map of what fits, apply a cell or close it.
+type FitMapKeys struct {
+	Up, Down, Left, Right, Accept, Close, Cancel key.Binding
+}
+
+// ShortHelp is the map's help line.
+func (k FitMapKeys) ShortHelp() []key.Binding {
+	return []key.Binding{k.Up, k.Down, k.Left, k.Right, k.Accept, k.Cancel}
+}
+
+// FullHelp adds the key that closes it too.
+func (k FitMapKeys) FullHelp() [][]key.Binding {
+	return [][]key.Binding{{k.Up, k.Down, k.Left, k.Right}, {k.Accept, k.Close, k.Cancel}}
+}
+
+// FitMap returns the map's keys.
+func (k KeyMap) FitMap() FitMapKeys {
+	return FitMapKeys{Up: k.Up, Down: k.Down, Left: k.Left, Right: k.Right, Accept: k.Accept, Close: k.MapView, Cancel: k.Cancel}
+}

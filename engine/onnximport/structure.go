@@ -323,6 +323,19 @@ func (b *builder) concat(t string, j int, direct bool, others []int, depth int) 
 		}
 		b.mark(j)
 		switch {
+		case ins[0] == t && ins[1] == end && b.goesDown(t, path):
+			// A path that goes down and comes back up, joined after the
+			// map it left (torch.cat([skip, up(x)])): a U-Net's skip,
+			// written flat as a named concatenation with the named map
+			// first, so deep U-Nets stay within the nesting limit.
+			src := b.itemOf[t]
+			if src == nil {
+				return nil, t, b.stop(j, "it concatenates the stack's input, which a concatenation cannot name")
+			}
+			src.tap = true
+			c := &item{l: engine.Layer{Kind: engine.KindConcat, First: true}, from: src, nodes: []int{j}, out: out}
+			b.itemOf[out] = c
+			return append(path, c), out, nil
 		case ins[0] == t && ins[1] == end:
 			u := &item{l: engine.Layer{Kind: engine.KindBlock, DenseLinks: true}, kids: path, nodes: []int{j}, out: out}
 			b.itemOf[out] = u
@@ -497,4 +510,27 @@ func (b *builder) split(k, end, depth int) ([]*item, string, error) {
 	fork := &item{l: engine.Layer{Kind: engine.KindFork, Split: true}, kids: branches, nodes: []int{k, j}, out: out}
 	b.itemOf[out] = fork
 	return []*item{fork}, out, nil
+}
+
+// goesDown reports whether a path from tensor t passes through a map
+// smaller than t in height or width (it is pooled or strided, then
+// brought back up).
+func (b *builder) goesDown(t string, path []*item) bool {
+	ts := b.g.shapes[t]
+	if len(ts) != 4 {
+		return false
+	}
+	var walk func([]*item) bool
+	walk = func(its []*item) bool {
+		for _, it := range its {
+			if s := b.g.shapes[it.out]; len(s) == 4 && (s[2] < ts[2] || s[3] < ts[3]) {
+				return true
+			}
+			if walk(it.kids) {
+				return true
+			}
+		}
+		return false
+	}
+	return walk(path)
 }

@@ -113,3 +113,47 @@ func TestImportSplitFork(t *testing.T) {
 		t.Errorf("parts joined out of order: %v", err)
 	}
 }
+
+// TestImportUNetSkip: torch.cat([e, up(down(e))]) — a U-Net's skip
+// (Ronneberger et al. 2015, Figure 1), a path that goes down and comes
+// back up joined after the map it left — is written flat as a named
+// concatenation with the named map first, not nested; a path that keeps
+// the size (DenseNet's) stays a block with dense links. Weights by common
+// practice: 4·3·3·3 + 8·4·3·3 + 8·4·2·2 with no biases.
+func TestImportUNetSkip(t *testing.T) {
+	build := func(down bool) []byte {
+		pool := node("MaxPool", "/pool/MaxPool", []string{"e"}, "p", ints("kernel_shape", 2, 2), ints("strides", 2, 2))
+		up := node("ConvTranspose", "/up/ConvTranspose", []string{"m", "u"}, "b", ints("kernel_shape", 2, 2), ints("strides", 2, 2))
+		if !down {
+			pool = node("MaxPool", "/pool/MaxPool", []string{"e"}, "p", ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1))
+			up = node("Conv", "/up/Conv", []string{"m", "v"}, "b", ints("kernel_shape", 1, 1))
+		}
+		cat := node("Concat", "/Concat", []string{"e", "b"}, "y")
+		cat.Attribute = append(cat.Attribute, axis1())
+		return model(t, [4]int64{1, 3, 16, 16}, 13, map[string][]int64{"w": {4, 3, 3, 3}, "w2": {8, 4, 3, 3}, "u": {8, 4, 2, 2}, "v": {4, 8, 1, 1}},
+			node("Conv", "/enc/Conv", []string{"x", "w"}, "e", ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1)),
+			pool,
+			node("Conv", "/mid/Conv", []string{"p", "w2"}, "m", ints("kernel_shape", 3, 3), ints("pads", 1, 1, 1, 1)),
+			up,
+			cat,
+		)
+	}
+	s, _, err := Import(build(true), "unet")
+	if err != nil {
+		t.Fatal(err)
+	}
+	last := s.Layers[len(s.Layers)-1]
+	if len(s.Layers) != 5 || last.Kind != engine.KindConcat || !last.First || last.From == "" || last.From != s.Layers[0].Name {
+		t.Fatalf("layers %+v", s.Layers)
+	}
+	if r := engine.Evaluate(s); r.Errors != 0 || r.Totals.Params != 4*3*3*3+8*4*3*3+8*4*2*2 || r.Output != (engine.Shape{C: 8, H: 16, W: 16}) {
+		t.Errorf("params %d, output %v, %v", r.Totals.Params, r.Output, r.Diags)
+	}
+	s, _, err = Import(build(false), "dense")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Layers) != 2 || s.Layers[1].Kind != engine.KindBlock || !s.Layers[1].DenseLinks {
+		t.Errorf("a path that keeps the size: %+v", s.Layers)
+	}
+}

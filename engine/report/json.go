@@ -24,6 +24,7 @@ type JSON struct {
 	Warnings []string    `json:"warnings"` // reserved for stack-wide notes
 	Memory   *JSONMemory `json:"memory"`   // training memory per GPU (an estimate)
 	Fit      *JSONFit    `json:"fit"`      // null without a budget, and when the memory is not estimated
+	Time     *JSONTime   `json:"time"`     // training time (an estimate); null without a device (--gpu)
 }
 
 // JSONMemory is the training-memory estimate for one GPU, in bytes.
@@ -98,21 +99,22 @@ const Caution = "Estimates: frameworks, convolution workspaces, allocator fragme
 
 // JSONLayer is one row of the flattened stack.
 type JSONLayer struct {
-	Path     string     `json:"path"`
-	Kind     string     `json:"kind"`
-	Name     string     `json:"name"`
-	Role     string     `json:"role"`   // layer, shortcut, residual-add or after-add
-	Status   string     `json:"status"` // ok, error or unresolved
-	Out      *[3]int64  `json:"out"`    // null unless status is ok
-	Params   int64      `json:"params"`
-	Buffers  int64      `json:"buffers"`
-	MACs     int64      `json:"macs"`
-	ActBytes int64      `json:"act_bytes"` // activation bytes this layer keeps for backward, at the micro-batch
-	RF       [2]float64 `json:"rf"`
-	Jump     [2]float64 `json:"jump"`
-	Errors   []string   `json:"errors"`
-	Warnings []string   `json:"warnings"`
-	Notes    []string   `json:"notes"` // facts such as how much a merge crops
+	Path     string         `json:"path"`
+	Kind     string         `json:"kind"`
+	Name     string         `json:"name"`
+	Role     string         `json:"role"`   // layer, shortcut, residual-add or after-add
+	Status   string         `json:"status"` // ok, error or unresolved
+	Out      *[3]int64      `json:"out"`    // null unless status is ok
+	Params   int64          `json:"params"`
+	Buffers  int64          `json:"buffers"`
+	MACs     int64          `json:"macs"`
+	ActBytes int64          `json:"act_bytes"` // activation bytes this layer keeps for backward, at the micro-batch
+	RF       [2]float64     `json:"rf"`
+	Jump     [2]float64     `json:"jump"`
+	Errors   []string       `json:"errors"`
+	Warnings []string       `json:"warnings"`
+	Notes    []string       `json:"notes"` // facts such as how much a merge crops
+	Time     *JSONLayerTime `json:"time"`  // this layer's time estimate per micro-batch; null without a device
 }
 
 // JSONTotals sums the resolved rows.
@@ -162,6 +164,7 @@ func buildLayer(an *engine.Analysis, i int, out *[3]int64) JSONLayer {
 	if i < len(m.Rows) {
 		jl.ActBytes = m.Rows[i]
 	}
+	jl.Time = buildLayerTime(an, i)
 	for _, d := range r.DiagsFor(i) {
 		switch d.Severity {
 		case engine.SevError:
@@ -214,6 +217,7 @@ func buildHead(an *engine.Analysis) *JSON {
 			MinGPUs:  JSONAnswer{float64(an.Fit.MinGPUs), an.Fit.GPUsLimit, ""},
 		}
 	}
+	doc.Time = buildTime(an)
 	return doc
 }
 
@@ -271,7 +275,8 @@ func WriteJSON(w io.Writer, an *engine.Analysis) error {
 	field("errors", doc.Errors, false)
 	field("warnings", doc.Warnings, false)
 	field("memory", doc.Memory, false)
-	if err := field("fit", doc.Fit, true); err != nil {
+	field("fit", doc.Fit, false)
+	if err := field("time", doc.Time, true); err != nil {
 		return err
 	}
 	b.WriteString("}\n")

@@ -39,6 +39,10 @@ func WriteText(w io.Writer, an *engine.Analysis) error {
 		engine.FormatCount(r.Totals.Params), engine.GroupDigits(r.Totals.Params),
 		engine.GroupDigits(r.Totals.Buffers), engine.FormatCount(r.Totals.MACs))
 	writeMemory(w, an)
+	if an.Fit.HasBudget {
+		textFitMap(w, an)
+	}
+	writeTime(w, an)
 	if len(r.Diags) > 0 {
 		fmt.Fprintf(w, "\n%d %s, %d %s, %d %s\n", r.Errors, pl(r.Errors, "error", "errors"), r.Warnings, pl(r.Warnings, "warning", "warnings"), r.Notes, pl(r.Notes, "note", "notes"))
 		for _, d := range r.Diags {

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"errors"
+	"flag"
 	"fmt"
 	"os/exec"
 	"strconv"
@@ -11,6 +12,8 @@ import (
 	"sync/atomic"
 	"syscall"
 	"time"
+
+	"stackfit/engine"
 )
 
 // errNoGPU says why --budget auto found no GPU memory.
@@ -141,4 +144,36 @@ func clip(s string, n int) string {
 		return s
 	}
 	return s[:n] + "…"
+}
+
+// gpuDevice asks nvidia-smi for the first GPU's name and returns its
+// Training.GPU value (1 + its index in engine.Devices), or 0 when the
+// query fails or the table lacks the GPU: the device is then simply not
+// set (the budget already came from the memory query).
+func gpuDevice() int {
+	bin, err := exec.LookPath("nvidia-smi")
+	if err != nil {
+		return 0
+	}
+	out, err := runBounded(bin, "--query-gpu=name", "--format=csv,noheader")
+	if err != nil {
+		return 0
+	}
+	d, ok := engine.DeviceFromName(firstLine(string(out)))
+	if !ok {
+		return 0
+	}
+	for i, k := range engine.DeviceKeys() {
+		if k == d.Key {
+			return i + 1
+		}
+	}
+	return 0
+}
+
+// given reports whether the flag name was set on the command line.
+func given(fs *flag.FlagSet, name string) bool {
+	set := false
+	fs.Visit(func(f *flag.Flag) { set = set || f.Name == name })
+	return set
 }

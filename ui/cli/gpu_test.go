@@ -65,3 +65,20 @@ func TestGPUOutputLimit(t *testing.T) {
 		t.Errorf("17 bytes: %v", err)
 	}
 }
+
+// TestBudgetAutoDevice: --budget auto also takes the device from the name
+// nvidia-smi reports (an H100 SXM reports "NVIDIA H100 80GB HBM3", from
+// memory), so the report gains its time estimate; a name the table lacks
+// leaves the device unset.
+func TestBudgetAutoDevice(t *testing.T) {
+	fakeSMI(t, "case \"$1\" in *name*) echo 'NVIDIA H100 80GB HBM3';; *) echo 81559;; esac\n")
+	out, errs, code := run(t, "", "report", example, "--budget", "auto")
+	if code != ExitOK || !strings.Contains(out, "training time per step — ESTIMATE · h100-sxm") || !strings.Contains(out, "budget 79.6 GiB") {
+		t.Errorf("exit %d, stderr %q, output:\n%s", code, errs, out)
+	}
+	fakeSMI(t, "case \"$1\" in *name*) echo 'NVIDIA GeForce GTX 1080';; *) echo 8192;; esac\n")
+	out, _, _ = run(t, "", "report", example, "--budget", "auto")
+	if strings.Contains(out, "training time per step") || !strings.Contains(out, "give a GPU for an estimate") {
+		t.Errorf("unknown GPU: output:\n%s", out)
+	}
+}

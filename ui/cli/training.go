@@ -78,6 +78,9 @@ func (tf trainingFlags) apply(t engine.Training) (engine.Training, error) {
 				if t.Budget, err = gpuMemory(); err != nil {
 					err = fmt.Errorf("--budget auto: %w", err)
 				}
+				if err == nil && t.GPU == 0 && tf.fs.Lookup("gpu") != nil && !given(tf.fs, "gpu") {
+					t.GPU = gpuDevice() // the device too, when nvidia-smi names one the table knows
+				}
 				return
 			case "none": // no budget, even one the file sets
 				t.Budget = 0

@@ -61,6 +61,8 @@ func (m *Model) Mode() keymap.Mode {
 		return keymap.Help
 	case *chart:
 		return keymap.Chart
+	case *fitMapView:
+		return keymap.FitMap
 	}
 	return keymap.Normal
 }
@@ -168,6 +170,10 @@ func (m *Model) result(res tea.Msg) tea.Cmd {
 		}
 	case helpscreen.Closed, chartClosed:
 		m.closeOverlay()
+	case fitMapClosed:
+		m.closeFitMap()
+	case fitMapChosen:
+		return m.applyFitCell(r.cell)
 	}
 	return nil
 }

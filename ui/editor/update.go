@@ -27,6 +27,9 @@ func (m *Model) Update(msg tea.Msg) (tea.Model, tea.Cmd) {
 			m.stopWidth() // it has ended; this releases its context
 		}
 		return m, nil
+	case fitMapMsg:
+		m.fitMapIn(msg)
+		return m, nil
 	case tea.KeyMsg:
 		// Keys typed faster than the terminal is read arrive as one message
 		// of several runes; outside text fields each is its own command.
@@ -145,6 +148,8 @@ func (m *Model) normal(msg tea.KeyMsg) tea.Cmd {
 	case key.Matches(msg, k.ChartView):
 		m.clearPreview()
 		m.open(&chart{keys: m.keys})
+	case key.Matches(msg, k.MapView):
+		return m.openFitMap()
 	case key.Matches(msg, k.Baseline):
 		m.toggleBaseline()
 	case key.Matches(msg, k.ShowHelp):

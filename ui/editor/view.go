@@ -40,6 +40,8 @@ func (m *Model) View() string {
 	switch o := m.overlay.(type) {
 	case *chart:
 		b.WriteString(fr.chartView(lay.listH + 2 + lay.detailH))
+	case *fitMapView:
+		b.WriteString(fr.fitMapView(o, lay.listH+2+lay.detailH))
 	default:
 		b.WriteString(m.tree.header(fr.drawing, lay))
 		b.WriteByte('\n')
@@ -176,6 +178,8 @@ func (m *Model) bottomView(status string) string {
 		hints = o.Keys.ShortHelp()
 	case *chart:
 		hints = []key.Binding{m.keys.ChartView, m.keys.Cancel}
+	case *fitMapView:
+		hints = o.keys.ShortHelp()
 	default:
 		hints, keep = m.keys.ShortHelp(), []key.Binding{m.keys.Save, m.keys.ShowHelp, m.keys.Quit}
 	}
