@@ -22,7 +22,10 @@ import (
 //     4) → Reshape back becomes ChannelShuffle (not an ONNX operator: the
 //     stack's shuffle);
 //   - Slices of one tensor along the channels into equal parts (a chunk)
-//     become one Split on axis 1 with an output per part, in order.
+//     become one Split on axis 1 with an output per part, in order;
+//   - one or two Slices of the height and width that keep a centred
+//     window (a U-Net's skip cropped to the decoder's size) become
+//     CenterCrop (not an ONNX operator: a merge's crop).
 type rewriter struct {
 	im      *importer
 	gr      *graph
@@ -43,7 +46,7 @@ func (im *importer) rewrite(gr *graph, outputs map[string]bool) {
 			if r.dead[k] {
 				continue
 			}
-			if r.layerNorm(k) || r.groupNorm(k) || r.shuffle(k) || r.chunk(k) {
+			if r.layerNorm(k) || r.groupNorm(k) || r.shuffle(k) || r.chunk(k) || r.crop(k) {
 				changed = true
 			}
 		}
@@ -353,6 +356,90 @@ func (r *rewriter) chunk(k int) bool {
 	}
 	n := &onnxpb.Node{OpType: proto.String("Split"), Name: proto.String(r.gr.nodes[parts[0].k].GetName()), Input: []string{x},
 		Output: outs, Attribute: []*onnxpb.Attribute{iattr("axis", 1)}}
+	r.replace(ks, n, []string{x})
+	return true
+}
+
+// spatialSlice reads Slice node k as a window of x's height and width:
+// per spatial axis (0 height, 1 width) its start and end, or ok false
+// when it slices another axis, steps, or is not known.
+func (r *rewriter) spatialSlice(k int, xs []int64) (lo, hi [2]int64, set [2]bool, ok bool) {
+	ins := r.gr.nodes[k].GetInput()
+	if len(ins) < 4 {
+		return lo, hi, set, false
+	}
+	st, ok1 := r.im.intsOf(ins[1])
+	en, ok2 := r.im.intsOf(ins[2])
+	ax, ok3 := r.im.intsOf(ins[3])
+	if !ok1 || !ok2 || !ok3 || len(st) != len(en) || len(st) != len(ax) || len(st) == 0 {
+		return lo, hi, set, false
+	}
+	if len(ins) > 4 && ins[4] != "" {
+		steps, ok := r.im.intsOf(ins[4])
+		if !ok || slices.ContainsFunc(steps, func(s int64) bool { return s != 1 }) {
+			return lo, hi, set, false
+		}
+	}
+	for i, a := range ax {
+		j, ok := axisOf(a, 4)
+		if !ok || j < 2 || set[j-2] {
+			return lo, hi, set, false
+		}
+		dim := xs[j]
+		b, e := st[i], min(en[i], dim)
+		if b < 0 || e <= b {
+			return lo, hi, set, false
+		}
+		lo[j-2], hi[j-2], set[j-2] = b, e, true
+	}
+	return lo, hi, set, true
+}
+
+// crop matches one Slice of x's height and width, or two in a row (one
+// per axis), that keep a centred window: the start on each axis is
+// (size − kept) / 2, rounded down, as a merge's crop takes it.
+func (r *rewriter) crop(k int) bool {
+	if !r.is(k, "Slice") {
+		return false
+	}
+	x := r.gr.data[k][0]
+	xs := r.gr.shapes[x]
+	if len(xs) != 4 {
+		return false
+	}
+	lo, hi, set, ok := r.spatialSlice(k, xs)
+	if !ok {
+		return false
+	}
+	ks := []int{k}
+	if n := r.only(r.out(k)); r.is(n, "Slice", r.out(k)) {
+		lo2, hi2, set2, ok := r.spatialSlice(n, xs)
+		if ok && set[0] != set2[0] && set[1] != set2[1] {
+			for i := range 2 {
+				if set2[i] {
+					lo[i], hi[i], set[i] = lo2[i], hi2[i], true
+				}
+			}
+			ks = append(ks, n)
+		}
+	}
+	var keep [2]int64
+	for i := range 2 {
+		size := xs[2+i]
+		if !set[i] {
+			lo[i], hi[i] = 0, size
+		}
+		keep[i] = hi[i] - lo[i]
+		if lo[i] != (size-keep[i])/2 {
+			return false
+		}
+	}
+	if keep[0] == xs[2] && keep[1] == xs[3] {
+		return false // keeps everything: not a crop
+	}
+	last := ks[len(ks)-1]
+	n := &onnxpb.Node{OpType: proto.String("CenterCrop"), Name: proto.String(r.gr.nodes[k].GetName()), Input: []string{x},
+		Output: []string{r.out(last)}, Attribute: []*onnxpb.Attribute{iattr("height", keep[0]), iattr("width", keep[1])}}
 	r.replace(ks, n, []string{x})
 	return true
 }

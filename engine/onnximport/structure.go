@@ -316,6 +316,22 @@ func (b *builder) chain(k, end int) []int {
 func (b *builder) concat(t string, j int, direct bool, others []int, depth int) ([]*item, string, error) {
 	ins := b.g.data[j]
 	out := b.g.nodes[j].GetOutput()[0]
+	crop := false
+	if len(others) == 2 && len(ins) == 2 && !direct {
+		// A map cropped to the other path's size on its way into the join
+		// (a U-Net without padding): the join reads the map, cropped.
+		for i, c := range others {
+			n := b.g.nodes[c]
+			if o := n.GetOutput()[0]; n.GetOpType() == "CenterCrop" && b.single(o) == j && slices.Contains(ins, o) {
+				b.mark(c)
+				ins = slices.Clone(ins)
+				ins[slices.Index(ins, o)] = t
+				others = slices.Delete(slices.Clone(others), i, i+1)
+				direct, crop = true, true
+				break
+			}
+		}
+	}
 	if direct && len(others) == 1 && len(ins) == 2 {
 		path, end, err := b.seq(t, others[0], j, depth+1)
 		if err != nil {
@@ -333,10 +349,10 @@ func (b *builder) concat(t string, j int, direct bool, others []int, depth int) 
 				return nil, t, b.stop(j, "it concatenates the stack's input, which a concatenation cannot name")
 			}
 			src.tap = true
-			c := &item{l: engine.Layer{Kind: engine.KindConcat, First: true}, from: src, nodes: []int{j}, out: out}
+			c := &item{l: engine.Layer{Kind: engine.KindConcat, First: true, Crop: crop}, from: src, nodes: []int{j}, out: out}
 			b.itemOf[out] = c
 			return append(path, c), out, nil
-		case ins[0] == t && ins[1] == end:
+		case ins[0] == t && ins[1] == end && !crop:
 			u := &item{l: engine.Layer{Kind: engine.KindBlock, DenseLinks: true}, kids: path, nodes: []int{j}, out: out}
 			b.itemOf[out] = u
 			return []*item{u}, out, nil
@@ -346,7 +362,7 @@ func (b *builder) concat(t string, j int, direct bool, others []int, depth int) 
 				return nil, t, b.stop(j, "it concatenates the stack's input, which a concatenation cannot name")
 			}
 			src.tap = true
-			c := &item{l: engine.Layer{Kind: engine.KindConcat}, from: src, nodes: []int{j}, out: out}
+			c := &item{l: engine.Layer{Kind: engine.KindConcat, Crop: crop}, from: src, nodes: []int{j}, out: out}
 			b.itemOf[out] = c
 			return append(path, c), out, nil
 		}

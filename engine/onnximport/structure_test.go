@@ -157,3 +157,40 @@ func TestImportUNetSkip(t *testing.T) {
 		t.Errorf("a path that keeps the size: %+v", s.Layers)
 	}
 }
+
+// TestImportCroppedSkip: a U-Net without padding crops its encoder's map
+// to the decoder's size before the join (Ronneberger et al. 2015, Figure
+// 1: "copy and crop"); the exporter writes the crop as two Slices of the
+// height and width. It imports as a named concatenation with crop; an
+// off-centre window has no such form. 2·3·3·3 + 2·2·3·3 + 2·2·2·2 weights.
+func TestImportCroppedSkip(t *testing.T) {
+	build := func(top int64) []byte {
+		cat := node("Concat", "/Concat", []string{"s2", "b"}, "y")
+		cat.Attribute = append(cat.Attribute, axis1())
+		// e is 2×12×12; the path gives 2×8×8 (pool to 6, conv to 4, up to 8).
+		return modelWith(t, [4]int64{1, 3, 14, 14}, 13, map[string][]int64{"w": {2, 3, 3, 3}, "w2": {2, 2, 3, 3}, "u": {2, 2, 2, 2}},
+			[]*onnxpb.Tensor{rawInt64("h0", top), rawInt64("h1", top+8), rawInt64("ax2", 2), rawInt64("w0", 2), rawInt64("w1", 10), rawInt64("ax3", 3)},
+			node("Conv", "/enc/Conv", []string{"x", "w"}, "e", ints("kernel_shape", 3, 3)),
+			node("MaxPool", "/pool/MaxPool", []string{"e"}, "p", ints("kernel_shape", 2, 2), ints("strides", 2, 2)),
+			node("Conv", "/mid/Conv", []string{"p", "w2"}, "m", ints("kernel_shape", 3, 3)),
+			node("ConvTranspose", "/up/ConvTranspose", []string{"m", "u"}, "b", ints("kernel_shape", 2, 2), ints("strides", 2, 2)),
+			node("Slice", "/Slice", []string{"e", "h0", "h1", "ax2"}, "s1"),
+			node("Slice", "/Slice_1", []string{"s1", "w0", "w1", "ax3"}, "s2"),
+			cat,
+		)
+	}
+	s, _, err := Import(build(2), "unet")
+	if err != nil {
+		t.Fatal(err)
+	}
+	last := s.Layers[len(s.Layers)-1]
+	if last.Kind != engine.KindConcat || !last.Crop || !last.First || last.From != s.Layers[0].Name {
+		t.Fatalf("layers %+v", s.Layers)
+	}
+	if r := engine.Evaluate(s); r.Errors != 0 || r.Totals.Params != 2*3*3*3+2*2*3*3+2*2*2*2 || r.Output != (engine.Shape{C: 4, H: 8, W: 8}) {
+		t.Errorf("params %d, output %v, %v", r.Totals.Params, r.Output, r.Diags)
+	}
+	if _, _, err := Import(build(1), "off-centre"); err == nil {
+		t.Errorf("an off-centre window imported as a centred crop")
+	}
+}
