@@ -38,7 +38,7 @@ func Analyze(s *Stack, t Training, a Assumptions) *Analysis {
 	}
 	if d, ok := t.Device(); ok {
 		an.Time = new(Time)
-		an.Result.Time(t, d, DefaultEfficiency(), an.Time)
+		an.Result.Time(t, d, t.Efficiencies(), an.Time)
 	}
 	an.Memory.dropScratch() // a one-shot analysis keeps its figures, not the walk's storage
 	return an

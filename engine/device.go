@@ -81,6 +81,16 @@ var devices = []Device{
 		Source: "NVIDIA Ada GPU Architecture whitepaper (GeForce RTX 4090 column)", smi: []string{"4090"}},
 }
 
+// CPUDevice is the processor as a device: the gpu setting's "cpu", for
+// estimates of training on the CPU. A processor has no datasheet figure
+// the roofline can use as it stands, so its peaks are nominal — 1 TFLOP/s
+// at every precision and 100 GB/s of memory bandwidth, round figures above
+// what a desktop or server socket reaches — and the efficiencies that
+// stackfit calibrate measures on the machine are shares of these. Without
+// a calibration its estimate means nothing: calibrate first.
+var CPUDevice = Device{Key: "cpu", Name: "CPU (nominal peaks; calibrate)", Bandwidth: 100 * giga, FP32: 1 * tera,
+	LinkKind: "none", Source: "nominal figures, not a datasheet: the calibration's efficiencies are shares of them"}
+
 // Devices returns the device table, in its display order (a copy).
 func Devices() []Device { return append([]Device(nil), devices...) }
 
@@ -93,9 +103,13 @@ func DeviceKeys() []string {
 	return keys
 }
 
-// DeviceByKey returns the device whose --gpu name is key, any case.
+// DeviceByKey returns the device whose --gpu name is key, any case
+// ("cpu": CPUDevice).
 func DeviceByKey(key string) (Device, bool) {
 	k := strings.ToLower(strings.TrimSpace(key))
+	if k == CPUDevice.Key {
+		return CPUDevice, true
+	}
 	for _, d := range devices {
 		if d.Key == k {
 			return d, true

@@ -2,7 +2,11 @@ package engine
 
 import (
 	"cmp"
+	"fmt"
+	"math"
 	"slices"
+	"strconv"
+	"strings"
 )
 
 // OpClass is the class of operation a layer's kernels belong to; each has
@@ -305,4 +309,269 @@ func (tm *Time) Top(n int) []int {
 func elems(s Shape) float64 {
 	n, _ := s.Elements()
 	return float64(n)
+}
+
+// passCurve is the time of one pass (forward or backward) summed over a
+// stack's layers as a function of the micro-batch n, in closed form. Each
+// layer takes max(k₁·n, k₂·n + c): k₁ its FLOPs per sample over the peak,
+// k₂ its activation bytes per sample and c its weight bytes over the
+// bandwidth, all divided by the efficiency. That is k₂·n + c up to the
+// layer's breakpoint c / (k₁ − k₂) (memory-bound) and k₁·n past it
+// (compute-bound), so the sum is convex and piecewise linear: slope and
+// constant at n → 0, then, past each breakpoint (sorted), the slope grows
+// by k₁ − k₂ and the constant drops by c. A batch costs a binary search.
+type passCurve struct {
+	slope0, const0 float64
+	bps            []float64 // breakpoints, ascending
+	dSlope, dConst []float64 // prefix sums over the breakpoints (one longer)
+	pend           []curveBreak
+}
+
+type curveBreak struct{ at, slope, konst float64 }
+
+func (c *passCurve) reset() {
+	c.slope0, c.const0 = 0, 0
+	c.bps, c.dSlope, c.dConst, c.pend = c.bps[:0], c.dSlope[:0], c.dConst[:0], c.pend[:0]
+}
+
+// add adds one layer's pass: k1 seconds per sample of arithmetic, k2
+// seconds per sample and c seconds of memory traffic.
+func (c *passCurve) add(k1, k2, konst float64) {
+	switch {
+	case k1 <= k2:
+		c.slope0 += k2
+		c.const0 += konst
+	case konst <= 0:
+		c.slope0 += k1
+	default:
+		c.slope0 += k2
+		c.const0 += konst
+		c.pend = append(c.pend, curveBreak{konst / (k1 - k2), k1 - k2, konst})
+	}
+}
+
+// close sorts the breakpoints and sums them up.
+func (c *passCurve) close() {
+	slices.SortFunc(c.pend, func(a, b curveBreak) int { return cmp.Compare(a.at, b.at) })
+	c.dSlope, c.dConst = append(c.dSlope, 0), append(c.dConst, 0)
+	for i, b := range c.pend {
+		c.bps = append(c.bps, b.at)
+		c.dSlope = append(c.dSlope, c.dSlope[i]+b.slope)
+		c.dConst = append(c.dConst, c.dConst[i]+b.konst)
+	}
+}
+
+// at returns the pass's seconds at micro-batch n.
+func (c *passCurve) at(n float64) float64 {
+	i, _ := slices.BinarySearch(c.bps, n) // layers 0..i−1 are compute-bound at n
+	return (c.slope0+c.dSlope[i])*n + max(0, c.const0-c.dConst[i])
+}
+
+// StepCurve is Time's step in closed form over the batch, for one stack,
+// precision and device: built once from an evaluation (O(rows·log rows)),
+// it gives the step time at any batch (O(log rows)), equal to Time's
+// Step up to rounding. The sweep uses it for every batch of a variant.
+type StepCurve struct {
+	fwd, bwd         passCurve
+	optimizer        float64
+	allReduce        float64
+	accumulate, gpus int64
+	t                Training
+	ok               bool
+}
+
+// Build makes c the step curve of r under t (whose batch is ignored) on d
+// with the efficiencies eff. ok is false when Time would estimate nothing.
+func (c *StepCurve) Build(r *Result, t Training, d Device, eff Efficiency) (ok bool) {
+	c.fwd.reset()
+	c.bwd.reset()
+	c.t, c.accumulate, c.gpus = t, max(t.Accumulate, 1), max(t.GPUs, 1)
+	c.ok = r.Errors == 0 && len(r.Rows) > 0
+	if !c.ok {
+		return false
+	}
+	act := float64(ActivationBytes(t.Precision))
+	wf, wb := weightBytes(t.Precision)
+	for i := range r.Rows {
+		row := &r.Rows[i]
+		if row.Status != StatusOK {
+			continue
+		}
+		w := rowWork(row)
+		peak, bw, e := d.Peak(w.Class, t.Precision), d.Bandwidth, eff[w.Class]
+		if w.Class == ClassNone || peak <= 0 || bw <= 0 || e <= 0 {
+			continue
+		}
+		p := float64(row.Params)
+		c.fwd.add(w.FwdFLOPs/peak/e, act*(w.FwdRead+w.FwdWrite)/bw/e, p*wf/bw/e)
+		cb := 0.0
+		if w.BwdFLOPs > 0 {
+			cb = p * wb / bw / e
+		}
+		c.bwd.add(w.BwdFLOPs/peak/e, act*(w.BwdRead+w.BwdWrite)/bw/e, cb)
+	}
+	c.fwd.close()
+	c.bwd.close()
+	params := float64(r.Totals.Params)
+	if t.Shard >= ShardOptimizer {
+		params /= float64(c.gpus)
+	}
+	c.optimizer = 0
+	if d.Bandwidth > 0 && eff[ClassMemory] > 0 {
+		c.optimizer = params * optimizerAccesses(t) / (d.Bandwidth * eff[ClassMemory])
+	}
+	_, g, _, _ := bytesPer(t.Precision)
+	c.allReduce = RingAllReduce(float64(r.Totals.Params)*float64(g), c.gpus, d.Link/2)
+	return true
+}
+
+// Step returns the seconds of one training step at the global batch
+// (split over the GPUs and accumulation steps as Training.MicroBatch
+// does); 0 when the curve estimates nothing.
+func (c *StepCurve) Step(batch int64) float64 {
+	if !c.ok {
+		return 0
+	}
+	t := c.t
+	t.Batch = batch
+	n := float64(t.MicroBatch())
+	f, b := c.fwd.at(n), c.bwd.at(n)
+	return float64(c.accumulate)*(f+b) + c.optimizer + max(0, c.allReduce-b)
+}
+
+// classKeys are the classes' names in the efficiency setting.
+var classKeys = [...]string{"", "conv", "grouped", "matrix", "memory"}
+
+// ClassKey returns the class's name in the efficiency setting and in the
+// calibration's output: conv, grouped, matrix or memory ("" for none).
+func ClassKey(c OpClass) string {
+	if int(c) < len(classKeys) {
+		return classKeys[c]
+	}
+	return ""
+}
+
+// ClassByKey returns the class ClassKey names.
+func ClassByKey(key string) (OpClass, bool) {
+	c := slices.Index(classKeys[:], strings.ToLower(key))
+	return OpClass(max(c, 0)), c >= int(ClassConv)
+}
+
+// MaxEfficiency bounds a calibrated efficiency: a share above 1 would mean
+// the device beat its own peak (a measurement or table error).
+const MaxEfficiency = 1.0
+
+// FormatEfficiency writes the set classes' efficiencies as the stack
+// file's efficiency setting reads them: "conv 42%, matrix 55%", three
+// significant digits; "" when none is set.
+func FormatEfficiency(e Efficiency) string {
+	var parts []string
+	for c := ClassConv; c < classCount; c++ {
+		if e[c] > 0 {
+			parts = append(parts, classKeys[c]+" "+strconv.FormatFloat(100*e[c], 'g', 3, 64)+"%")
+		}
+	}
+	return strings.Join(parts, ", ")
+}
+
+// ParseEfficiency reads the efficiency setting: comma-separated pairs of a
+// class (conv, grouped, matrix, memory) and a share above 0 and at most
+// 100% ("conv 42%, memory 0.61"); empty text sets none.
+func ParseEfficiency(text string) (Efficiency, error) {
+	var e Efficiency
+	for _, part := range strings.Split(text, ",") {
+		f := strings.Fields(part)
+		if len(f) == 0 {
+			continue
+		}
+		c := slices.Index(classKeys[:], strings.ToLower(f[0]))
+		if c < int(ClassConv) || len(f) != 2 {
+			return Efficiency{}, fmt.Errorf("give pairs of a class (conv, grouped, matrix, memory) and a share, e.g. conv 42%%, memory 61%%")
+		}
+		t := f[1]
+		pct := strings.HasSuffix(t, "%")
+		v, err := strconv.ParseFloat(strings.TrimSuffix(t, "%"), 64)
+		if pct {
+			v /= 100
+		}
+		if err != nil || math.IsNaN(v) || v <= 0 || v > MaxEfficiency {
+			return Efficiency{}, fmt.Errorf("%s %s: give a share above 0%% and at most 100%%", f[0], t)
+		}
+		e[c] = v
+	}
+	return e, nil
+}
+
+// Achieved returns the efficiency a measurement shows: the time the
+// roofline gives the work at the device's full peak (FLOPs at the class's
+// peak for precision p, bytes at the bandwidth) over the seconds it took,
+// so that the estimate with this efficiency gives back the measured time.
+// 0 when there is nothing to divide.
+func Achieved(d Device, c OpClass, p Precision, flops, bytes, seconds float64) float64 {
+	peak := d.Peak(c, p)
+	if c == ClassNone || peak <= 0 || d.Bandwidth <= 0 || !(seconds > 0) {
+		return 0
+	}
+	return max(flops/peak, bytes/d.Bandwidth) / seconds
+}
+
+// Probe is one micro-benchmark a calibration runs: a row of the stack
+// standing for a class of operation (the dense convolution and the
+// grouped one with the most FLOPs, the dense layer with the most, and an
+// element-wise operation on the largest activation), with the roofline's
+// work for it per sample over the forward and backward passes.
+type Probe struct {
+	Class  OpClass
+	Row    int     // index in Result.Rows
+	FLOPs  float64 // per sample, forward and backward
+	Elems  float64 // activation elements read and written per sample, both passes
+	Params int64   // weights read (forward and backward) and gradient written
+}
+
+// Probes returns the stack's micro-benchmarks, at most one per class, in
+// class order. The element-wise one is the work of one ReLU-like pass
+// over the largest output (elementWork with a gradient).
+func (r *Result) Probes() []Probe {
+	var best [classCount]Probe
+	for c := range best {
+		best[c].Row = -1
+	}
+	for i := range r.Rows {
+		row := &r.Rows[i]
+		if row.Status != StatusOK {
+			continue
+		}
+		w := rowWork(row)
+		switch w.Class {
+		case ClassConv, ClassGrouped, ClassMatrix:
+			if row.Layer.Kind != KindConv && row.Layer.Kind != KindDense {
+				continue // the probes build convolutions and dense layers only
+			}
+			if f := w.FwdFLOPs + w.BwdFLOPs; best[w.Class].Row < 0 || f > best[w.Class].FLOPs {
+				best[w.Class] = Probe{Class: w.Class, Row: i, FLOPs: f,
+					Elems: w.FwdRead + w.FwdWrite + w.BwdRead + w.BwdWrite, Params: row.Params}
+			}
+		}
+		if e := elems(row.Out); e > 0 && (best[ClassMemory].Row < 0 || e > best[ClassMemory].Elems/5) {
+			// one FLOP per element each way; forward reads and writes
+			// it, backward reads the gradient and the input and writes one
+			best[ClassMemory] = Probe{Class: ClassMemory, Row: i, FLOPs: 2 * e, Elems: 5 * e}
+		}
+	}
+	var out []Probe
+	for _, p := range best {
+		if p.Row >= 0 && p.Class != ClassNone {
+			out = append(out, p)
+		}
+	}
+	return out
+}
+
+// ProbeBytes returns the bytes per activation element and per parameter
+// (the forward's weight read and the backward's weight read and gradient
+// write together) that the roofline counts at precision p, so that a
+// probe moves n·act·Elems + weight·Params bytes at micro-batch n.
+func ProbeBytes(p Precision) (act, weight float64) {
+	wf, wb := weightBytes(p)
+	return float64(ActivationBytes(p)), wf + wb
 }

@@ -249,3 +249,27 @@ func contains(s, sub string) bool {
 	}
 	return false
 }
+
+// TestEfficiencySetting: the efficiency setting reads and writes classes
+// and shares, refuses shares outside (0, 100%] and unknown classes, and
+// the estimate takes a set class in place of its default. Source: the
+// setting's syntax (FormatEfficiency) and the roofline: halving the
+// efficiency of the only class at work doubles its time.
+func TestEfficiencySetting(t *testing.T) {
+	e, err := engine.ParseEfficiency("conv 42%, memory 0.061")
+	if err != nil || engine.FormatEfficiency(e) != "conv 42%, memory 6.1%" {
+		t.Errorf("parse: %v %q", err, engine.FormatEfficiency(e))
+	}
+	for _, bad := range []string{"conv 0%", "conv 101%", "cpu 5%", "conv", "conv x"} {
+		if _, err := engine.ParseEfficiency(bad); err == nil {
+			t.Errorf("%q accepted", bad)
+		}
+	}
+	tr := engine.Training{Efficiency: e}
+	if got := tr.Efficiencies(); got[engine.ClassConv] != 0.42 || got[engine.ClassMatrix] != engine.DefaultEfficiency()[engine.ClassMatrix] {
+		t.Errorf("efficiencies %v", got)
+	}
+	if got := engine.Achieved(engine.CPUDevice, engine.ClassConv, engine.FP32, 1e12, 0, 4); got != 0.25 {
+		t.Errorf("1e12 FLOPs in 4 s at 1 TFLOP/s: %g, want 0.25", got)
+	}
+}

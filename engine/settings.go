@@ -28,6 +28,7 @@ const (
 	SettingShare                     // a share such as 10% or 0.1
 	SettingFlag                      // yes or no (a stage setting)
 	SettingReal                      // a real number between bounds (a stage setting)
+	SettingText                      // text with its own syntax (the efficiencies)
 )
 
 // Setting describes one training setting: its key, what it means, the
@@ -47,6 +48,7 @@ type Setting struct {
 	getOption func(Training) int                // a choice's option index
 	setOption func(*Training, int)              // stores a choice's option index
 	share     func(*Training) (*float64, *bool) // a share's field and its set flag
+	text      func(*Training) *Efficiency       // a text setting's field (the efficiencies)
 }
 
 // Settings returns the training settings in their canonical order (the
@@ -95,6 +97,9 @@ func Settings() []Setting {
 		gpuSetting(),
 		count("dataset", "training samples per epoch, for the epoch-time estimate (0: none)", 0, MaxDataset, "1281167",
 			func(t *Training) *int64 { return &t.Dataset }),
+		{Key: "efficiency", Help: "measured share of the device's peak per class of operation (stackfit calibrate writes it; a class left out: the assumed default)",
+			Kind: SettingText, Example: "conv 42%, grouped 9.5%, matrix 55%, memory 61%",
+			text: func(t *Training) *Efficiency { return &t.Efficiency }},
 	}
 }
 
@@ -129,6 +134,8 @@ func (s Setting) IsDefault(t Training) bool {
 	case s.share != nil:
 		_, set := s.share(&t)
 		return !*set
+	case s.text != nil:
+		return *s.text(&t) == Efficiency{}
 	}
 	return true
 }
@@ -157,6 +164,8 @@ func (s Setting) Format(t Training) string {
 			return s.Default
 		}
 		return FormatShare(*v)
+	case s.text != nil:
+		return FormatEfficiency(*s.text(&t))
 	}
 	return ""
 }
@@ -197,6 +206,15 @@ func (s Setting) Parse(t *Training, text string) error {
 			return &FieldError{s.Key, text, "give a share from 0% to 90%, e.g. 10%"}
 		}
 		err = s.SetShare(&u, v)
+	case SettingText:
+		var e Efficiency
+		if s.text == nil {
+			return &FieldError{s.Key, text, "this setting takes no value"}
+		}
+		if e, err = ParseEfficiency(text); err != nil {
+			return &FieldError{s.Key, text, err.Error()}
+		}
+		*s.text(&u) = e
 	default:
 		err = &FieldError{s.Key, text, "this setting takes no value"}
 	}
@@ -255,6 +273,8 @@ func (s Setting) wants() string {
 		return "a size such as 24GiB"
 	case SettingShare:
 		return "a share from 0% to 90%, e.g. 10%"
+	case SettingText:
+		return "shares per class, e.g. " + s.Example
 	}
 	return "no value"
 }
@@ -280,8 +300,8 @@ func orList(xs []string) string {
 // (Devices). It sets the device of the time estimate and, when no budget
 // is set, the budget (Training.WithDevice).
 func gpuSetting() Setting {
-	options := append([]string{"none"}, DeviceKeys()...)
-	return Setting{Key: "gpu", Help: "GPU model: the device for the time estimate and, without a budget, the budget (e.g. a100-80gb, h100-sxm, l4, rtx-4090)",
+	options := append(append([]string{"none"}, DeviceKeys()...), CPUDevice.Key)
+	return Setting{Key: "gpu", Help: "GPU model: the device for the time estimate and, without a budget, the budget (e.g. a100-80gb, h100-sxm, l4, rtx-4090; cpu: the processor, calibrate it)",
 		Kind: SettingChoice, Options: options, Default: options[0], Example: "h100-sxm",
 		getOption: func(t Training) int { return t.GPU }, setOption: func(t *Training, i int) { t.GPU = i }}
 }

@@ -73,7 +73,7 @@ func TestSettingsRoundTrip(t *testing.T) {
 			t.Errorf("%s: default %q is not the first option of %v", s.Key, s.Default, s.Options)
 		}
 	}
-	if strings.Join(SettingKeys(), " ") != "batch precision optimizer budget gpus shard accumulate checkpoint workspace overhead headroom gpu dataset" {
+	if strings.Join(SettingKeys(), " ") != "batch precision optimizer budget gpus shard accumulate checkpoint workspace overhead headroom gpu dataset efficiency" {
 		t.Errorf("keys %v", SettingKeys())
 	}
 	if _, ok := SettingFor("lr"); ok {

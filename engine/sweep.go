@@ -115,6 +115,12 @@ type SweepRow struct {
 	// Frontier: no other estimated variant of the sweep needs at most the
 	// MACs and at most the peak, and less of one of them (Pareto).
 	Frontier bool
+	// Step is the estimated seconds of one training step at Batch on the
+	// training's device (Result.Time's Step), and SamplesPerSecond
+	// Batch / Step; both 0 when the training names no device (Timed false)
+	// or the variant has no estimate.
+	Step, SamplesPerSecond float64
+	Timed                  bool
 }
 
 // SweepStats counts a sweep's work.
@@ -129,6 +135,11 @@ type SweepStats struct {
 // a sweep keeps between its two passes; a grid with more width × depth ×
 // resolution variants evaluates each twice instead.
 const SweepProfileCache = 1 << 15
+
+// sweepTimeCache bounds the step times a sweep with a device keeps with
+// its profiles (one per batch and precision of each kept variant); a
+// larger grid evaluates each variant twice instead.
+const sweepTimeCache = 1 << 22
 
 // Sweep evaluates every variant of s in the grid under t (its batch and
 // precision replaced by the grid's) and calls yield with each row in grid
@@ -146,7 +157,9 @@ const SweepProfileCache = 1 << 15
 // precision is derived from it in closed form: memory is affine in the
 // micro-batch, total = fixed + micro·per-sample, so the largest micro-batch
 // is ⌊(budget − headroom − fixed) / per-sample⌋, as SolveCapacity solves
-// it. workers goroutines share the evaluations (at least 1). ctx is
+// it. With a device (Training.Device), each variant's step time comes
+// from the same evaluation: per precision a StepCurve (the roofline sum in
+// closed form over the micro-batch) gives every batch's step time. workers goroutines share the evaluations (at least 1). ctx is
 // checked between windows; yield's error stops the sweep and is returned.
 func Sweep(ctx context.Context, s *Stack, t Training, a Assumptions, g Grid, workers int, yield func(*SweepRow) error) (SweepStats, error) {
 	var st SweepStats
@@ -158,9 +171,11 @@ func Sweep(ctx context.Context, s *Stack, t Training, a Assumptions, g Grid, wor
 		return st, fmt.Errorf("%w: the grid has too many variants to count", ErrTransform)
 	}
 	sw := &sweeper{s: s, t: t, a: a, g: g, workers: max(workers, 1)}
+	sw.dev, sw.timed = t.Device()
 	sw.nShapes = int64(len(g.Widths)) * int64(len(g.Depths)) * int64(len(g.Resolutions))
 	st.Shapes = sw.nShapes
-	keep := sw.nShapes <= SweepProfileCache
+	keep := sw.nShapes <= SweepProfileCache &&
+		(!sw.timed || sw.nShapes*int64(len(g.Batches)*len(g.Precisions)) <= sweepTimeCache)
 	var cache []sweepProfile
 	if keep {
 		cache = make([]sweepProfile, sw.nShapes)
@@ -170,6 +185,7 @@ func Sweep(ctx context.Context, s *Stack, t Training, a Assumptions, g Grid, wor
 	err := sw.profiles(ctx, func(i int64, p *sweepProfile) error {
 		if keep {
 			cache[i] = *p
+			cache[i].times = slices.Clone(p.times) // p's storage is reused
 		}
 		sw.expand(p, &row, func(r *SweepRow) error {
 			if r.Estimated {
@@ -218,6 +234,7 @@ type sweepProfile struct {
 	problem           string
 	estimated         bool
 	prec              [MaxGridPrecisions]precProfile
+	times             []float64 // step seconds per precision and batch (batch fastest); nil without a device
 }
 
 // precProfile is the memory of a variant at one precision, per the
@@ -240,6 +257,8 @@ type sweeper struct {
 	workers int
 	nShapes int64
 	ws      []sweepWorker
+	dev     Device // the device of the time estimate, when timed
+	timed   bool
 }
 
 // sweepWorker is one worker's reusable storage: the evaluation, the
@@ -254,6 +273,7 @@ type sweepWorker struct {
 	depthS   *Stack
 	depthErr error
 	view     Stack
+	curve    StepCurve
 }
 
 // precisionKind groups precisions whose activation profiles are equal:
@@ -326,7 +346,8 @@ func (w *sweepWorker) profile(sw *sweeper, i int64, p *sweepProfile) {
 	ri := i % nr
 	di := (i / nr) % nd
 	wi := i / (nr * nd)
-	*p = sweepProfile{idx: i, width: g.Widths[wi], depth: g.Depths[di], res: g.Resolutions[ri]}
+	times := p.times[:0]
+	*p = sweepProfile{idx: i, width: g.Widths[wi], depth: g.Depths[di], res: g.Resolutions[ri], times: times}
 	if w.widthS == nil || w.lastW != p.width {
 		w.lastW, w.lastD, w.depthS = p.width, math.NaN(), nil
 		w.widthS, w.widthErr = sw.s, nil
@@ -393,6 +414,12 @@ func (w *sweepWorker) profile(sw *sweeper, i int64, p *sweepProfile) {
 		pp.infFixed = m.Inference - pp.liveE
 		pp.reserve = m.Reserve
 		pp.ov = ov || m.Total == math.MaxInt64 || pp.fixed < 0 || !m.Estimated
+		if sw.timed {
+			w.curve.Build(r, one, sw.dev, sw.t.Efficiencies())
+			for _, b := range g.Batches {
+				p.times = append(p.times, w.curve.Step(b))
+			}
+		}
 	}
 }
 
@@ -424,6 +451,13 @@ func (sw *sweeper) expand(p *sweepProfile, row *SweepRow, yield func(*SweepRow) 
 					total = math.MaxInt64
 				}
 				row.Peak = total
+				if sw.timed {
+					row.Timed = true
+					row.Step = p.times[j*int(nb)+bi]
+					if row.Step > 0 {
+						row.SamplesPerSecond = float64(b) / row.Step
+					}
+				}
 				usable := t.Budget - pp.reserve
 				row.Fits = t.Budget == 0 || (!ov && total <= usable)
 				if t.Budget > 0 && !ov && pp.per > 0 && usable-pp.fixed >= pp.per && !stOv {

@@ -3,6 +3,7 @@ package engine_test
 import (
 	"context"
 	"errors"
+	"math"
 	"math/rand/v2"
 	"runtime"
 	"testing"
@@ -248,4 +249,90 @@ func BenchmarkSweepResNet50Shapes(b *testing.B) {
 		n += st.Variants
 	}
 	b.ReportMetric(float64(n)/b.Elapsed().Seconds(), "variants/s")
+}
+
+// closeTo reports whether a and b agree to a relative 1e-9 (the closed
+// form sums in another order than Time does).
+func closeTo(a, b float64) bool {
+	return math.Abs(a-b) <= 1e-9*math.Max(math.Abs(a), math.Abs(b))
+}
+
+// TestSweepTimeMatchesRoofline checks, on random grids with a device, a
+// few random rows of each sweep against the roofline estimate the report
+// takes: Scale the stack, Evaluate it and ask Result.Time at the row's
+// batch and precision. The sweep's closed form over the batch must give
+// the same step time and samples per second.
+func TestSweepTimeMatchesRoofline(t *testing.T) {
+	stacks := []*engine.Stack{
+		loadTestdata(t, "published/resnet18.yaml"),
+		loadTestdata(t, "published/mobilenet-v2.yaml"),
+		loadTestdata(t, "published/efficientnet-b0.yaml"),
+	}
+	devs := engine.Devices()
+	rng := rand.New(rand.NewPCG(5, 6))
+	checked := 0
+	for _, s := range stacks {
+		for range 3 {
+			g, tr := randomGrid(rng)
+			tr.GPU = 1 + rng.IntN(len(devs))
+			if rng.IntN(2) == 0 {
+				tr.Efficiency[engine.ClassConv] = 0.2 + 0.6*rng.Float64() // a calibrated share
+			}
+			rows := sweepAll(t, s, tr, g, 2)
+			for range 6 {
+				row := rows[rng.IntN(len(rows))]
+				if !row.Timed {
+					t.Fatalf("%+v: a sweep with a device has no time", row)
+				}
+				v, err := engine.Scale(s, engine.Scaling{Width: row.Width, Depth: row.Depth, Resolution: row.Resolution, Divisor: g.Divisor})
+				if err != nil || !row.Estimated {
+					continue
+				}
+				r := engine.Evaluate(v)
+				tb := tr
+				tb.Batch, tb.Precision = row.Batch, row.Precision
+				var tm engine.Time
+				r.Time(tb, devs[tr.GPU-1], tb.Efficiencies(), &tm)
+				if !tm.Estimated || !closeTo(row.Step, tm.Step) || !closeTo(row.SamplesPerSecond, tm.SamplesPerSecond) {
+					t.Fatalf("%+v on %s: roofline step %g s, %g samples/s", row, devs[tr.GPU-1].Key, tm.Step, tm.SamplesPerSecond)
+				}
+				checked++
+			}
+		}
+	}
+	if checked < 20 {
+		t.Errorf("only %d rows checked", checked)
+	}
+	// Without a device the rows carry no time.
+	g, tr := randomGrid(rng)
+	for _, row := range sweepAll(t, stacks[0], tr, g, 1) {
+		if row.Timed || row.Step != 0 {
+			t.Fatalf("%+v: time without a device", row)
+		}
+	}
+}
+
+// TestStepCurveMatchesTime checks the closed form against Result.Time
+// over batches from 1 to 2²⁰, where layers cross from memory- to
+// compute-bound, on every device and precision.
+func TestStepCurveMatchesTime(t *testing.T) {
+	s := loadTestdata(t, "published/mobilenet-v2.yaml")
+	r := engine.Evaluate(s)
+	var c engine.StepCurve
+	var tm engine.Time
+	for _, d := range engine.Devices() {
+		for _, p := range engine.Precisions() {
+			tr := engine.Training{Precision: p, GPUs: 4, Accumulate: 2, Shard: engine.ShardOptimizer}
+			if !c.Build(r, tr, d, engine.DefaultEfficiency()) {
+				t.Fatal("no curve")
+			}
+			for b := int64(1); b <= 1<<20; b = b*3 + 1 {
+				tr.Batch = b
+				r.Time(tr, d, engine.DefaultEfficiency(), &tm)
+				if got := c.Step(b); !closeTo(got, tm.Step) {
+					t.Fatalf("%s %s batch %d: curve %g s, Time %g s", d.Key, p, b, got, tm.Step)
+				}
+			}
+		}
+	}
 }

@@ -116,9 +116,14 @@ type Training struct {
 	// distinguishes an explicit 0 from the default.
 	Headroom    float64
 	HeadroomSet bool
-	// GPU is the device (1 + its index in Devices; 0: none), for the time
-	// estimate and, when no budget is set, the budget.
+	// GPU is the device (1 + its index in Devices, 1 + len(Devices) for
+	// CPUDevice; 0: none), for the time estimate and, when no budget is
+	// set, the budget.
 	GPU int
+	// Efficiency is, per class of operation, the share of the device's
+	// peak that a calibration measured (stackfit calibrate); 0 for a class
+	// means its default (DefaultEfficiency).
+	Efficiency Efficiency
 	// Dataset is the training samples per epoch (0: not given).
 	Dataset int64
 }
@@ -154,10 +159,25 @@ const MaxDataset = 1 << 40
 
 // Device returns the device t names; ok is false when none.
 func (t Training) Device() (d Device, ok bool) {
+	if t.GPU == len(devices)+1 {
+		return CPUDevice, true
+	}
 	if t.GPU <= 0 || t.GPU > len(devices) {
 		return Device{}, false
 	}
 	return devices[t.GPU-1], true
+}
+
+// Efficiencies returns the efficiencies the time estimate uses: the
+// calibrated ones t sets, the defaults for the rest.
+func (t Training) Efficiencies() Efficiency {
+	e := DefaultEfficiency()
+	for c, v := range t.Efficiency {
+		if v > 0 {
+			e[c] = v
+		}
+	}
+	return e
 }
 
 // WithDevice returns t with the budget set to the device's memory when t

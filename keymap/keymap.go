@@ -52,6 +52,9 @@ type KeyMap struct {
 	FoldAll, UnfoldAll, NextProblem, PrevProblem, DetailsDown, DetailsUp key.Binding
 	// The map of what fits: opening it, and moving across it.
 	MapView, Left, Right key.Binding
+	// ShareView switches the side column's share bar between activation
+	// memory and the estimated time (with a GPU model set).
+	ShareView key.Binding
 }
 
 // DefaultKeyMap returns the built-in bindings. Arrow keys and vim-style
@@ -113,9 +116,10 @@ func DefaultKeyMap() KeyMap {
 		DetailsDown: b("}", "scroll details down", "}"),
 		DetailsUp:   b("{", "scroll details up", "{"),
 
-		MapView: b("M", "what-fits map", "M"),
-		Left:    b("←/h", "left", "left", "h"),
-		Right:   b("→/l", "right", "right", "l"),
+		MapView:   b("M", "what-fits map", "M"),
+		ShareView: b("%", "share bar: memory/time", "%"),
+		Left:      b("←/h", "left", "left", "h"),
+		Right:     b("→/l", "right", "right", "l"),
 	}
 }
 
@@ -152,6 +156,7 @@ func (k *KeyMap) Actions() []Action {
 		{"next-problem", n, &k.NextProblem}, {"prev-problem", n, &k.PrevProblem},
 		{"details-down", n, &k.DetailsDown}, {"details-up", n, &k.DetailsUp},
 		{"left", []Mode{FitMap}, &k.Left}, {"right", []Mode{FitMap}, &k.Right},
+		{"share", n, &k.ShareView},
 	}
 }
 
@@ -167,7 +172,7 @@ func (k KeyMap) FullHelp() [][]key.Binding {
 		{k.Edit, k.Add, k.QuickAdd, k.Copy, k.Delete, k.MoveUp, k.MoveDown, k.Select, k.Wrap},
 		{k.Widen, k.Narrow, k.Width, k.Stage, k.UpStage, k.Undo, k.Redo, k.Baseline},
 		{k.Settings, k.ChartView, k.ShowHelp, k.Save, k.SaveAs, k.Open, k.Quit, k.ForceQuit},
-		{k.NextProblem, k.PrevProblem, k.DetailsDown, k.DetailsUp, k.MapView},
+		{k.NextProblem, k.PrevProblem, k.DetailsDown, k.DetailsUp, k.MapView, k.ShareView},
 	}
 }
 

@@ -43,7 +43,71 @@ func writeEstimate(w io.Writer, an *engine.Analysis) {
 		}
 		states = append(states, fmt.Sprintf("        %q: {%s},\n", p.String(), strings.Join(parts, ", ")))
 	}
-	fmt.Fprintf(w, "    \"per_sample\": {\n%s    },\n    \"model_state\": {\n%s    },\n}\n", strings.Join(perSample, ""), strings.Join(states, ""))
+	fmt.Fprintf(w, "    \"per_sample\": {\n%s    },\n    \"model_state\": {\n%s    },\n", strings.Join(perSample, ""), strings.Join(states, ""))
+	writeProbes(w, an)
+	fmt.Fprintf(w, "}\n")
+}
+
+// writeProbes writes the micro-benchmarks of the calibration (engine's
+// Result.Probes): per probe the layer to build and the roofline's work per
+// sample, and per precision the bytes per activation element and per
+// parameter, so that the module prints each probe's FLOPs and bytes beside
+// its measured time and stackfit calibrate divides (engine.Achieved). Then
+// the step-time estimate for the file's settings, when it names a device.
+func writeProbes(w io.Writer, an *engine.Analysis) {
+	fmt.Fprintf(w, "    \"probes\": [\n")
+	for _, p := range an.Result.Probes() {
+		row := &an.Result.Rows[p.Row]
+		l := row.Layer
+		in, out := row.In, row.Out
+		var op string
+		switch {
+		case p.Class == engine.ClassMemory:
+			op = fmt.Sprintf("\"op\": \"relu\", \"shape\": [%d, %d, %d]", out.C, out.H, out.W)
+		case l.Kind == engine.KindDense:
+			// MACs per sample = positions · in features · out features.
+			pos := max(out.H*out.W, 1)
+			inF := row.MACs / max(pos*out.C, 1)
+			op = fmt.Sprintf("\"op\": \"dense\", \"positions\": %d, \"in\": %d, \"out\": %d, \"bias\": %s", pos, inF, out.C, pyBool(!l.NoBias))
+		default:
+			g := max(l.Groups, 1)
+			if l.Depthwise {
+				g = in.C
+			}
+			before, _ := l.ResolvedPadding(in)
+			s, d := l.EffectiveStride(), l.EffectiveDilation()
+			if row.Unstrided {
+				s = engine.Square(1)
+			}
+			op = fmt.Sprintf("\"op\": \"conv\", \"shape\": [%d, %d, %d], \"out\": %d, \"kernel\": [%d, %d], \"stride\": [%d, %d], \"pad\": [%d, %d], \"dilation\": [%d, %d], \"groups\": %d, \"bias\": %s",
+				in.C, in.H, in.W, out.C, l.Kernel.H, l.Kernel.W, s.H, s.W, before.H, before.W, d.H, d.W, g, pyBool(!l.NoBias))
+		}
+		fmt.Fprintf(w, "        {\"class\": %q, %s, \"grad\": %s, \"flops\": %g, \"elems\": %g, \"params\": %d},\n",
+			engine.ClassKey(p.Class), op, pyBool(row.Grad || p.Class == engine.ClassMemory), p.FLOPs, p.Elems, p.Params)
+	}
+	fmt.Fprintf(w, "    ],\n    \"probe_bytes\": {")
+	for i, p := range engine.Precisions() {
+		act, wt := engine.ProbeBytes(p)
+		if i > 0 {
+			fmt.Fprintf(w, ", ")
+		}
+		fmt.Fprintf(w, "%q: (%g, %g)", p.String(), act, wt)
+	}
+	fmt.Fprintf(w, "},\n")
+	if tm := an.Time; tm != nil && tm.Estimated {
+		fmt.Fprintf(w, "    \"step\": {\"device\": %q, \"batch\": %d, \"precision\": %q, \"seconds\": %g},\n",
+			tm.Device.Key, tm.MicroBatch, an.Training.Precision.String(), tm.Compute/float64(tm.Accumulate)+tm.Optimizer)
+	} else {
+		fmt.Fprintf(w, "    \"step\": None,\n")
+	}
+}
+
+// pyBool writes a Python boolean.
+func pyBool(b bool) string {
+	if b {
+		return "True"
+	}
+	return "False"
 }
 
 // measureTool is the module's measuring entry point, run as
@@ -56,7 +120,14 @@ func writeEstimate(w io.Writer, an *engine.Analysis) {
 // It trains a few steps on synthetic data (CUDA when present, the CPU
 // otherwise) and prints, per category, stackfit's estimate beside the
 // measured peak, then the workspace and overhead that make the estimate
-// match, in a line `stackfit calibrate` reads.
+// match, in a line `stackfit calibrate` reads. It then times a
+// micro-benchmark per class of operation (ESTIMATE["probes"]: layers of
+// the stack, forward and backward; least of 5 timings after 2 warm-ups,
+// CUDA events on a GPU, wall time on the CPU) and prints, per probe, the
+// roofline's FLOPs and bytes beside the seconds ("stackfit-probe:" lines,
+// from which calibrate derives the efficiencies), and the least time of a
+// few whole training steps beside stackfit's estimate ("stackfit-step:").
+// --parts limits it to some of memory, probes and step.
 const measureTool = `
 
 def _estimate(batch, precision, optimizer):
@@ -146,6 +217,105 @@ def measure(batch, precision, optimizer, steps=3, device=None):
     return {"device": "cpu", "allocated": before + peak, "reserved": before + peak, "beyond": 0}
 
 
+def _dtype_of(precision):
+    return {"fp16-mixed": torch.float16, "bf16-mixed": torch.bfloat16}.get(precision)
+
+
+def _timed(fn, device, warmup=2, repeats=5):
+    """The least of several timings of fn after warm-up calls: CUDA events
+    on a GPU, wall time on the CPU (both noisy; the least is the one least
+    disturbed)."""
+    import time
+    for _ in range(warmup):
+        fn()
+    best = float("inf")
+    for _ in range(repeats):
+        if device == "cuda":
+            start, end = torch.cuda.Event(enable_timing=True), torch.cuda.Event(enable_timing=True)
+            start.record()
+            fn()
+            end.record()
+            end.synchronize()
+            best = min(best, start.elapsed_time(end) / 1e3)
+        else:
+            t0 = time.perf_counter()
+            fn()
+            best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def _device_name(device):
+    return (torch.cuda.get_device_name() if device == "cuda" else "cpu").replace(" ", "_")
+
+
+def probes(batch, precision, device):
+    """Times each micro-benchmark of ESTIMATE["probes"] (a layer of the
+    stack per class of operation, forward and backward) and returns lines
+    for stackfit calibrate: the roofline's FLOPs and bytes for the probe
+    beside the measured seconds."""
+    dtype = _dtype_of(precision)
+    lines = []
+    for p in ESTIMATE["probes"]:
+        if p["op"] == "conv":
+            conv = nn.Conv2d  # the stack's layer, built alone
+            m = conv(p["shape"][0], p["out"], tuple(p["kernel"]), stride=tuple(p["stride"]), padding=tuple(p["pad"]),
+                     dilation=tuple(p["dilation"]), groups=p["groups"], bias=p["bias"])
+            x = torch.randn(batch, *p["shape"])
+        elif p["op"] == "dense":
+            m = nn.Linear(p["in"], p["out"], bias=p["bias"])
+            x = torch.randn(batch, p["positions"], p["in"])
+        else:
+            m = nn.ReLU()
+            x = torch.randn(batch, *p["shape"])
+        m = m.to(device)
+        x = x.to(device)
+        if precision == "bf16":
+            m, x = m.to(torch.bfloat16), x.to(torch.bfloat16)
+        x.requires_grad_(p["grad"])
+
+        def run():
+            m.zero_grad(set_to_none=True)
+            x.grad = None
+            if dtype is not None:
+                with torch.autocast(device_type=device, dtype=dtype):
+                    y = m(x)
+            else:
+                y = m(x)
+            y.backward(torch.ones_like(y))
+
+        seconds = _timed(run, device)
+        act, weight = ESTIMATE["probe_bytes"][precision]
+        flops, nbytes = batch * p["flops"], batch * act * p["elems"] + weight * p["params"]
+        lines.append("stackfit-probe: device=%s class=%s precision=%s batch=%d flops=%.6g bytes=%.6g seconds=%.6g"
+                     % (_device_name(device), p["class"], precision, batch, flops, nbytes, seconds))
+    return lines
+
+
+def step_time(batch, precision, optimizer, device, steps=3):
+    """The least time of a few whole training steps (forward, backward and
+    the optimizer step) on synthetic data, after a warm-up step."""
+    model = MODEL().to(device).train()
+    if precision == "bf16":
+        model = model.to(torch.bfloat16)
+    dtype = _dtype_of(precision)
+    opt = _optimizer(optimizer, model.parameters())
+    x = torch.randn(batch, *INPUT_SHAPE, device=device)
+    if precision == "bf16":
+        x = x.to(torch.bfloat16)
+
+    def step():
+        opt.zero_grad(set_to_none=True)
+        if dtype is not None:
+            with torch.autocast(device_type=device, dtype=dtype):
+                out = model(x)
+        else:
+            out = model(x)
+        out.float().sum().backward()
+        opt.step()
+
+    return _timed(step, device, warmup=1, repeats=steps)
+
+
 def main(argv=None):
     import argparse
     ap = argparse.ArgumentParser(description="Measure one GPU's training memory for this module and compare it with stackfit's estimate.")
@@ -154,12 +324,39 @@ def main(argv=None):
     ap.add_argument("--precision", default=ESTIMATE["precision"], choices=sorted(ESTIMATE["per_sample"]), help="default: the stack file's, %(default)s")
     ap.add_argument("--optimizer", default=ESTIMATE["optimizer"], choices=["sgd", "momentum", "adam", "adamw", "adagrad", "rmsprop"], help="default: the stack file's, %(default)s")
     ap.add_argument("--device", choices=["cuda", "cpu"], help="default: cuda when present")
+    ap.add_argument("--parts", default="memory,probes,step", help="what to measure, comma-separated: memory (the peak), probes (a micro-benchmark per class of operation, for the efficiencies), step (whole training steps' time); default: all")
     args = ap.parse_args(argv)
     if not args.measure:
         ap.print_help()
         return
+    parts = set(args.parts.split(","))
+    if not parts or parts - {"memory", "probes", "step"}:
+        raise SystemExit("--parts: give memory, probes and/or step, comma-separated")
+    device = args.device or ("cuda" if torch.cuda.is_available() else "cpu")
+    if args.precision.endswith("-master"):
+        raise SystemExit("precision %s: the master-copy scheme needs its own training loop; measure with --precision fp32, fp16-mixed, bf16-mixed or bf16" % args.precision)
+    if device == "cpu" and args.precision == "fp16-mixed":
+        raise SystemExit("fp16 autocast needs CUDA; on the CPU measure bf16-mixed")
+    if "memory" in parts:
+        _report_memory(args, device)
+    if "probes" in parts:
+        print("stackfit probes: %s, batch %d, %s (least of 5 timings after 2 warm-ups, forward and backward)" % (_device_name(device), args.batch, args.precision))
+        for line in probes(args.batch, args.precision, device):
+            print(line)
+    if "step" in parts:
+        seconds = step_time(args.batch, args.precision, args.optimizer, device)
+        est = ESTIMATE["step"]
+        if est and est["batch"] == args.batch and est["precision"] == args.precision:
+            note = "stackfit's estimate %.4g s on %s (an estimate: it assumes the efficiencies hold and no overhead)" % (est["seconds"], est["device"])
+        else:
+            note = "no estimate at these settings (stackfit estimates the file's batch and precision when it names a gpu)"
+        print("  %-12s %10.4g s measured (least of 3 after a warm-up) · %s" % ("step time", seconds, note))
+        print("stackfit-step: device=%s batch=%d precision=%s optimizer=%s seconds=%.6g" % (_device_name(device), args.batch, args.precision, args.optimizer, seconds))
+
+
+def _report_memory(args, device):
     est = _estimate(args.batch, args.precision, args.optimizer)
-    got = measure(args.batch, args.precision, args.optimizer, device=args.device)
+    got = measure(args.batch, args.precision, args.optimizer, device=device)
     print("stackfit measure: %s, batch %d, %s, %s" % (got["device"], args.batch, args.precision, args.optimizer))
     for name, value in est.items():
         print("  %-12s %12s  (estimate)" % (name, _mib(value)))

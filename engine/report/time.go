@@ -178,3 +178,6 @@ func clipText(s string, n int) string {
 	}
 	return string(r[:n-1]) + "…"
 }
+
+// Rate writes samples per second as the time section does.
+func Rate(v float64) string { return rate(v) }

@@ -456,6 +456,12 @@ func (d *decoder) training(n *yaml.Node) engine.Training {
 				}
 				err = s.SetShare(&t, h)
 			}
+		case engine.SettingText:
+			if sc := d.scalar(v, field, s.Help); sc != nil {
+				if perr := s.Parse(&t, sc.Value); perr != nil {
+					d.fail(sc, field, ErrRange, "%v", perr)
+				}
+			}
 		}
 		if err != nil { // the checks above are the setting's own, so this stays unreached
 			d.fail(v, field, ErrRange, "%v", err)

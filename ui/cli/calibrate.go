@@ -6,6 +6,7 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"math"
 	"strconv"
 	"strings"
 
@@ -19,6 +20,80 @@ import (
 type calibration struct {
 	device              string
 	workspace, overhead int64
+	memory              bool // the memory line was found
+	// From the "stackfit-probe:" lines: the device they ran on, the
+	// precision and the efficiency per class (engine.Achieved).
+	probeDevice string
+	precision   engine.Precision
+	eff         engine.Efficiency
+	capped      []string // classes whose efficiency came out above 100%
+}
+
+// probePrefix starts a micro-benchmark's line.
+const probePrefix = "stackfit-probe:"
+
+// readProbe reads one micro-benchmark line into c: device, class,
+// precision, flops, bytes and seconds.
+func readProbe(c *calibration, line, rest string) error {
+	kv := map[string]string{}
+	for _, f := range strings.Fields(rest) {
+		k, v, _ := strings.Cut(f, "=")
+		kv[k] = v
+	}
+	class, ok := engine.ClassByKey(kv["class"])
+	if !ok {
+		return fmt.Errorf("the probe line %q names no class (conv, grouped, matrix, memory)", textsafe.Line(line))
+	}
+	ps, _ := engine.SettingFor("precision")
+	i, err := engine.ParseChoice("precision", kv["precision"], ps.Options)
+	if err != nil {
+		return fmt.Errorf("the probe line %q: %v", textsafe.Line(line), err)
+	}
+	var num [3]float64
+	for j, k := range []string{"flops", "bytes", "seconds"} {
+		x, err := strconv.ParseFloat(kv[k], 64)
+		if err != nil || !(x >= 0) || math.IsInf(x, 0) {
+			return fmt.Errorf("the probe line's %s is %q; expected a number of 0 or more", k, kv[k])
+		}
+		num[j] = x
+	}
+	dev := kv["device"]
+	if dev == "" || c.probeDevice != "" && dev != c.probeDevice {
+		return fmt.Errorf("the probe lines name devices %q and %q; measure one device at a time", textsafe.Line(c.probeDevice), textsafe.Line(dev))
+	}
+	c.probeDevice = dev
+	c.precision = engine.Precision(i)
+	d, ok := probeDeviceOf(dev)
+	if !ok {
+		return fmt.Errorf("the probes ran on %s, which stackfit's device table lacks: an efficiency is a share of the device's peaks", textsafe.Line(strings.ReplaceAll(dev, "_", " ")))
+	}
+	e := engine.Achieved(d, class, c.precision, num[0], num[1], num[2])
+	if e <= 0 {
+		return fmt.Errorf("the probe line %q gives no efficiency (no work or no time)", textsafe.Line(line))
+	}
+	if e > engine.MaxEfficiency {
+		e = engine.MaxEfficiency
+		c.capped = append(c.capped, engine.ClassKey(class))
+	}
+	c.eff[class] = e
+	return nil
+}
+
+// gpuKey returns the device key the training settings name.
+func gpuKey(t engine.Training) string {
+	if d, ok := t.Device(); ok {
+		return d.Key
+	}
+	return "none"
+}
+
+// probeDeviceOf returns the device of a probe line: "cpu", or a GPU name
+// as torch reports it (spaces written as underscores).
+func probeDeviceOf(name string) (engine.Device, bool) {
+	if name == engine.CPUDevice.Key {
+		return engine.CPUDevice, true
+	}
+	return engine.DeviceFromName(strings.ReplaceAll(name, "_", " "))
 }
 
 // calibrationPrefix starts the line the measuring entry point prints.
@@ -37,6 +112,13 @@ func readCalibration(r io.Reader) (calibration, error) {
 	sc := bufio.NewScanner(io.LimitReader(r, maxMeasurement))
 	for sc.Scan() {
 		line := strings.TrimSpace(sc.Text())
+		if rest, ok := strings.CutPrefix(line, probePrefix); ok {
+			if err := readProbe(&c, line, rest); err != nil {
+				return c, err
+			}
+			found = true
+			continue
+		}
 		rest, ok := strings.CutPrefix(line, calibrationPrefix)
 		if !ok {
 			continue
@@ -65,13 +147,13 @@ func readCalibration(r io.Reader) (calibration, error) {
 		if seen != 3 {
 			return c, fmt.Errorf("the calibration line %q lacks device, workspace or overhead", textsafe.Line(line))
 		}
-		c, found = n, true
+		c.device, c.workspace, c.overhead, c.memory, found = n.device, n.workspace, n.overhead, true, true
 	}
 	if err := sc.Err(); err != nil {
 		return c, fmt.Errorf("read the measurement: %w", err)
 	}
 	if !found {
-		return c, fmt.Errorf("no %q line: give the output of python NET.py --measure (stackfit export writes NET.py)", calibrationPrefix)
+		return c, fmt.Errorf("no %q or %q line: give the output of python NET.py --measure (stackfit export writes NET.py)", calibrationPrefix, probePrefix)
 	}
 	return c, nil
 }
@@ -111,8 +193,8 @@ func runCalibrate(args []string, std IO) int {
 		fmt.Fprintf(std.Err, "stackfit calibrate: %s\n", textsafe.Text(err.Error()))
 		return ExitUsage
 	}
-	if c.device == "cpu" && !*cpu {
-		fmt.Fprintf(std.Err, "stackfit calibrate: the measurement ran on the CPU, whose figures say nothing of a GPU's workspace and CUDA overhead; measure on the training box, or pass --cpu to take it anyway\n")
+	if (c.memory && c.device == "cpu" || c.probeDevice == engine.CPUDevice.Key) && !*cpu {
+		fmt.Fprintf(std.Err, "stackfit calibrate: the measurement ran on the CPU, whose figures say nothing of a GPU's workspace, CUDA overhead or speed; measure on the training box, or pass --cpu to take it anyway (efficiencies measured on the CPU set the file's gpu to cpu)\n")
 		return ExitUsage
 	}
 	disk := store.Disk{}
@@ -121,11 +203,25 @@ func runCalibrate(args []string, std IO) int {
 		fmt.Fprintf(std.Err, "stackfit calibrate: %s\n", textsafe.Text(err.Error()))
 		return ExitUsage
 	}
-	// Rounded up to the precision a person reads (25.9MiB, not
-	// 27097776B), so the file stays readable and the estimate errs high.
-	c.workspace, c.overhead = engine.CeilBytes(c.workspace), engine.CeilBytes(c.overhead)
 	was := s.Training
-	s.Training.Workspace, s.Training.Overhead = c.workspace, c.overhead
+	if c.memory {
+		// Rounded up to the precision a person reads (25.9MiB, not
+		// 27097776B), so the file stays readable and the estimate errs high.
+		c.workspace, c.overhead = engine.CeilBytes(c.workspace), engine.CeilBytes(c.overhead)
+		s.Training.Workspace, s.Training.Overhead = c.workspace, c.overhead
+	}
+	if c.probeDevice != "" {
+		// The efficiencies are shares of this device's peaks: the file's
+		// device becomes the measured one, and classes not measured go
+		// back to the defaults (they were shares of another calibration).
+		d, _ := probeDeviceOf(c.probeDevice)
+		gs, _ := engine.SettingFor("gpu")
+		if err := gs.Parse(&s.Training, d.Key); err != nil {
+			fmt.Fprintf(std.Err, "stackfit calibrate: %s\n", textsafe.Text(err.Error()))
+			return ExitUsage
+		}
+		s.Training.Efficiency = c.eff
+	}
 	if _, note, err := disk.Save(file, s, data, store.SaveMode{}); err != nil {
 		fmt.Fprintf(std.Err, "stackfit calibrate: %s\n", textsafe.Text(err.Error()))
 		return ExitUsage
@@ -138,8 +234,17 @@ func runCalibrate(args []string, std IO) int {
 		}
 		return engine.FormatBytes(v)
 	}
-	fmt.Fprintf(std.Out, "%s: workspace %s (was %s), overhead %s (was %s), measured on %s\n", textsafe.Line(file),
-		engine.FormatBytes(c.workspace), show(was.Workspace, engine.DefaultWorkspace),
-		engine.FormatBytes(c.overhead), show(was.Overhead, engine.DefaultOverhead), textsafe.Line(strings.ReplaceAll(c.device, "_", " ")))
+	if c.memory {
+		fmt.Fprintf(std.Out, "%s: workspace %s (was %s), overhead %s (was %s), measured on %s\n", textsafe.Line(file),
+			engine.FormatBytes(c.workspace), show(was.Workspace, engine.DefaultWorkspace),
+			engine.FormatBytes(c.overhead), show(was.Overhead, engine.DefaultOverhead), textsafe.Line(strings.ReplaceAll(c.device, "_", " ")))
+	}
+	if c.probeDevice != "" {
+		fmt.Fprintf(std.Out, "%s: efficiency %s, gpu %s, measured at %s on %s (shares of the device's peaks; an estimate's inputs, not a promise)\n",
+			textsafe.Line(file), engine.FormatEfficiency(c.eff), gpuKey(s.Training), c.precision, textsafe.Line(strings.ReplaceAll(c.probeDevice, "_", " ")))
+		if len(c.capped) > 0 {
+			fmt.Fprintf(std.Err, "stackfit calibrate: %s came out above the device's peak and was capped at 100%%: the table's peaks may be wrong for this device\n", strings.Join(c.capped, ", "))
+		}
+	}
 	return ExitOK
 }

@@ -1,11 +1,13 @@
 package cli
 
 import (
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
 
+	"stackfit/engine"
 	"stackfit/ui/store"
 )
 
@@ -46,5 +48,43 @@ func TestCalibrateWritesReadableSizes(t *testing.T) {
 	}
 	if _, errs, code := run(t, "", "check", file); code != ExitOK {
 		t.Errorf("check after calibrate: exit %d: %s", code, errs)
+	}
+}
+
+// TestCalibrateWritesEfficiencies: probe lines give the efficiency per
+// class as the roofline's time at the device's peak over the measured
+// time, and calibrate writes them with the device into the training
+// section, from which the time estimate takes them. Source: the CPU
+// device's nominal peaks (1 TFLOP/s, 100 GB/s): 1e9 FLOPs in 0.1 s is
+// 1 ms at peak, 1%; 1e9 bytes in 0.2 s is 10 ms at peak, 5%.
+func TestCalibrateWritesEfficiencies(t *testing.T) {
+	file := filepath.Join(t.TempDir(), "cap.yaml")
+	if err := os.WriteFile(file, []byte(measureStack), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	meas := "stackfit-probe: device=cpu class=conv precision=fp32 batch=4 flops=1e9 bytes=1e6 seconds=0.1\n" +
+		"stackfit-probe: device=cpu class=memory precision=fp32 batch=4 flops=1e6 bytes=1e9 seconds=0.2\n"
+	if _, errs, code := run(t, meas, "calibrate", file); code != ExitUsage || !strings.Contains(errs, "--cpu") {
+		t.Errorf("a CPU measurement was taken without --cpu: exit %d, %s", code, errs)
+	}
+	out, errs, code := run(t, meas, "calibrate", file, "--cpu")
+	if code != ExitOK {
+		t.Fatalf("calibrate: exit %d: %s", code, errs)
+	}
+	if !strings.Contains(out, "efficiency conv 1%, memory 5%") || !strings.Contains(out, "gpu cpu") {
+		t.Errorf("calibrate says %q", out)
+	}
+	s, err := store.LoadFile(file)
+	if err != nil {
+		t.Fatal(err)
+	}
+	e := s.Training.Efficiencies()
+	if d, ok := s.Training.Device(); !ok || d.Key != "cpu" || math.Abs(e[1]-0.01) > 1e-12 || math.Abs(e[4]-0.05) > 1e-12 ||
+		e[2] != engine.DefaultEfficiency()[2] {
+		t.Errorf("loaded device %v, efficiencies %v", s.Training.GPU, e)
+	}
+	data, _ := os.ReadFile(file)
+	if !strings.Contains(string(data), "efficiency: conv 1%, memory 5%") {
+		t.Errorf("the file:\n%s", data)
 	}
 }

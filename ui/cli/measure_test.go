@@ -162,7 +162,10 @@ func TestReadCalibration(t *testing.T) {
 		in, err string
 	}{
 		{"x\nstackfit-calibration: device=NVIDIA_H100 workspace=100 overhead=200\n", ""},
-		{"nothing here\n", "no \"stackfit-calibration:\" line"},
+		{"nothing here\n", "no \"stackfit-calibration:\" or \"stackfit-probe:\" line"},
+		{"stackfit-probe: device=cpu class=conv precision=fp32 batch=1 flops=1e9 bytes=1e6 seconds=0.1\n", ""},
+		{"stackfit-probe: device=cpu class=bogus precision=fp32 flops=1 bytes=1 seconds=1\n", "names no class"},
+		{"stackfit-probe: device=Unknown_Card class=conv precision=fp32 flops=1 bytes=1 seconds=1\n", "table lacks"},
 		{"stackfit-calibration: device=cpu workspace=-1 overhead=2\n", "expected a byte count"},
 		{"stackfit-calibration: workspace=1\n", "lacks device"},
 	} {

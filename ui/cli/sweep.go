@@ -14,6 +14,7 @@ import (
 	"strings"
 
 	"stackfit/engine"
+	"stackfit/engine/report"
 	"stackfit/engine/textsafe"
 )
 
@@ -26,7 +27,11 @@ estimated step peak per GPU at the batch, the largest batch that fits the
 budget, whether the batch fits, and a mark on the variants of the frontier
 of compute against memory (no other variant needs at most the MACs and at
 most the peak, and less of one). Memory figures are estimates of the
-training-memory model (the report's), with its assumptions.
+training-memory model (the report's), with its assumptions. With a
+device (--gpu NAME), two more columns: the estimated time of one training
+step at the row's batch and the samples per second it gives (the report's
+roofline estimate: peaks and bandwidth from the datasheet, assumed
+efficiencies; an ESTIMATE, not a measurement).
 
 Each flag takes a list (a,b,c) or a range (from:to:step, both ends
 included when the steps reach them); a flag left out keeps the stack as
@@ -42,7 +47,8 @@ written (×1) or the training setting.
   --divisor N      round widths to multiples of N (default 8)
   --format F       text (default), csv or json
   --sort COLUMN    sort by width, depth, resolution, batch, precision,
-                   params, macs, peak or max-batch (ascending; --desc for
+                   params, macs, peak, max-batch or time (the step
+                   time; needs --gpu) (ascending; --desc for
                    descending). Sorting holds the rows in memory, so it
                    takes at most 250,000 rows; --top N keeps only the
                    first N and takes any number. Unsorted rows stream in
@@ -198,6 +204,15 @@ var sweepColumns = map[string]func(a, b *engine.SweepRow) int{
 	"macs":       func(a, b *engine.SweepRow) int { return cmpI(a.MACs, b.MACs) },
 	"peak":       func(a, b *engine.SweepRow) int { return cmpI(peakKey(a), peakKey(b)) },
 	"max-batch":  func(a, b *engine.SweepRow) int { return cmpI(a.MaxBatch, b.MaxBatch) },
+	"time":       func(a, b *engine.SweepRow) int { return cmpF(timeKey(a), timeKey(b)) },
+}
+
+// timeKey sorts variants without a time last.
+func timeKey(r *engine.SweepRow) float64 {
+	if !r.Estimated || !r.Timed || r.Step <= 0 {
+		return math.Inf(1)
+	}
+	return r.Step
 }
 
 // peakKey sorts variants without an estimate last.
@@ -281,7 +296,7 @@ func runSweep(args []string, std IO) int {
 	if err == nil && *sortBy != "" {
 		var ok bool
 		if cmp, ok = sweepColumns[strings.ToLower(*sortBy)]; !ok {
-			err = fmt.Errorf("--sort %q: give width, depth, resolution, batch, precision, params, macs, peak or max-batch", *sortBy)
+			err = fmt.Errorf("--sort %q: give width, depth, resolution, batch, precision, params, macs, peak, max-batch or time", *sortBy)
 		}
 	}
 	if err == nil && (*top < 0 || (*top > 0 && cmp == nil) || *top > sweepSortMax) {
@@ -309,6 +324,10 @@ func runSweep(args []string, std IO) int {
 	}
 	if err := g.Check(); err != nil {
 		return c.fail(err)
+	}
+	t = t.WithDevice() // the device sets the budget when none is given, as in the report
+	if _, dev := t.Device(); !dev && strings.EqualFold(*sortBy, "time") {
+		return c.fail(fmt.Errorf("--sort time sorts by the estimated step time: give a device too, e.g. --gpu h100-sxm"))
 	}
 	n, ov := g.Size(t)
 	if cmp != nil && *top == 0 && (ov || n > sweepSortMax) {
@@ -385,10 +404,14 @@ type sweepWriter struct {
 	t      engine.Training
 	n      int64
 	buf    []byte
+	dev    engine.Device // the device of the time columns, when timed
+	timed  bool
 }
 
 func newSweepWriter(w io.Writer, format string, s *engine.Stack, t engine.Training) *sweepWriter {
-	return &sweepWriter{w: w, format: format, s: s, t: t}
+	sw := &sweepWriter{w: w, format: format, s: s, t: t}
+	sw.dev, sw.timed = t.Device()
+	return sw
 }
 
 // assumption states what the memory figures rest on.
@@ -398,15 +421,27 @@ func (sw *sweepWriter) assumption() string {
 	if t.Budget > 0 {
 		b = fmt.Sprintf("budget %s per GPU less %g%% headroom", engine.FormatBytes(t.Budget), t.HeadroomShare()*100)
 	}
-	return fmt.Sprintf("memory is an estimate: %s optimizer, %d GPU(s), %s, %s", t.Optimizer, max(t.GPUs, 1), "sharding "+t.Shard.String(), b)
+	note := fmt.Sprintf("memory is an estimate: %s optimizer, %d GPU(s), %s, %s", t.Optimizer, max(t.GPUs, 1), "sharding "+t.Shard.String(), b)
+	if sw.timed {
+		note += fmt.Sprintf("; step time is an estimate on %s (roofline model)", sw.dev.Key)
+	}
+	return note
 }
 
 const sweepTextHead = "%-7s %-7s %-9s %-8s %-11s %14s %17s %11s %10s %-4s %s\n"
 
+// sweepTimeHead follows the text columns when a device is given: the
+// frontier mark, then the step time and samples per second.
+const sweepTimeHead = " %-1s %11s %11s\n"
+
 func (sw *sweepWriter) begin() error {
 	switch sw.format {
 	case "csv":
-		_, err := io.WriteString(sw.w, "width,depth,resolution,input,batch,precision,params,macs,peak_bytes,max_batch,fits,frontier,problem\n")
+		head := "width,depth,resolution,input,batch,precision,params,macs,peak_bytes,max_batch,fits,frontier,"
+		if sw.timed {
+			head += "step_seconds,samples_per_second,"
+		}
+		_, err := io.WriteString(sw.w, head+"problem\n")
 		return err
 	case "json":
 		name, _ := json.Marshal(sw.s.Name)
@@ -417,7 +452,11 @@ func (sw *sweepWriter) begin() error {
 	if _, err := fmt.Fprintf(sw.w, "sweep of %s — %s\n* on the frontier: no other variant needs at most its MACs and at most its peak, and less of one\n\n", textsafe.Line(sw.s.Name), sw.assumption()); err != nil {
 		return err
 	}
-	_, err := fmt.Fprintf(sw.w, sweepTextHead, "width", "depth", "input", "batch", "precision", "params", "MACs/sample", "peak (est)", "max batch", "fits", "")
+	head := fmt.Sprintf(sweepTextHead, "width", "depth", "input", "batch", "precision", "params", "MACs/sample", "peak (est)", "max batch", "fits", "")
+	if sw.timed {
+		head = strings.TrimSuffix(head, "\n") + fmt.Sprintf(sweepTimeHead, "", "step (est)", "samples/s")
+	}
+	_, err := io.WriteString(sw.w, head)
 	return err
 }
 
@@ -430,9 +469,17 @@ func (sw *sweepWriter) row(r *engine.SweepRow) error {
 	case "csv":
 		b = fmt.Appendf(b, "%s,%s,%s,%s,%d,%s,", f(r.Width), f(r.Depth), f(r.Resolution), in, r.Batch, r.Precision)
 		if r.Estimated {
-			b = fmt.Appendf(b, "%d,%d,%d,%s,%t,%t,\n", r.Params, r.MACs, r.Peak, sw.maxBatch(r, ""), r.Fits, r.Frontier)
+			b = fmt.Appendf(b, "%d,%d,%d,%s,%t,%t,", r.Params, r.MACs, r.Peak, sw.maxBatch(r, ""), r.Fits, r.Frontier)
+			if sw.timed {
+				b = fmt.Appendf(b, "%s,%s,", f(r.Step), f(r.SamplesPerSecond))
+			}
+			b = append(b, '\n')
 		} else {
-			b = fmt.Appendf(b, ",,,,,,%s\n", csvField(r.Problem))
+			b = append(b, ",,,,,,"...)
+			if sw.timed {
+				b = append(b, ",,"...)
+			}
+			b = fmt.Appendf(b, "%s\n", csvField(r.Problem))
 		}
 	case "json":
 		if sw.n > 1 {
@@ -441,7 +488,11 @@ func (sw *sweepWriter) row(r *engine.SweepRow) error {
 		b = fmt.Appendf(b, "\n{\"width\":%s,\"depth\":%s,\"resolution\":%s,\"input\":[%d,%d],\"batch\":%d,\"precision\":%q,",
 			f(r.Width), f(r.Depth), f(r.Resolution), r.Input.H, r.Input.W, r.Batch, r.Precision.String())
 		if r.Estimated {
-			b = fmt.Appendf(b, "\"params\":%d,\"macs\":%d,\"peak_bytes\":%d,\"max_batch\":%s,\"fits\":%t,\"frontier\":%t}", r.Params, r.MACs, r.Peak, sw.maxBatch(r, "null"), r.Fits, r.Frontier)
+			b = fmt.Appendf(b, "\"params\":%d,\"macs\":%d,\"peak_bytes\":%d,\"max_batch\":%s,\"fits\":%t,\"frontier\":%t", r.Params, r.MACs, r.Peak, sw.maxBatch(r, "null"), r.Fits, r.Frontier)
+			if sw.timed {
+				b = fmt.Appendf(b, ",\"step_seconds\":%s,\"samples_per_second\":%s", f(r.Step), f(r.SamplesPerSecond))
+			}
+			b = append(b, '}')
 		} else {
 			p, _ := json.Marshal(r.Problem)
 			b = fmt.Appendf(b, "\"problem\":%s}", p)
@@ -463,6 +514,9 @@ func (sw *sweepWriter) row(r *engine.SweepRow) error {
 		}
 		b = fmt.Appendf(b, sweepTextHead, f(r.Width), f(r.Depth), in, strconv.FormatInt(r.Batch, 10), r.Precision,
 			engine.GroupDigits(r.Params), engine.GroupDigits(r.MACs), engine.FormatBytes(r.Peak), mb, fits, mark)
+		if sw.timed {
+			b = append(b[:len(b)-1-len(mark)], fmt.Sprintf(sweepTimeHead, mark, report.Seconds(r.Step), report.Rate(r.SamplesPerSecond))...)
+		}
 	}
 	sw.buf = b
 	_, err := sw.w.Write(b)

@@ -3,6 +3,7 @@ package cli
 import (
 	"encoding/csv"
 	"encoding/json"
+	"math"
 	"strconv"
 	"strings"
 	"testing"
@@ -99,5 +100,49 @@ func TestSweepCommand(t *testing.T) {
 	out, _, _ = run(t, "", "sweep", "--help")
 	if !strings.Contains(out, "--width 0.5:2:0.25") || !strings.Contains(out, strconv.Itoa(250)) {
 		t.Errorf("help:\n%s", out)
+	}
+}
+
+// TestSweepTimeColumns checks the step-time columns a device adds: in
+// CSV and JSON, sorted by --sort time, in the text table's header, and
+// the refusal of --sort time without a device.
+func TestSweepTimeColumns(t *testing.T) {
+	args := []string{"sweep", r18File, "--width", "0.5,1", "--batch", "16,256", "--precision", "fp32,bf16-mixed", "--gpu", "a100-80gb"}
+	out, errs, code := run(t, "", append(args, "--format", "csv")...)
+	recs, err := csv.NewReader(strings.NewReader(out)).ReadAll()
+	if code != ExitOK || err != nil || len(recs) != 1+8 || recs[0][12] != "step_seconds" || recs[0][13] != "samples_per_second" {
+		t.Fatalf("exit %d, %v: %s%s", code, err, out, errs)
+	}
+	for _, r := range recs[1:] {
+		step, err1 := strconv.ParseFloat(r[12], 64)
+		rate, err2 := strconv.ParseFloat(r[13], 64)
+		batch, _ := strconv.ParseFloat(r[4], 64)
+		if err1 != nil || err2 != nil || step <= 0 || math.Abs(rate*step-batch) > 1e-6*batch || r[9] == "" {
+			t.Fatalf("row %v: step, samples/s and largest batch (the device's memory is the budget)", r)
+		}
+	}
+	out, errs, code = run(t, "", append(args, "--format", "json", "--sort", "time", "--desc")...)
+	var doc struct {
+		Rows []struct {
+			Step *float64 `json:"step_seconds"`
+		} `json:"rows"`
+	}
+	if code != ExitOK || json.Unmarshal([]byte(out), &doc) != nil || len(doc.Rows) != 8 {
+		t.Fatalf("exit %d: %s%s", code, out, errs)
+	}
+	for i, r := range doc.Rows {
+		if r.Step == nil || (i > 0 && *r.Step > *doc.Rows[i-1].Step) {
+			t.Fatalf("row %d: step %v, not descending", i, r.Step)
+		}
+	}
+	out, _, code = run(t, "", args...)
+	if code != ExitOK || !strings.Contains(out, "step (est)") || !strings.Contains(out, "step time is an estimate on a100-80gb") {
+		t.Errorf("text table:\n%s", out)
+	}
+	if out, _, _ := run(t, "", "sweep", r18File, "--format", "csv"); strings.Contains(out, "step_seconds") {
+		t.Errorf("time columns without a device:\n%s", out)
+	}
+	if _, errs, code := run(t, "", "sweep", r18File, "--sort", "time"); code != ExitUsage || !strings.Contains(errs, "--gpu") {
+		t.Errorf("--sort time without a device: exit %d, %s", code, errs)
 	}
 }

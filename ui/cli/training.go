@@ -59,6 +59,8 @@ func placeholder(k engine.SettingKind) string {
 		return "NAME"
 	case engine.SettingSize:
 		return "SIZE"
+	case engine.SettingText:
+		return "LIST"
 	}
 	return "SHARE"
 }

@@ -5,6 +5,7 @@ import (
 	"strings"
 
 	"stackfit/engine"
+	"stackfit/engine/report"
 	"stackfit/engine/textsafe"
 	"stackfit/ui/editor/cells"
 )
@@ -49,12 +50,26 @@ func (fr *frame) footer(over []string) string {
 			bare = " / " + usable
 		}
 		total := engine.FormatBytes(mem.Total)
-		lines[0] = firstFit(fr.width,
+		memory := []string{
 			fmt.Sprintf("%smemory %s%s%s · %s", verdict, total, dmem, budget, sizes),
 			fmt.Sprintf("%smemory %s%s%s · %s", verdict, total, dmem, short, sizes),
 			fmt.Sprintf("%s%s%s%s · %s", verdict, total, dmem, short, sizes),
 			fmt.Sprintf("%s%s%s%s · %s", verdict, total, dmem, bare, sizes),
-			tightUnits(fmt.Sprintf("%s%s%s%s · %s", verdict, total, dmem, bare, sizes)))
+			tightUnits(fmt.Sprintf("%s%s%s%s · %s", verdict, total, dmem, bare, sizes))}
+		if times := timeTexts(fr.shownTime()); times != nil {
+			// The time goes beside the memory: the longest forms of both
+			// that fit, then the memory without the sizes (shown in the
+			// side column and the header) before the time gives way.
+			var vs []string
+			for _, tt := range times {
+				for _, mv := range memory {
+					vs = append(vs, mv+" · "+tt)
+				}
+			}
+			vs = append(vs, tightUnits(fmt.Sprintf("%s%s%s%s · %s", verdict, total, dmem, bare, times[len(times)-1])))
+			memory = append(vs, memory[len(memory)-1])
+		}
+		lines[0] = firstFit(fr.width, memory...)
 		lines[1] = fr.gauge(mem, fr.width)
 		lines[2] = fr.legend(mem)
 		lines[3] = fr.fitLine(mem, ft, max(t.Batch, 1))
@@ -66,6 +81,32 @@ func (fr *frame) footer(over []string) string {
 		b.WriteByte('\n')
 	}
 	return b.String()
+}
+
+// timeTexts gives the time estimate for the memory line, longest first:
+// the step, samples per second and the epoch (when the dataset is given);
+// "≈" marks each figure as an estimate. nil when there is none.
+func timeTexts(tm *engine.Time) []string {
+	if tm == nil || !tm.Estimated || tm.Step <= 0 {
+		return nil
+	}
+	step := report.Seconds(tm.Step)
+	rate := report.Rate(tm.SamplesPerSecond)
+	if tm.Epoch <= 0 {
+		return []string{
+			fmt.Sprintf("step ≈%s on %s · %s samples/s", step, tm.Device.Key, rate),
+			fmt.Sprintf("step ≈%s · %s samples/s", step, rate),
+			fmt.Sprintf("step ≈%s", step),
+			tightUnits(fmt.Sprintf("≈%s/step", step)),
+		}
+	}
+	epoch := report.Seconds(tm.Epoch)
+	return []string{
+		fmt.Sprintf("step ≈%s on %s · %s samples/s · epoch ≈%s", step, tm.Device.Key, rate, epoch),
+		fmt.Sprintf("step ≈%s · %s samples/s · epoch ≈%s", step, rate, epoch),
+		fmt.Sprintf("step ≈%s · epoch ≈%s", step, epoch),
+		tightUnits(fmt.Sprintf("≈%s/step · ≈%s/epoch", step, epoch)),
+	}
 }
 
 // gauge draws the memory categories against the budget (or the total when

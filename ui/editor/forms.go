@@ -13,6 +13,10 @@ func (m *Model) analyzeQuick(s *engine.Stack) *engine.Analysis {
 	an := &engine.Analysis{Stack: s, Training: s.Training, Assumptions: m.nums.assume, Result: engine.Evaluate(s)}
 	an.Result.Memory(s.Training, m.nums.assume, &an.Memory)
 	an.Fit = engine.SolveCapacity(an.Result, &an.Memory, s.Training)
+	if d, ok := s.Training.Device(); ok {
+		an.Time = new(engine.Time)
+		an.Result.Time(s.Training, d, s.Training.Efficiencies(), an.Time)
+	}
 	return an
 }
 

@@ -74,13 +74,18 @@ type drawing struct {
 	res      *engine.Result
 	mem      *engine.Memory
 	cumAct   []int64
+	cumTime  []float64 // layer seconds of rows 0..i, when the bar shows time
 	baseline *baseline
 	width    int
 }
 
 // drawing gathers what the stack view draws from.
 func (m *Model) drawing() drawing {
-	return drawing{st: m.st, res: &m.nums.res, mem: &m.nums.mem, cumAct: m.nums.cumAct, baseline: m.baseline, width: m.width}
+	d := drawing{st: m.st, res: &m.nums.res, mem: &m.nums.mem, cumAct: m.nums.cumAct, baseline: m.baseline, width: m.width}
+	if m.shareTime && m.nums.timed {
+		d.cumTime = m.nums.cumTime
+	}
+	return d
 }
 
 // header is the line above the stack view: the counts and the side
@@ -108,7 +113,11 @@ func (t *stackTree) header(d drawing, lay layout) string {
 		cols = append(cols, cells.Right("Σ act", colAct))
 	}
 	if lay.cols.bar {
-		cols = append(cols, cells.Fit("share", colBar))
+		name := "share"
+		if d.cumTime != nil {
+			name = "time"
+		}
+		cols = append(cols, cells.Fit(name, colBar))
 	}
 	if lay.cols.delta {
 		cols = append(cols, cells.Right("Δ params", colDelta))
@@ -259,11 +268,21 @@ func (d drawing) side(it *item, lay layout) string {
 		cols = append(cols, cells.Right(engine.FormatBytes(cum), colAct))
 	}
 	if lay.cols.bar {
-		var all int64
+		part, all := float64(act), 0.0
 		if n := len(d.cumAct); n > 0 {
-			all = d.cumAct[n-1]
+			all = float64(d.cumAct[n-1])
 		}
-		cols = append(cols, " "+bar(act, all, colBar-1))
+		if c := d.cumTime; c != nil {
+			part, all = 0, 0
+			if n := len(c); n > 0 && it.last < n {
+				all = c[n-1]
+				part = c[it.last]
+				if it.first > 0 {
+					part -= c[it.first-1]
+				}
+			}
+		}
+		cols = append(cols, " "+bar(part, all, colBar-1))
 	}
 	if lay.cols.delta {
 		delta := ""
@@ -305,7 +324,7 @@ func rfText(p engine.FPair, w int) string {
 }
 
 // bar draws part/whole as a bar of w cells with eighth-cell precision.
-func bar(part, whole int64, w int) string {
+func bar(part, whole float64, w int) string {
 	if whole <= 0 || part <= 0 {
 		return strings.Repeat(" ", w)
 	}

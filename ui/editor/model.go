@@ -129,6 +129,9 @@ type Model struct {
 	statusNew bool // set since the last key: a long message shows whole
 	quitting  bool
 	detail    detailScroll // the details panel's scroll
+	// shareTime: the side column's share bar shows each row's share of
+	// the estimated time instead of the activation memory (while timed).
+	shareTime bool
 }
 
 // fileState is where the stack lives: its file, what the editor last read
@@ -151,10 +154,15 @@ type fileState struct {
 
 // numbers are the current stack's figures, recomputed once per change.
 type numbers struct {
-	res        engine.Result
-	mem        engine.Memory
-	fit        engine.Fit
-	cumAct     []int64 // activation bytes of rows 0..i
+	res    engine.Result
+	mem    engine.Memory
+	fit    engine.Fit
+	cumAct []int64 // activation bytes of rows 0..i
+	// time is the training-time estimate when the training names a GPU
+	// model (timed), and cumTime the layer seconds of rows 0..i.
+	time       engine.Time
+	timed      bool
+	cumTime    []float64
 	assume     engine.Assumptions
 	widthGen   int        // generation of the background width search
 	widthState widthState // whether its answer is in
@@ -297,6 +305,17 @@ func (m *Model) recompute() {
 	for _, b := range m.nums.mem.Rows {
 		sum += b
 		m.nums.cumAct = append(m.nums.cumAct, sum)
+	}
+	m.nums.cumTime = m.nums.cumTime[:0]
+	m.nums.timed = false
+	if d, ok := m.stack.Training.Device(); ok {
+		m.nums.res.Time(m.stack.Training, d, m.stack.Training.Efficiencies(), &m.nums.time)
+		m.nums.timed = m.nums.time.Estimated
+		var sec float64
+		for _, l := range m.nums.time.Layers {
+			sec += l.Forward + l.Backward
+			m.nums.cumTime = append(m.nums.cumTime, sec)
+		}
 	}
 	m.tree.counts = counts{}
 	countItems(m.stack.Layers, &m.tree.counts)

@@ -29,7 +29,13 @@ func settingsSpecs() []settingSpec {
 			continue
 		}
 		help := s.Help
-		if s.Default == "" {
+		switch {
+		case s.Key == "gpu":
+			// The device names first, so a narrow form still shows some.
+			help = "GPU model for the time estimate: " + strings.Join(s.Options, ", ")
+		case s.Key == "dataset":
+			help = "samples per epoch, for epoch time (0: none)"
+		case s.Default == "":
 			help += " (empty: none)"
 		}
 		specs = append(specs, settingSpec{s.Key, help,

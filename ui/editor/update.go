@@ -1,6 +1,8 @@
 package editor
 
 import (
+	"fmt"
+
 	"github.com/charmbracelet/bubbles/key"
 	tea "github.com/charmbracelet/bubbletea"
 
@@ -152,6 +154,8 @@ func (m *Model) normal(msg tea.KeyMsg) tea.Cmd {
 		return m.openFitMap()
 	case key.Matches(msg, k.Baseline):
 		m.toggleBaseline()
+	case key.Matches(msg, k.ShareView):
+		m.toggleShare()
 	case key.Matches(msg, k.ShowHelp):
 		m.openHelp()
 	case key.Matches(msg, k.Save):
@@ -194,4 +198,20 @@ func kindName(it *item) string {
 		return it.gen.what
 	}
 	return "a " + it.layer.Kind.String()
+}
+
+// toggleShare switches the side column's share bar between activation
+// memory and the estimated time, and says which it shows.
+func (m *Model) toggleShare() {
+	if !m.nums.timed {
+		m.shareTime = false
+		m.setStatus("the time share needs a GPU model and a stack without errors: set gpu in the training setup ("+m.keys.Settings.Help().Key+")", statusError)
+		return
+	}
+	m.shareTime = !m.shareTime
+	if m.shareTime {
+		m.setStatus(fmt.Sprintf("share bar: each row's share of the estimated layer time on %s (%s: memory)", m.nums.time.Device.Key, m.keys.ShareView.Help().Key), statusInfo)
+		return
+	}
+	m.setStatus(fmt.Sprintf("share bar: each row's share of the kept activations (%s: time)", m.keys.ShareView.Help().Key), statusInfo)
 }

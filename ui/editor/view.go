@@ -57,7 +57,11 @@ func (m *Model) View() string {
 		b.WriteByte('\n')
 		b.WriteString(fr.detailView(lay))
 	}
-	b.WriteString(m.rule("memory per GPU — estimate"))
+	title := "memory per GPU — estimate"
+	if timeTexts(fr.shownTime()) != nil && !fr.previewBlocked {
+		title = "memory per GPU and step time — estimates"
+	}
+	b.WriteString(m.rule(title))
 	b.WriteByte('\n')
 	status := m.statusLines()
 	b.WriteString(fr.footer(status[:len(status)-1]))
@@ -111,13 +115,32 @@ type frame struct {
 	preview        *engine.Analysis // a form's or prompt's preview, or nil
 	previewBlocked bool
 	widthState     widthState
-	detailOff      int // lines the details panel is scrolled
+	detailOff      int          // lines the details panel is scrolled
+	time           *engine.Time // the stack's time estimate; nil without a GPU model
 }
 
 // frame gathers what the panels draw from.
 func (m *Model) frame() *frame {
 	return &frame{drawing: m.drawing(), keys: m.keys, stack: m.stack, fit: m.nums.fit, cur: m.tree.current(),
-		preview: m.preview, previewBlocked: m.previewBlocked, widthState: m.nums.widthState, detailOff: m.detailOffset()}
+		preview: m.preview, previewBlocked: m.previewBlocked, widthState: m.nums.widthState, detailOff: m.detailOffset(), time: m.timeShown()}
+}
+
+// timeShown is the stack's time estimate, nil when the training names no
+// GPU model.
+func (m *Model) timeShown() *engine.Time {
+	if _, ok := m.stack.Training.Device(); !ok {
+		return nil
+	}
+	return &m.nums.time
+}
+
+// shownTime is the time estimate to show beside the shown numbers: the
+// preview's while one is open; nil when there is none.
+func (fr *frame) shownTime() *engine.Time {
+	if fr.preview != nil {
+		return fr.preview.Time
+	}
+	return fr.time
 }
 
 // shown returns the numbers to show: the preview while a form or prompt
