@@ -82,7 +82,7 @@ func fitMapSide(width int) int {
 // openFitMap opens the map and starts computing it; it needs a budget and
 // a stack with an estimate.
 func (m *Model) openFitMap() tea.Cmd {
-	t := m.stack.Training
+	t := m.training()
 	switch {
 	case t.Budget <= 0:
 		m.setStatus("the map shows the largest batch that fits a budget: set one first ("+textsafe.Line(m.keys.Settings.Help().Key)+", budget)", statusError)

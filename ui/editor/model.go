@@ -292,13 +292,18 @@ func (m *Model) StatusLine() string { return m.status }
 
 func (m *Model) setStatus(s string, k statusKind) { m.status, m.statusK, m.statusNew = s, k, true }
 
+// training is the stack's training settings as the estimates read them:
+// a device (gpu) gives the budget when none is set, as in the reports.
+func (m *Model) training() engine.Training { return m.stack.Training.WithDevice() }
+
 // recompute re-evaluates the stack, its memory and the quick fit answers,
 // and rebuilds the visible items. It runs once per change, never in View.
 func (m *Model) recompute() {
+	t := m.training()
 	m.nums.res.Evaluate(m.stack)
-	m.nums.res.Memory(m.stack.Training, m.nums.assume, &m.nums.mem)
+	m.nums.res.Memory(t, m.nums.assume, &m.nums.mem)
 	w, lim, ok := m.nums.fit.MaxWidth, m.nums.fit.WidthLimit, m.nums.fit.WidthExact
-	m.nums.fit = engine.SolveCapacity(&m.nums.res, &m.nums.mem, m.stack.Training)
+	m.nums.fit = engine.SolveCapacity(&m.nums.res, &m.nums.mem, t)
 	m.nums.fit.MaxWidth, m.nums.fit.WidthLimit, m.nums.fit.WidthExact = w, lim, ok
 	m.nums.cumAct = m.nums.cumAct[:0]
 	var sum int64
@@ -308,8 +313,8 @@ func (m *Model) recompute() {
 	}
 	m.nums.cumTime = m.nums.cumTime[:0]
 	m.nums.timed = false
-	if d, ok := m.stack.Training.Device(); ok {
-		m.nums.res.Time(m.stack.Training, d, m.stack.Training.Efficiencies(), &m.nums.time)
+	if d, ok := t.Device(); ok {
+		m.nums.res.Time(t, d, t.Efficiencies(), &m.nums.time)
 		m.nums.timed = m.nums.time.Estimated
 		var sec float64
 		for _, l := range m.nums.time.Layers {
@@ -349,13 +354,13 @@ func (m *Model) widthCmd() tea.Cmd {
 	m.nums.widthGen++
 	gen := m.nums.widthGen
 	m.stopWidth()
-	if m.stack.Training.Budget <= 0 || !m.nums.mem.Estimated {
+	if m.training().Budget <= 0 || !m.nums.mem.Estimated {
 		m.nums.fit.MaxWidth, m.nums.fit.WidthLimit, m.nums.widthState = 0, "", widthNone
 		return nil
 	}
 	m.nums.widthState = widthSearching
 	s := m.stack // never edited in place (see change), so safe to share
-	t, a := m.stack.Training, m.nums.assume
+	t, a := m.training(), m.nums.assume
 	ctx, stop := context.WithCancel(context.Background())
 	m.nums.widthStop = stop
 	store := m.nums.widthStore

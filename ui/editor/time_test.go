@@ -145,3 +145,30 @@ func TestGoldenTime(t *testing.T) {
 	press(m, "%")
 	golden.RequireEqual(t, []byte(view(m)))
 }
+
+// TestDeviceSetsBudget: a stack that names a GPU and no budget is held to
+// the device's memory in the editor, as in the reports (the gpu setting's
+// promise): the footer's fit answers and the width search use it.
+func TestDeviceSetsBudget(t *testing.T) {
+	s := example(t)
+	s.Training.Budget = 0
+	s.Training.GPU = 0
+	plain := newModel(t, s.Clone(), 100, 30)
+	if plain.nums.mem.Budget != 0 || plain.nums.fit.HasBudget {
+		t.Fatalf("no device, no budget: budget %d", plain.nums.mem.Budget)
+	}
+	withGPU := s.Clone()
+	var d engine.Device
+	for i, dev := range engine.Devices() {
+		if dev.Key == "l4" {
+			d, withGPU.Training.GPU = dev, i+1
+		}
+	}
+	if d.Key == "" {
+		t.Fatal("no l4 in the device table")
+	}
+	m := newModel(t, withGPU, 100, 30)
+	if m.nums.mem.Budget != d.Memory || !m.nums.fit.HasBudget || m.widthCmd() == nil {
+		t.Errorf("with %s and no budget: budget %d, want %d; fit has budget %v", d.Key, m.nums.mem.Budget, d.Memory, m.nums.fit.HasBudget)
+	}
+}
