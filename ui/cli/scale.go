@@ -5,7 +5,6 @@ import (
 	"flag"
 	"fmt"
 	"math"
-	"os"
 	"strconv"
 	"strings"
 
@@ -205,11 +204,8 @@ func runScale(args []string, std IO) int {
 	if err != nil {
 		return c.fail(err)
 	}
-	if *out != "" {
-		if _, err := os.Lstat(*out); err == nil {
-			fmt.Fprintf(std.Err, "stackfit scale: -o %s exists; stackfit does not overwrite a file it has not read — choose another name\n", textsafe.Line(*out))
-			return ExitUsage
-		}
+	if outputTaken("scale", *out, std) {
+		return ExitUsage
 	}
 	s, err := load(c.file, std.In)
 	if err != nil {

@@ -308,11 +308,8 @@ func runSweep(args []string, std IO) int {
 	if err != nil {
 		return c.fail(err)
 	}
-	if *out != "" {
-		if _, err := os.Lstat(*out); err == nil {
-			fmt.Fprintf(std.Err, "stackfit sweep: -o %s exists; stackfit does not overwrite a file it has not read — choose another name\n", textsafe.Line(*out))
-			return ExitUsage
-		}
+	if outputTaken("sweep", *out, std) {
+		return ExitUsage
 	}
 	s, err := load(c.file, std.In)
 	if err != nil {
@@ -550,4 +547,18 @@ func csvField(s string) string {
 		return `"` + strings.ReplaceAll(s, `"`, `""`) + `"`
 	}
 	return s
+}
+
+// outputTaken reports, and says on standard error, that the file -o
+// names already exists: a command that writes a new file never writes
+// over one it has not read.
+func outputTaken(cmd, out string, std IO) bool {
+	if out == "" {
+		return false
+	}
+	if _, err := os.Lstat(out); err != nil {
+		return false
+	}
+	fmt.Fprintf(std.Err, "stackfit %s: -o %s exists; stackfit does not overwrite a file it has not read — choose another name\n", cmd, textsafe.Line(out))
+	return true
 }
