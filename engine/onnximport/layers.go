@@ -146,15 +146,8 @@ func (b *builder) layer(k int) (*item, string, error) {
 		if !b.chanLast || (axis != -1 && axis != 3) {
 			return stop("only a layer norm over the channels of a channels-last map (N×H×W×C, axis −1) is read")
 		}
-		l = engine.Layer{Kind: engine.KindNorm, Norm: engine.NormLayer, Eps: 1e-5}
-		if a := attr(n, "epsilon"); a != nil {
-			l.Eps = f32(a.GetF())
-		}
-		if !im.initial[in(1)] {
-			l.Affine = engine.Off
-		}
-		b.count(false, in(1), in(2))
-		b.sawNorm = true
+		l = engine.Layer{Kind: engine.KindNorm, Norm: engine.NormLayer}
+		b.affineNorm(n, &l, in(1), in(2))
 	case "GroupNormalization":
 		// A group norm the rewrites found (Reshape, instance norm,
 		// Reshape back, Mul γ, Add β); γ and β per channel.
@@ -162,15 +155,8 @@ func (b *builder) layer(k int) (*item, string, error) {
 		if g < 1 || g > 1<<31 {
 			return stop("%d groups", g)
 		}
-		l = engine.Layer{Kind: engine.KindNorm, Norm: engine.NormGroup, NormGroups: g, Eps: 1e-5}
-		if a := attr(n, "epsilon"); a != nil {
-			l.Eps = f32(a.GetF())
-		}
-		if !im.initial[in(1)] {
-			l.Affine = engine.Off
-		}
-		b.count(false, in(1), in(2))
-		b.sawNorm = true
+		l = engine.Layer{Kind: engine.KindNorm, Norm: engine.NormGroup, NormGroups: g}
+		b.affineNorm(n, &l, in(1), in(2))
 	case "ChannelShuffle":
 		// The channel shuffle the rewrites found.
 		g := attr(n, "groups").GetI()
@@ -365,4 +351,19 @@ func (b *builder) layer(k int) (*item, string, error) {
 		}
 	}
 	return &item{l: l.Normalized(), nodes: nodes}, next, nil
+}
+
+// affineNorm reads what a layer or group norm node shares: its eps
+// (1e-5, PyTorch's default, when absent), whether it has a scale and
+// shift (gamma, beta: weights of the graph, or none), and counts them.
+func (b *builder) affineNorm(n *onnxpb.Node, l *engine.Layer, gamma, beta string) {
+	l.Eps = 1e-5
+	if a := attr(n, "epsilon"); a != nil {
+		l.Eps = f32(a.GetF())
+	}
+	if !b.im.initial[gamma] {
+		l.Affine = engine.Off
+	}
+	b.count(false, gamma, beta)
+	b.sawNorm = true
 }
