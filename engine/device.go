@@ -156,7 +156,7 @@ func DeviceFromName(name string) (Device, bool) {
 // from memory), falling back to the fp32 rate where the device lacks the
 // format; memory-bound operations run on the CUDA cores at the fp32 rate.
 func (d Device) Peak(c OpClass, p Precision) float64 {
-	if c == ClassMemory {
+	if c == ClassMemory || c == ClassNorm {
 		return d.FP32
 	}
 	var v float64

@@ -317,8 +317,12 @@ func (c *calc) deconvAxis(ax byte, in, k, s, d int64, pad Padding, p, op int64) 
 // MAC forward, about twice that backward), as a grouped convolution when
 // the layer has groups (depthwise included), else a dense one.
 func convWork(row *Row) Work {
-	if row.Layer.Depthwise || row.Layer.Groups > 1 {
+	l := row.Layer
+	switch {
+	case l.Depthwise || l.Groups > 1:
 		return weightedWork(row, ClassGrouped)
+	case l.Kernel.H == 1 && l.Kernel.W == 1 && (row.Unstrided || l.EffectiveStride() == Square(1)):
+		return weightedWork(row, ClassPointwise)
 	}
 	return weightedWork(row, ClassConv)
 }

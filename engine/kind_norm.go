@@ -137,7 +137,7 @@ func (c *calc) norm() {
 // gradient) and writing the input's gradient.
 func normWork(row *Row) Work {
 	in := elems(row.In)
-	w := Work{Class: ClassMemory, FwdFLOPs: 7 * in, FwdRead: 2 * in, FwdWrite: in}
+	w := Work{Class: ClassNorm, FwdFLOPs: 7 * in, FwdRead: 2 * in, FwdWrite: in}
 	if row.Grad || row.Params > 0 {
 		w.BwdFLOPs, w.BwdRead, w.BwdWrite = 14*in, 3*in, in
 	}

@@ -15,15 +15,18 @@ type OpClass uint8
 
 // Operation classes.
 const (
-	ClassNone    OpClass = iota // no work (views, containers)
-	ClassConv                   // dense convolution
-	ClassGrouped                // depthwise or grouped convolution
-	ClassMatrix                 // matrix product (dense layers)
-	ClassMemory                 // element-wise, normalisation, pooling, the optimizer step
+	ClassNone      OpClass = iota // no work (views, containers)
+	ClassConv                     // dense convolution
+	ClassGrouped                  // depthwise or grouped convolution
+	ClassMatrix                   // matrix product (dense layers)
+	ClassMemory                   // element-wise, pooling, the optimizer step
+	ClassPointwise                // 1×1 convolution, stride 1, one group: a matrix product over positions
+	ClassNorm                     // normalisation: a reduction over the map, then an element-wise pass
 	classCount
 )
 
-var classNames = [...]string{"none", "convolution", "grouped convolution", "matrix product", "element-wise"}
+var classNames = [...]string{"none", "convolution", "grouped convolution", "matrix product", "element-wise",
+	"pointwise convolution", "normalisation"}
 
 // String names the class.
 func (c OpClass) String() string {
@@ -33,18 +36,34 @@ func (c OpClass) String() string {
 	return "invalid"
 }
 
+// OpClasses lists the classes of operation that do work, in order.
+func OpClasses() []OpClass {
+	out := make([]OpClass, 0, classCount-ClassConv)
+	for c := ClassConv; c < classCount; c++ {
+		out = append(out, c)
+	}
+	return out
+}
+
 // Efficiency is, per class, the share of the device's peak (FLOP/s and
 // bytes/s alike) that its kernels are assumed to reach.
 type Efficiency [classCount]float64
 
-// DefaultEfficiency returns the assumed shares: dense convolutions 50%,
-// depthwise and grouped 25% (they feed tensor cores poorly), matrix
-// products 60%, memory-bound kernels 70% of the memory bandwidth. They are
-// assumptions of the kind practitioners quote for tuned library kernels on
-// large tensors (from memory), not measurements: measure yours.
+// DefaultEfficiency returns the assumed shares: dense convolutions 50%
+// (pointwise ones too), depthwise and grouped 25% (they feed tensor cores
+// poorly), matrix products 60%, memory-bound kernels and normalisation 70%
+// of the memory bandwidth. They are assumptions of the kind practitioners
+// quote for tuned library kernels on large tensors (from memory), not
+// measurements: measure yours.
 func DefaultEfficiency() Efficiency {
-	return Efficiency{ClassNone: 1, ClassConv: 0.5, ClassGrouped: 0.25, ClassMatrix: 0.6, ClassMemory: 0.7}
+	return Efficiency{ClassNone: 1, ClassConv: 0.5, ClassGrouped: 0.25, ClassMatrix: 0.6, ClassMemory: 0.7,
+		ClassPointwise: 0.5, ClassNorm: 0.7}
 }
+
+// fallbackClass is the class whose calibrated efficiency a class without
+// one of its own takes before the default: a pointwise convolution runs
+// on the same library as the others, a normalisation is memory-bound.
+var fallbackClass = [classCount]OpClass{ClassPointwise: ClassConv, ClassNorm: ClassMemory}
 
 // Work is what one row does per sample: its class, the FLOPs of the
 // forward and backward passes, and the activation elements each pass reads
@@ -440,10 +459,11 @@ func (c *StepCurve) Step(batch int64) float64 {
 }
 
 // classKeys are the classes' names in the efficiency setting.
-var classKeys = [...]string{"", "conv", "grouped", "matrix", "memory"}
+var classKeys = [...]string{"", "conv", "grouped", "matrix", "memory", "pointwise", "norm"}
 
 // ClassKey returns the class's name in the efficiency setting and in the
-// calibration's output: conv, grouped, matrix or memory ("" for none).
+// calibration's output: conv, grouped, matrix, memory, pointwise or norm
+// ("" for none).
 func ClassKey(c OpClass) string {
 	if int(c) < len(classKeys) {
 		return classKeys[c]
@@ -475,7 +495,7 @@ func FormatEfficiency(e Efficiency) string {
 }
 
 // ParseEfficiency reads the efficiency setting: comma-separated pairs of a
-// class (conv, grouped, matrix, memory) and a share above 0 and at most
+// class (conv, grouped, matrix, memory, pointwise, norm) and a share above 0 and at most
 // 100% ("conv 42%, memory 0.61"); empty text sets none.
 func ParseEfficiency(text string) (Efficiency, error) {
 	var e Efficiency
@@ -486,7 +506,7 @@ func ParseEfficiency(text string) (Efficiency, error) {
 		}
 		c := slices.Index(classKeys[:], strings.ToLower(f[0]))
 		if c < int(ClassConv) || len(f) != 2 {
-			return Efficiency{}, fmt.Errorf("give pairs of a class (conv, grouped, matrix, memory) and a share, e.g. conv 42%%, memory 61%%")
+			return Efficiency{}, fmt.Errorf("give pairs of a class (%s) and a share, e.g. conv 42%%, memory 61%%", strings.Join(classKeys[ClassConv:], ", "))
 		}
 		t := f[1]
 		pct := strings.HasSuffix(t, "%")
@@ -516,54 +536,103 @@ func Achieved(d Device, c OpClass, p Precision, flops, bytes, seconds float64) f
 }
 
 // Probe is one micro-benchmark a calibration runs: a row of the stack
-// standing for a class of operation (the dense convolution and the
-// grouped one with the most FLOPs, the dense layer with the most, and an
-// element-wise operation on the largest activation), with the roofline's
-// work for it per sample over the forward and backward passes.
+// standing for a class of operation, with the roofline's work for it per
+// sample over the forward and backward passes, and how many rows of the
+// stack do the same work (the calibration weighs the probe's time by it).
 type Probe struct {
 	Class  OpClass
 	Row    int     // index in Result.Rows
+	Count  int     // rows with the same kind, shapes and settings
 	FLOPs  float64 // per sample, forward and backward
 	Elems  float64 // activation elements read and written per sample, both passes
 	Params int64   // weights read (forward and backward) and gradient written
 }
 
-// Probes returns the stack's micro-benchmarks, at most one per class, in
-// class order. The element-wise one is the work of one ReLU-like pass
-// over the largest output (elementWork with a gradient).
+// ProbesPerClass bounds a class's micro-benchmarks.
+const ProbesPerClass = 3
+
+// probeKey is what makes two rows the same micro-benchmark.
+type probeKey struct {
+	class        OpClass
+	kind         Kind
+	in, out      Shape
+	kernel       Pair
+	stride       Pair
+	groups       int64
+	depthwise    bool
+	noBias, grad bool
+	norm         NormKind
+}
+
+// Probes returns the stack's micro-benchmarks in class order: for the
+// convolutions (dense, pointwise, grouped), the dense layers and batch
+// normalisation, the ProbesPerClass distinct layers that do the most work
+// in the stack (a layer's work times the rows that repeat it), so that
+// the measured efficiency is the one at the sizes the stack uses; for the
+// element-wise class one pass of a ReLU-like function over the largest
+// output.
 func (r *Result) Probes() []Probe {
-	var best [classCount]Probe
-	for c := range best {
-		best[c].Row = -1
-	}
+	var found []Probe
+	index := map[probeKey]int{}
+	memory := Probe{Class: ClassMemory, Row: -1, Count: 1}
 	for i := range r.Rows {
 		row := &r.Rows[i]
 		if row.Status != StatusOK {
 			continue
 		}
+		l := row.Layer
 		w := rowWork(row)
+		ok := false
 		switch w.Class {
-		case ClassConv, ClassGrouped, ClassMatrix:
-			if row.Layer.Kind != KindConv && row.Layer.Kind != KindDense {
-				continue // the probes build convolutions and dense layers only
+		case ClassConv, ClassGrouped, ClassMatrix, ClassPointwise:
+			ok = l.Kind == KindConv || l.Kind == KindDense // the probes build these two only
+		case ClassNorm:
+			ok = l.Kind == KindNorm && l.Norm == NormBatch
+		}
+		if ok {
+			k := probeKey{class: w.Class, kind: l.Kind, in: row.In, out: row.Out, kernel: l.Kernel,
+				stride: l.EffectiveStride(), groups: l.Groups, depthwise: l.Depthwise, noBias: l.NoBias, grad: row.Grad, norm: l.Norm}
+			if row.Unstrided {
+				k.stride = Square(1)
 			}
-			if f := w.FwdFLOPs + w.BwdFLOPs; best[w.Class].Row < 0 || f > best[w.Class].FLOPs {
-				best[w.Class] = Probe{Class: w.Class, Row: i, FLOPs: f,
-					Elems: w.FwdRead + w.FwdWrite + w.BwdRead + w.BwdWrite, Params: row.Params}
+			if j, seen := index[k]; seen {
+				found[j].Count++
+			} else {
+				index[k] = len(found)
+				found = append(found, Probe{Class: w.Class, Row: i, Count: 1, FLOPs: w.FwdFLOPs + w.BwdFLOPs,
+					Elems: w.FwdRead + w.FwdWrite + w.BwdRead + w.BwdWrite, Params: row.Params})
 			}
 		}
-		if e := elems(row.Out); e > 0 && (best[ClassMemory].Row < 0 || e > best[ClassMemory].Elems/5) {
+		if e := elems(row.Out); e > 0 && (memory.Row < 0 || e > memory.Elems/5) {
 			// one FLOP per element each way; forward reads and writes
 			// it, backward reads the gradient and the input and writes one
-			best[ClassMemory] = Probe{Class: ClassMemory, Row: i, FLOPs: 2 * e, Elems: 5 * e}
+			memory = Probe{Class: ClassMemory, Row: i, Count: 1, FLOPs: 2 * e, Elems: 5 * e}
 		}
 	}
+	weight := func(p Probe) float64 {
+		if p.Class == ClassNorm {
+			return float64(p.Count) * p.Elems
+		}
+		return float64(p.Count) * p.FLOPs
+	}
+	slices.SortStableFunc(found, func(a, b Probe) int {
+		if a.Class != b.Class {
+			return cmp.Compare(a.Class, b.Class)
+		}
+		return cmp.Compare(weight(b), weight(a))
+	})
 	var out []Probe
-	for _, p := range best {
-		if p.Row >= 0 && p.Class != ClassNone {
+	per := [classCount]int{}
+	for _, p := range found {
+		if per[p.Class] < ProbesPerClass {
+			per[p.Class]++
 			out = append(out, p)
 		}
 	}
+	if memory.Row >= 0 {
+		out = append(out, memory)
+	}
+	slices.SortStableFunc(out, func(a, b Probe) int { return cmp.Compare(a.Class, b.Class) })
 	return out
 }
 

@@ -97,8 +97,8 @@ func Settings() []Setting {
 		gpuSetting(),
 		count("dataset", "training samples per epoch, for the epoch-time estimate (0: none)", 0, MaxDataset, "1281167",
 			func(t *Training) *int64 { return &t.Dataset }),
-		{Key: "efficiency", Help: "measured share of the device's peak per class of operation (stackfit calibrate writes it; a class left out: the assumed default)",
-			Kind: SettingText, Example: "conv 42%, grouped 9.5%, matrix 55%, memory 61%",
+		{Key: "efficiency", Help: "measured share of the device's peak per class of operation: conv, pointwise, grouped, matrix, memory, norm (stackfit calibrate writes it; a class left out: its related class's figure, else the assumed default)",
+			Kind: SettingText, Example: "conv 42%, pointwise 30%, grouped 9.5%, matrix 55%, memory 61%",
 			text: func(t *Training) *Efficiency { return &t.Efficiency }},
 	}
 }

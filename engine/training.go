@@ -169,12 +169,17 @@ func (t Training) Device() (d Device, ok bool) {
 }
 
 // Efficiencies returns the efficiencies the time estimate uses: the
-// calibrated ones t sets, the defaults for the rest.
+// calibrated ones t sets; a class t does not set takes its fallback
+// class's calibrated one (a pointwise convolution the convolutions', a
+// normalisation the element-wise kernels'), else the default.
 func (t Training) Efficiencies() Efficiency {
 	e := DefaultEfficiency()
 	for c, v := range t.Efficiency {
-		if v > 0 {
+		switch f := fallbackClass[c]; {
+		case v > 0:
 			e[c] = v
+		case f != ClassNone && t.Efficiency[f] > 0:
+			e[c] = t.Efficiency[f]
 		}
 	}
 	return e

@@ -64,6 +64,8 @@ func writeProbes(w io.Writer, an *engine.Analysis) {
 		switch {
 		case p.Class == engine.ClassMemory:
 			op = fmt.Sprintf("\"op\": \"relu\", \"shape\": [%d, %d, %d]", out.C, out.H, out.W)
+		case l.Kind == engine.KindNorm:
+			op = fmt.Sprintf("\"op\": \"batchnorm\", \"shape\": [%d, %d, %d]", in.C, in.H, in.W)
 		case l.Kind == engine.KindDense:
 			// MACs per sample = positions · in features · out features.
 			pos := max(out.H*out.W, 1)
@@ -82,8 +84,8 @@ func writeProbes(w io.Writer, an *engine.Analysis) {
 			op = fmt.Sprintf("\"op\": \"conv\", \"shape\": [%d, %d, %d], \"out\": %d, \"kernel\": [%d, %d], \"stride\": [%d, %d], \"pad\": [%d, %d], \"dilation\": [%d, %d], \"groups\": %d, \"bias\": %s",
 				in.C, in.H, in.W, out.C, l.Kernel.H, l.Kernel.W, s.H, s.W, before.H, before.W, d.H, d.W, g, pyBool(!l.NoBias))
 		}
-		fmt.Fprintf(w, "        {\"class\": %q, %s, \"grad\": %s, \"flops\": %g, \"elems\": %g, \"params\": %d},\n",
-			engine.ClassKey(p.Class), op, pyBool(row.Grad || p.Class == engine.ClassMemory), p.FLOPs, p.Elems, p.Params)
+		fmt.Fprintf(w, "        {\"class\": %q, %s, \"grad\": %s, \"flops\": %g, \"elems\": %g, \"params\": %d, \"count\": %d},\n",
+			engine.ClassKey(p.Class), op, pyBool(row.Grad || p.Class == engine.ClassMemory), p.FLOPs, p.Elems, p.Params, p.Count)
 	}
 	fmt.Fprintf(w, "    ],\n    \"probe_bytes\": {")
 	for i, p := range engine.Precisions() {
@@ -221,40 +223,44 @@ def _dtype_of(precision):
     return {"fp16-mixed": torch.float16, "bf16-mixed": torch.bfloat16}.get(precision)
 
 
-def _timed(fn, device, warmup=2, repeats=5):
-    """The least of several timings of fn after warm-up calls: CUDA events
-    on a GPU, wall time on the CPU (both noisy; the least is the one least
-    disturbed)."""
+def _once(fn, device):
+    """The seconds one call of fn takes: CUDA events on a GPU, wall time
+    on the CPU."""
+    if device == "cuda":
+        start, end = torch.cuda.Event(enable_timing=True), torch.cuda.Event(enable_timing=True)
+        start.record()
+        fn()
+        end.record()
+        end.synchronize()
+        return start.elapsed_time(end) / 1e3
     import time
+    t0 = time.perf_counter()
+    fn()
+    return time.perf_counter() - t0
+
+
+def _timed(fn, device, warmup=2, repeats=5):
+    """The least of several timings of fn after warm-up calls (both
+    noisy; the least is the one least disturbed)."""
     for _ in range(warmup):
         fn()
-    best = float("inf")
-    for _ in range(repeats):
-        if device == "cuda":
-            start, end = torch.cuda.Event(enable_timing=True), torch.cuda.Event(enable_timing=True)
-            start.record()
-            fn()
-            end.record()
-            end.synchronize()
-            best = min(best, start.elapsed_time(end) / 1e3)
-        else:
-            t0 = time.perf_counter()
-            fn()
-            best = min(best, time.perf_counter() - t0)
-    return best
+    return min(_once(fn, device) for _ in range(repeats))
 
 
 def _device_name(device):
     return (torch.cuda.get_device_name() if device == "cuda" else "cpu").replace(" ", "_")
 
 
-def probes(batch, precision, device):
+def probes(batch, precision, device, rounds=7):
     """Times each micro-benchmark of ESTIMATE["probes"] (a layer of the
     stack per class of operation, forward and backward) and returns lines
     for stackfit calibrate: the roofline's FLOPs and bytes for the probe
-    beside the measured seconds."""
+    beside the measured seconds. The probes are timed in rounds, each
+    probe once per round, and each keeps its least time: a slow spell of
+    a shared machine then spreads over all of them instead of spoiling
+    one."""
     dtype = _dtype_of(precision)
-    lines = []
+    runs = []
     for p in ESTIMATE["probes"]:
         if p["op"] == "conv":
             conv = nn.Conv2d  # the stack's layer, built alone
@@ -264,6 +270,9 @@ def probes(batch, precision, device):
         elif p["op"] == "dense":
             m = nn.Linear(p["in"], p["out"], bias=p["bias"])
             x = torch.randn(batch, p["positions"], p["in"])
+        elif p["op"] == "batchnorm":
+            m = nn.BatchNorm2d(p["shape"][0])
+            x = torch.randn(batch, *p["shape"])
         else:
             m = nn.ReLU()
             x = torch.randn(batch, *p["shape"])
@@ -273,7 +282,10 @@ def probes(batch, precision, device):
             m, x = m.to(torch.bfloat16), x.to(torch.bfloat16)
         x.requires_grad_(p["grad"])
 
-        def run():
+        # The output's gradient is made once: in a network it comes from
+        # the layer above, so making and filling it is no part of the
+        # layer's time.
+        def run(m=m, x=x, gy=[]):
             m.zero_grad(set_to_none=True)
             x.grad = None
             if dtype is not None:
@@ -281,17 +293,27 @@ def probes(batch, precision, device):
                     y = m(x)
             else:
                 y = m(x)
-            y.backward(torch.ones_like(y))
+            if not gy:
+                gy.append(torch.ones_like(y))
+            y.backward(gy[0])
 
-        seconds = _timed(run, device)
+        runs.append(run)
+    best = [float("inf")] * len(runs)
+    for r in range(2 + rounds):
+        for i, run in enumerate(runs):
+            seconds = _once(run, device)
+            if r >= 2:  # the first two rounds warm up
+                best[i] = min(best[i], seconds)
+    lines = []
+    for p, seconds in zip(ESTIMATE["probes"], best):
         act, weight = ESTIMATE["probe_bytes"][precision]
         flops, nbytes = batch * p["flops"], batch * act * p["elems"] + weight * p["params"]
-        lines.append("stackfit-probe: device=%s class=%s precision=%s batch=%d flops=%.6g bytes=%.6g seconds=%.6g"
-                     % (_device_name(device), p["class"], precision, batch, flops, nbytes, seconds))
+        lines.append("stackfit-probe: device=%s class=%s precision=%s batch=%d flops=%.6g bytes=%.6g seconds=%.6g count=%d"
+                     % (_device_name(device), p["class"], precision, batch, flops, nbytes, seconds, p["count"]))
     return lines
 
 
-def step_time(batch, precision, optimizer, device, steps=3):
+def step_time(batch, precision, optimizer, device, steps=5):
     """The least time of a few whole training steps (forward, backward and
     the optimizer step) on synthetic data, after a warm-up step."""
     model = MODEL().to(device).train()
@@ -340,7 +362,7 @@ def main(argv=None):
     if "memory" in parts:
         _report_memory(args, device)
     if "probes" in parts:
-        print("stackfit probes: %s, batch %d, %s (least of 5 timings after 2 warm-ups, forward and backward)" % (_device_name(device), args.batch, args.precision))
+        print("stackfit probes: %s, batch %d, %s (least of 7 rounds after 2 warm-ups, forward and backward)" % (_device_name(device), args.batch, args.precision))
         for line in probes(args.batch, args.precision, device):
             print(line)
     if "step" in parts:
@@ -350,7 +372,7 @@ def main(argv=None):
             note = "stackfit's estimate %.4g s on %s (an estimate: it assumes the efficiencies hold and no overhead)" % (est["seconds"], est["device"])
         else:
             note = "no estimate at these settings (stackfit estimates the file's batch and precision when it names a gpu)"
-        print("  %-12s %10.4g s measured (least of 3 after a warm-up) · %s" % ("step time", seconds, note))
+        print("  %-12s %10.4g s measured (least of 5 after a warm-up) · %s" % ("step time", seconds, note))
         print("stackfit-step: device=%s batch=%d precision=%s optimizer=%s seconds=%.6g" % (_device_name(device), args.batch, args.precision, args.optimizer, seconds))
 
 

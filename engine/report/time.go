@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"strings"
 
 	"stackfit/engine"
 	"stackfit/engine/textsafe"
@@ -68,7 +69,7 @@ func buildTime(an *engine.Analysis) *JSONTime {
 	if tm.Compute > 0 {
 		j.ComputeBound = tm.ComputeBound / tm.Compute
 	}
-	for c := engine.ClassConv; c <= engine.ClassMemory; c++ {
+	for _, c := range engine.OpClasses() {
 		j.Efficiency[c.String()] = tm.Efficiency[c]
 	}
 	for _, i := range tm.Top(topLayers) {
@@ -135,8 +136,11 @@ func writeTime(w io.Writer, an *engine.Analysis) {
 		}
 	}
 	e := tm.Efficiency
-	fmt.Fprintf(w, "  efficiency assumed: convolution %.0f%%, grouped convolution %.0f%%, matrix product %.0f%%, element-wise %.0f%% of peak\n",
-		100*e[engine.ClassConv], 100*e[engine.ClassGrouped], 100*e[engine.ClassMatrix], 100*e[engine.ClassMemory])
+	var shares []string
+	for _, c := range engine.OpClasses() {
+		shares = append(shares, fmt.Sprintf("%s %.0f%%", c, 100*e[c]))
+	}
+	fmt.Fprintf(w, "  efficiency assumed: %s of peak\n", strings.Join(shares, ", "))
 	fmt.Fprintf(w, "  device: %s\n", d.Source)
 	fmt.Fprintf(w, "  %s\n", TimeCaution)
 }

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -27,6 +28,10 @@ type calibration struct {
 	precision   engine.Precision
 	eff         engine.Efficiency
 	capped      []string // classes whose efficiency came out above 100%
+	// Per class, over its probes weighed by their counts: the seconds
+	// the roofline gives the work at the device's full peak, and the
+	// seconds measured; eff is their ratio.
+	ideal, spent engine.Efficiency
 }
 
 // probePrefix starts a micro-benchmark's line.
@@ -42,7 +47,7 @@ func readProbe(c *calibration, line, rest string) error {
 	}
 	class, ok := engine.ClassByKey(kv["class"])
 	if !ok {
-		return fmt.Errorf("the probe line %q names no class (conv, grouped, matrix, memory)", textsafe.Line(line))
+		return fmt.Errorf("the probe line %q names no class (%s)", textsafe.Line(line), classList())
 	}
 	ps, _ := engine.SettingFor("precision")
 	i, err := engine.ParseChoice("precision", kv["precision"], ps.Options)
@@ -67,16 +72,40 @@ func readProbe(c *calibration, line, rest string) error {
 	if !ok {
 		return fmt.Errorf("the probes ran on %s, which stackfit's device table lacks: an efficiency is a share of the device's peaks", textsafe.Line(strings.ReplaceAll(dev, "_", " ")))
 	}
+	count := 1.0
+	if v, ok := kv["count"]; ok {
+		n, err := strconv.ParseInt(v, 10, 32)
+		if err != nil || n < 1 {
+			return fmt.Errorf("the probe line's count is %q; expected a whole number of 1 or more", textsafe.Line(v))
+		}
+		count = float64(n)
+	}
 	e := engine.Achieved(d, class, c.precision, num[0], num[1], num[2])
 	if e <= 0 {
 		return fmt.Errorf("the probe line %q gives no efficiency (no work or no time)", textsafe.Line(line))
 	}
+	c.ideal[class] += count * e * num[2]
+	c.spent[class] += count * num[2]
+	e = c.ideal[class] / c.spent[class]
 	if e > engine.MaxEfficiency {
 		e = engine.MaxEfficiency
-		c.capped = append(c.capped, engine.ClassKey(class))
+		if !slices.Contains(c.capped, engine.ClassKey(class)) {
+			c.capped = append(c.capped, engine.ClassKey(class))
+		}
+	} else {
+		c.capped = slices.DeleteFunc(c.capped, func(k string) bool { return k == engine.ClassKey(class) })
 	}
 	c.eff[class] = e
 	return nil
+}
+
+// classList names the classes of operation a probe line may give.
+func classList() string {
+	var keys []string
+	for _, c := range engine.OpClasses() {
+		keys = append(keys, engine.ClassKey(c))
+	}
+	return strings.Join(keys, ", ")
 }
 
 // gpuKey returns the device key the training settings name.

@@ -88,3 +88,46 @@ func TestCalibrateWritesEfficiencies(t *testing.T) {
 		t.Errorf("the file:\n%s", data)
 	}
 }
+
+// TestCalibrateWeighsProbes: a class's efficiency is the roofline's time
+// at the peaks over the measured time, summed over its probes, each
+// weighed by the rows it stands for. On the CPU device (1 TFLOP/s): a
+// probe of 1e9 FLOPs in 0.1 s (1%) standing for 3 rows and one of 1e9 in
+// 0.01 s (10%) standing for 1 give (3·1e-3 + 1e-3) / (3·0.1 + 0.01) = 4/310.
+func TestCalibrateWeighsProbes(t *testing.T) {
+	file := filepath.Join(t.TempDir(), "cap.yaml")
+	if err := os.WriteFile(file, []byte(measureStack), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name, meas string
+		want       float64
+		err        string
+	}{
+		{"weighed", "stackfit-probe: device=cpu class=pointwise precision=fp32 batch=4 flops=1e9 bytes=1e6 seconds=0.1 count=3\n" +
+			"stackfit-probe: device=cpu class=pointwise precision=fp32 batch=4 flops=1e9 bytes=1e6 seconds=0.01 count=1\n", 4.0 / 310, ""},
+		{"no count is one", "stackfit-probe: device=cpu class=pointwise precision=fp32 batch=4 flops=1e9 bytes=1e6 seconds=0.1\n" +
+			"stackfit-probe: device=cpu class=pointwise precision=fp32 batch=4 flops=1e9 bytes=1e6 seconds=0.01\n", 2.0 / 110, ""},
+		{"bad count", "stackfit-probe: device=cpu class=pointwise precision=fp32 batch=4 flops=1e9 bytes=1e6 seconds=0.1 count=0\n", 0, "count"},
+		{"unknown class", "stackfit-probe: device=cpu class=winograd precision=fp32 batch=4 flops=1e9 bytes=1e6 seconds=0.1\n", 0, "pointwise, norm"},
+	} {
+		_, errs, code := run(t, tc.meas, "calibrate", file, "--cpu")
+		if tc.err != "" {
+			if code != ExitUsage || !strings.Contains(errs, tc.err) {
+				t.Errorf("%s: exit %d, %q; want an error naming %q", tc.name, code, errs, tc.err)
+			}
+			continue
+		}
+		if code != ExitOK {
+			t.Fatalf("%s: exit %d: %s", tc.name, code, errs)
+		}
+		s, err := store.LoadFile(file)
+		if err != nil {
+			t.Fatal(err)
+		}
+		// the file keeps three significant digits
+		if got := s.Training.Efficiency[engine.ClassPointwise]; math.Abs(got-tc.want) > 0.005*tc.want {
+			t.Errorf("%s: pointwise %g, want %g", tc.name, got, tc.want)
+		}
+	}
+}
