@@ -34,86 +34,92 @@ type Code uint8
 
 // Diagnostic codes.
 const (
-	ErrOutputSize     Code = iota + 1 // output size not positive
-	ErrKernelTooLarge                 // effective kernel larger than the padded input
-	ErrGroupsChannels                 // input channels not divisible by groups
-	ErrGroupsFilters                  // filters not divisible by groups
-	ErrDenseSpatial                   // dense layer on a spatial map
-	ErrReshapeCount                   // reshape changes the element count
-	ErrOverflow                       // a size or count does not fit in int64
-	ErrPoolPad                        // pooling padding larger than half the window
-	ErrOutPad                         // transposed output padding too large
-	ErrSamePad                        // same padding where it is not defined
-	ErrNormGroups                     // channels not divisible by norm groups
-	ErrValue                          // a field is missing or out of range
-	ErrNormSingle                     // instance norm over a single position
-	ErrTooManyRows                    // repeats expand the stack past MaxRows
-	ErrMergeUnknown                   // merge names no layer
-	ErrMergeLater                     // merge names a layer that comes later
-	ErrMergeShape                     // merged maps differ in height or width
-	ErrAddChannels                    // added maps differ in channels
-	ErrNameTwice                      // two layers share a name
-	ErrProjection                     // a residual block's shortcut cannot be built
-	ErrNesting                        // blocks nested deeper than MaxBlockDepth
-	WarnStrideDrop                    // floor division leaves input rows/columns unused
-	WarnSameAsym                      // same padding needs one extra row/column on one side
-	WarnFinalRF                       // final receptive field smaller than the input
-	WarnParamShare                    // one layer holds over half of all parameters
-	WarnChannels8                     // channel count not a multiple of 8
-	WarnMergeJump                     // merged maps have different effective strides
-	InfoCrop                          // a merge center-crops a map
-	ErrGateShape                      // a gate body does not end in C×1×1
-	ErrDenseShape                     // a densely linked repeat changes the map size
-	ErrShuffleGroups                  // channels not divisible by shuffle groups
-	ErrWidthZero                      // a relative width resolves to no channels
-	ErrForkEmpty                      // a fork without branches
-	ErrSplitWidth                     // channels not divisible among a split fork's branches
-	ErrBranchShape                    // a fork's branches end in different map sizes
-	ErrBranchPlace                    // a branch outside a fork, or another item directly in one
-	WarnForkOne                       // a fork with a single branch joins nothing
+	ErrOutputSize      Code = iota + 1 // output size not positive
+	ErrKernelTooLarge                  // effective kernel larger than the padded input
+	ErrGroupsChannels                  // input channels not divisible by groups
+	ErrGroupsFilters                   // filters not divisible by groups
+	ErrDenseSpatial                    // dense layer on a spatial map
+	ErrReshapeCount                    // reshape changes the element count
+	ErrOverflow                        // a size or count does not fit in int64
+	ErrPoolPad                         // pooling padding larger than half the window
+	ErrOutPad                          // transposed output padding too large
+	ErrSamePad                         // same padding where it is not defined
+	ErrNormGroups                      // channels not divisible by norm groups
+	ErrValue                           // a field is missing or out of range
+	ErrNormSingle                      // instance norm over a single position
+	ErrTooManyRows                     // repeats expand the stack past MaxRows
+	ErrMergeUnknown                    // merge names no layer
+	ErrMergeLater                      // merge names a layer that comes later
+	ErrMergeShape                      // merged maps differ in height or width
+	ErrAddChannels                     // added maps differ in channels
+	ErrNameTwice                       // two layers share a name
+	ErrProjection                      // a residual block's shortcut cannot be built
+	ErrNesting                         // blocks nested deeper than MaxBlockDepth
+	WarnStrideDrop                     // floor division leaves input rows/columns unused
+	WarnSameAsym                       // same padding needs one extra row/column on one side
+	WarnFinalRF                        // final receptive field smaller than the input
+	WarnParamShare                     // one layer holds over half of all parameters
+	WarnChannels8                      // channel count not a multiple of 8
+	WarnMergeJump                      // merged maps have different effective strides
+	InfoCrop                           // a merge center-crops a map
+	ErrGateShape                       // a gate body does not end in C×1×1
+	ErrDenseShape                      // a densely linked repeat changes the map size
+	ErrShuffleGroups                   // channels not divisible by shuffle groups
+	ErrWidthZero                       // a relative width resolves to no channels
+	ErrForkEmpty                       // a fork without branches
+	ErrSplitWidth                      // channels not divisible among a split fork's branches
+	ErrBranchShape                     // a fork's branches end in different map sizes
+	ErrBranchPlace                     // a branch outside a fork, or another item directly in one
+	WarnForkOne                        // a fork with a single branch joins nothing
+	ErrToSpaceChannels                 // channels not a multiple of the to-space factor squared
+	ErrToChannelsSize                  // height or width not a multiple of the to-channels factor
+	ErrKeepChannels                    // keep asks for more channels than the input has
 )
 
 // codeNames are the diagnostics' stable names: the words a stack file's
 // quiet: list and the reports use. A name never changes once given, so a
 // file that silences a warning keeps doing so.
 var codeNames = [...]string{
-	ErrOutputSize:     "output-size",
-	ErrKernelTooLarge: "kernel-too-large",
-	ErrGroupsChannels: "groups-channels",
-	ErrGroupsFilters:  "groups-filters",
-	ErrDenseSpatial:   "dense-on-map",
-	ErrReshapeCount:   "reshape-count",
-	ErrOverflow:       "overflow",
-	ErrPoolPad:        "pool-padding",
-	ErrOutPad:         "output-padding",
-	ErrSamePad:        "same-padding",
-	ErrNormGroups:     "norm-groups",
-	ErrValue:          "value-range",
-	ErrNormSingle:     "norm-single-position",
-	ErrTooManyRows:    "too-many-rows",
-	ErrMergeUnknown:   "merge-unknown",
-	ErrMergeLater:     "merge-later",
-	ErrMergeShape:     "merge-size",
-	ErrAddChannels:    "add-channels",
-	ErrNameTwice:      "name-twice",
-	ErrProjection:     "shortcut-impossible",
-	ErrNesting:        "nesting-depth",
-	WarnStrideDrop:    "stride-drops-edge",
-	WarnSameAsym:      "same-padding-uneven",
-	WarnFinalRF:       "small-receptive-field",
-	WarnParamShare:    "parameter-heavy-layer",
-	WarnChannels8:     "channels-not-multiple-of-8",
-	WarnMergeJump:     "merge-stride-mismatch",
-	InfoCrop:          "merge-crop",
-	ErrGateShape:      "gate-shape",
-	ErrDenseShape:     "dense-link-size",
-	ErrShuffleGroups:  "shuffle-groups",
-	ErrWidthZero:      "width-zero",
-	ErrForkEmpty:      "fork-empty",
-	ErrSplitWidth:     "split-width",
-	ErrBranchShape:    "branch-size",
-	ErrBranchPlace:    "branch-place",
-	WarnForkOne:       "fork-one-branch",
+	ErrOutputSize:      "output-size",
+	ErrKernelTooLarge:  "kernel-too-large",
+	ErrGroupsChannels:  "groups-channels",
+	ErrGroupsFilters:   "groups-filters",
+	ErrDenseSpatial:    "dense-on-map",
+	ErrReshapeCount:    "reshape-count",
+	ErrOverflow:        "overflow",
+	ErrPoolPad:         "pool-padding",
+	ErrOutPad:          "output-padding",
+	ErrSamePad:         "same-padding",
+	ErrNormGroups:      "norm-groups",
+	ErrValue:           "value-range",
+	ErrNormSingle:      "norm-single-position",
+	ErrTooManyRows:     "too-many-rows",
+	ErrMergeUnknown:    "merge-unknown",
+	ErrMergeLater:      "merge-later",
+	ErrMergeShape:      "merge-size",
+	ErrAddChannels:     "add-channels",
+	ErrNameTwice:       "name-twice",
+	ErrProjection:      "shortcut-impossible",
+	ErrNesting:         "nesting-depth",
+	WarnStrideDrop:     "stride-drops-edge",
+	WarnSameAsym:       "same-padding-uneven",
+	WarnFinalRF:        "small-receptive-field",
+	WarnParamShare:     "parameter-heavy-layer",
+	WarnChannels8:      "channels-not-multiple-of-8",
+	WarnMergeJump:      "merge-stride-mismatch",
+	InfoCrop:           "merge-crop",
+	ErrGateShape:       "gate-shape",
+	ErrDenseShape:      "dense-link-size",
+	ErrShuffleGroups:   "shuffle-groups",
+	ErrWidthZero:       "width-zero",
+	ErrForkEmpty:       "fork-empty",
+	ErrSplitWidth:      "split-width",
+	ErrBranchShape:     "branch-size",
+	ErrBranchPlace:     "branch-place",
+	WarnForkOne:        "fork-one-branch",
+	ErrToSpaceChannels: "to-space-channels",
+	ErrToChannelsSize:  "to-channels-size",
+	ErrKeepChannels:    "keep-channels",
 }
 
 // Name returns the code's stable name, e.g. "small-receptive-field"; ""
@@ -261,6 +267,14 @@ func (d Diagnostic) Message() string {
 			return "a branch belongs directly inside a fork; wrap it in a fork, or take its layers out"
 		}
 		return "a fork holds branches only; put this item inside a branch (a list under branches:)"
+	case ErrToSpaceChannels:
+		return fmt.Sprintf("channels %d are not a multiple of factor² = %d (factor %d); give the layer before a multiple of %d channels, e.g. %d, or pick a factor whose square divides %d",
+			d.A, d.B, d.C, d.B, d.D, d.A)
+	case ErrToChannelsSize:
+		return fmt.Sprintf("input %s %d is not a multiple of factor %d; make it a multiple of %d, e.g. %d (padding or cropping the layers before), or pick a factor that divides %d",
+			ax, d.A, d.B, d.B, d.C, d.A)
+	case ErrKeepChannels:
+		return fmt.Sprintf("channels %d is more than the %d input channels; keep at most %d, or widen the layer before to %d", d.A, d.B, d.B, d.A)
 	case WarnForkOne:
 		return "the fork has one branch, so it joins nothing; add a branch (an empty one passes the map on), or drop the fork"
 	case ErrValue:

@@ -40,5 +40,5 @@ func (l *Layer) EqualFields(o *Layer) bool {
 		l.NoShortcutNorm == o.NoShortcutNorm && l.PostAct == o.PostAct && l.HasPostAct == o.HasPostAct &&
 		l.IdentityOnly == o.IdentityOnly && same(l.DropPath, o.DropPath) && l.DenseLinks == o.DenseLinks &&
 		l.Split == o.Split && l.From == o.From && l.Crop == o.Crop && l.First == o.First && l.RelBlock == o.RelBlock &&
-		l.RoundTo == o.RoundTo && same(l.ScaleInit, o.ScaleInit) && l.Name == o.Name && l.Note == o.Note
+		l.RoundTo == o.RoundTo && same(l.ScaleInit, o.ScaleInit) && l.PixelFactor == o.PixelFactor && l.Keep == o.Keep && l.Name == o.Name && l.Note == o.Note
 }

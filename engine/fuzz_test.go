@@ -122,8 +122,13 @@ func stackFromBytes(data []byte) *Stack {
 				Act: ActKind(next() % int64(len(activations))), Rate: float64(next()%10) / 10, Target: Shape{wide(), wide(), wide()},
 				Repeat: wide(), Residual: next()%2 == 0, HasPostAct: next()%2 == 0, Crop: next()%2 == 0,
 				From: names[next()%3], IdentityOnly: next()%2 == 0, DropPath: float64(next()%3) / 10}
-			if k == KindScale {
+			switch k {
+			case KindScale:
 				l.ScaleInit = float64(wide()) / 8
+			case KindToSpace, KindToChannels:
+				l.PixelFactor = wide()
+			case KindKeep:
+				l.Keep = wide()
 			}
 			if next()%3 == 0 {
 				l.Name = names[next()%3]

@@ -26,6 +26,9 @@ const (
 	KindShuffle         // channel shuffle across groups
 	KindFork            // parallel branches from one map, joined along the channels
 	KindBranch          // one branch of a fork: a list of layers (empty: the map itself)
+	KindToSpace         // channels moved into space: C·r²×H×W → C×rH×rW (pixel shuffle)
+	KindToChannels      // space moved into channels: C×H×W → C·r²×H/r×W/r (pixel unshuffle)
+	KindKeep            // the first N channels kept, the rest dropped
 	kindCount
 )
 
@@ -246,6 +249,11 @@ type Layer struct {
 	// scale: the value every per-channel factor starts at (the stack file's
 	// value; 1 when it is left out).
 	ScaleInit float64
+
+	// to-space, to-channels: the block side r.
+	PixelFactor int64
+	// keep: how many channels, from the first, pass on.
+	Keep int64
 
 	Name string // optional short identifier
 	Note string // optional free text

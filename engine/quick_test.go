@@ -67,6 +67,9 @@ func TestQuickParse(t *testing.T) {
 		{"shuffle g2", engine.Layer{Kind: engine.KindShuffle, Groups: 2}},
 		{"shuffle 3 @mix", engine.Layer{Kind: engine.KindShuffle, Groups: 3, Name: "mix"}},
 		{"shuffle g1", engine.Layer{Kind: engine.KindShuffle}},
+		{"to-space 2", engine.Layer{Kind: engine.KindToSpace, PixelFactor: 2}},
+		{"to-channels 3 @down", engine.Layer{Kind: engine.KindToChannels, PixelFactor: 3, Name: "down"}},
+		{"keep 16", engine.Layer{Kind: engine.KindKeep, Keep: 16}},
 	}
 	for _, tt := range tests {
 		got, err := engine.ParseQuick(tt.line)
@@ -146,6 +149,10 @@ func TestQuickDidYouMean(t *testing.T) {
 // practice for typo hints), nothing when nothing is close.
 func TestSuggest(t *testing.T) {
 	acts := engine.SpecOf(engine.KindAct).Main.Choices
+	var kinds []string
+	for _, k := range engine.Kinds() {
+		kinds = append(kinds, k.String())
+	}
 	tests := []struct {
 		s          string
 		candidates []string
@@ -159,6 +166,9 @@ func TestSuggest(t *testing.T) {
 		{"bathc", []string{"batch", "group"}, "batch"},
 		{"xyz", acts, ""},
 		{"", acts, ""},
+		{"PixelShuffle", kinds, "to-space"},      // PyTorch's module name
+		{"space-to-depth", kinds, "to-channels"}, // ONNX's operator
+		{"slice", kinds, "keep"},
 	}
 	for _, tt := range tests {
 		if got := engine.Suggest(tt.s, tt.candidates); got != tt.want {

@@ -240,3 +240,87 @@ func TestMobileKinds(t *testing.T) {
 		t.Errorf("explain %q", got)
 	}
 }
+
+// TestRearrangeKinds checks the sub-pixel rearrangements and the channel
+// slice: to-space takes C·r² channels at H×W to C at rH×rW and to-channels
+// reverses it (PyTorch's nn.PixelShuffle and nn.PixelUnshuffle
+// documentation, Shape sections and examples; Shi et al. 2016, section
+// 2.2: the last layer of the network gives r²·C channels at the low
+// resolution); keep passes the first N channels (Han et al. 2020, the
+// Ghost module keeps the first oup of its ⌈oup/s⌉·s joined channels). None
+// has parameters, buffers or MACs. The receptive field follows the
+// sliding-window rule: to-space reads one input position per output
+// (common practice: each output copies one input value), to-channels an
+// r×r block with stride r.
+func TestRearrangeKinds(t *testing.T) {
+	tests := []struct {
+		source  string
+		in, out Shape
+		l       Layer
+		rf      FPair
+		jump    FPair
+	}{
+		{"PyTorch docs, nn.PixelShuffle(3): 1×9×4×4 → 1×1×12×12", Shape{9, 4, 4}, Shape{1, 12, 12}, Layer{Kind: KindToSpace, PixelFactor: 3}, FPair{1, 1}, FPair{1.0 / 3, 1.0 / 3}},
+		{"Shi et al. 2016: r = 3, one luminance channel, 17×17 low-resolution patches", Shape{9, 17, 17}, Shape{1, 51, 51}, Layer{Kind: KindToSpace, PixelFactor: 3}, FPair{1, 1}, FPair{1.0 / 3, 1.0 / 3}},
+		{"Shi et al. 2016: r = 4 on RGB output, non-square input", Shape{48, 10, 7}, Shape{3, 40, 28}, Layer{Kind: KindToSpace, PixelFactor: 4}, FPair{1, 1}, FPair{0.25, 0.25}},
+		{"factor 1 is the identity (PyTorch docs: C·1² = C)", Shape{5, 3, 2}, Shape{5, 3, 2}, Layer{Kind: KindToSpace, PixelFactor: 1}, FPair{1, 1}, FPair{1, 1}},
+		{"PyTorch docs, nn.PixelUnshuffle(3): 1×1×12×12 → 1×9×4×4", Shape{1, 12, 12}, Shape{9, 4, 4}, Layer{Kind: KindToChannels, PixelFactor: 3}, FPair{3, 3}, FPair{3, 3}},
+		{"PyTorch docs: C_out = C_in·r², H_out = H_in ÷ r, non-square", Shape{3, 8, 6}, Shape{12, 4, 3}, Layer{Kind: KindToChannels, PixelFactor: 2}, FPair{2, 2}, FPair{2, 2}},
+		{"Han et al. 2020: Ghost module, oup 16 with s = 3: ⌈16/3⌉·3 = 18 joined, 16 kept", Shape{18, 56, 56}, Shape{16, 56, 56}, Layer{Kind: KindKeep, Keep: 16}, FPair{1, 1}, FPair{1, 1}},
+		{"Han et al. 2020: oup 16 with s = 2 joins exactly 16 (the slice keeps all)", Shape{16, 112, 112}, Shape{16, 112, 112}, Layer{Kind: KindKeep, Keep: 16}, FPair{1, 1}, FPair{1, 1}},
+		{"PyTorch basic indexing: x[:, :1] of 7 channels", Shape{7, 5, 3}, Shape{1, 5, 3}, Layer{Kind: KindKeep, Keep: 1}, FPair{1, 1}, FPair{1, 1}},
+	}
+	for _, tt := range tests {
+		t.Run(tt.source, func(t *testing.T) {
+			r, row := single(tt.in, tt.l)
+			if r.Errors != 0 {
+				t.Fatalf("unexpected errors: %v", r.Diags)
+			}
+			if row.Out != tt.out || row.Params != 0 || row.Buffers != 0 || row.MACs != 0 || row.RF != tt.rf || row.Jump != tt.jump {
+				t.Errorf("out %v params %d buffers %d MACs %d rf %v jump %v; want %v, 0, 0, 0, %v, %v",
+					row.Out, row.Params, row.Buffers, row.MACs, row.RF, row.Jump, tt.out, tt.rf, tt.jump)
+			}
+		})
+	}
+}
+
+// TestRearrangeErrors checks the refusals and their wording: PyTorch's
+// pixel_shuffle refuses channels that are not a multiple of r² and
+// pixel_unshuffle a height or width that is not a multiple of r (their
+// documented shapes); a slice cannot keep more channels than there are
+// (common practice: x[:, :N] with N over C silently keeps C in PyTorch,
+// which would hide a mistake, so the stack refuses it).
+func TestRearrangeErrors(t *testing.T) {
+	tests := []struct {
+		name  string
+		in    Shape
+		l     Layer
+		code  Code
+		field string
+		msg   string
+	}{
+		{"10 channels, factor 2", Shape{10, 8, 8}, Layer{Kind: KindToSpace, PixelFactor: 2}, ErrToSpaceChannels, "factor",
+			"channels 10 are not a multiple of factor² = 4 (factor 2); give the layer before a multiple of 4 channels, e.g. 12, or pick a factor whose square divides 10"},
+		{"height 7, factor 2", Shape{3, 7, 8}, Layer{Kind: KindToChannels, PixelFactor: 2}, ErrToChannelsSize, "factor",
+			"input height 7 is not a multiple of factor 2; make it a multiple of 2, e.g. 8 (padding or cropping the layers before), or pick a factor that divides 7"},
+		{"width 10, factor 3", Shape{3, 9, 10}, Layer{Kind: KindToChannels, PixelFactor: 3}, ErrToChannelsSize, "factor",
+			"input width 10 is not a multiple of factor 3; make it a multiple of 3, e.g. 12 (padding or cropping the layers before), or pick a factor that divides 10"},
+		{"both 9, factor 2", Shape{3, 9, 9}, Layer{Kind: KindToChannels, PixelFactor: 2}, ErrToChannelsSize, "factor",
+			"input height and width 9 is not a multiple of factor 2; make it a multiple of 2, e.g. 10 (padding or cropping the layers before), or pick a factor that divides 9"},
+		{"keep 20 of 18", Shape{18, 4, 4}, Layer{Kind: KindKeep, Keep: 20}, ErrKeepChannels, "channels",
+			"channels 20 is more than the 18 input channels; keep at most 18, or widen the layer before to 20"},
+		{"factor missing", Shape{4, 4, 4}, Layer{Kind: KindToSpace}, ErrValue, "factor", "factor is 0; it must be at least 1"},
+		{"keep missing", Shape{4, 4, 4}, Layer{Kind: KindKeep}, ErrValue, "channels", "channels is 0; it must be at least 1"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			r, _ := single(tt.in, tt.l)
+			if r.Errors != 1 || len(r.Diags) == 0 || r.Diags[0].Code != tt.code || r.Diags[0].Field != tt.field {
+				t.Fatalf("diagnostics %v; want one %s on %s", r.Diags, tt.code.Name(), tt.field)
+			}
+			if msg := r.Diags[0].Message(); msg != tt.msg {
+				t.Errorf("message %q\nwant    %q", msg, tt.msg)
+			}
+		})
+	}
+}

@@ -75,7 +75,8 @@ func init() {
 	for _, s := range []*Spec{&convSpec, &deconvSpec, &poolSpec, &globalPoolSpec, &poolToSpec,
 		&upsampleSpec, &normSpec, &actSpec, &dropoutSpec, &flattenSpec, &denseSpec,
 		&reshapeSpec, &blockSpec, &concatSpec, &addSpec, &gateSpec,
-		&scaleSpec, &shuffleSpec, &forkSpec, &branchSpec} {
+		&scaleSpec, &shuffleSpec, &forkSpec, &branchSpec,
+		&toSpaceSpec, &toChannelsSpec, &keepSpec} {
 		specs[s.Kind] = s
 	}
 }

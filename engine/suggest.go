@@ -7,21 +7,31 @@ import "strings"
 // norms. Suggest offers the stackfit word for them; they are never
 // accepted in place of it, so every value keeps one spelling.
 var aliases = map[string]string{
-	"lrelu":         "leaky-relu", // PyTorch's nn.LeakyReLU, often shortened
-	"leakyrelu":     "leaky-relu",
-	"swish":         "silu", // Ramachandran et al. 2017 name x·sigmoid(x) swish
-	"hswish":        "hard-swish",
-	"hsigmoid":      "hard-sigmoid",
-	"bn":            "batch", // norm batch
-	"batchnorm":     "batch",
-	"gn":            "group",
-	"groupnorm":     "group",
-	"fc":            "dense", // "fully connected"
-	"linear":        "dense", // PyTorch's nn.Linear
-	"maxpool":       "pool",
-	"avgpool":       "pool",
-	"convtranspose": "deconv", // PyTorch's nn.ConvTranspose2d
-	"cat":           "concat",
+	"lrelu":           "leaky-relu", // PyTorch's nn.LeakyReLU, often shortened
+	"leakyrelu":       "leaky-relu",
+	"swish":           "silu", // Ramachandran et al. 2017 name x·sigmoid(x) swish
+	"hswish":          "hard-swish",
+	"hsigmoid":        "hard-sigmoid",
+	"bn":              "batch", // norm batch
+	"batchnorm":       "batch",
+	"gn":              "group",
+	"groupnorm":       "group",
+	"fc":              "dense", // "fully connected"
+	"linear":          "dense", // PyTorch's nn.Linear
+	"maxpool":         "pool",
+	"avgpool":         "pool",
+	"convtranspose":   "deconv", // PyTorch's nn.ConvTranspose2d
+	"cat":             "concat",
+	"pixelshuffle":    "to-space", // PyTorch's nn.PixelShuffle
+	"pixel-shuffle":   "to-space",
+	"depthtospace":    "to-space", // ONNX's DepthToSpace
+	"depth-to-space":  "to-space",
+	"pixelunshuffle":  "to-channels", // PyTorch's nn.PixelUnshuffle
+	"pixel-unshuffle": "to-channels",
+	"spacetodepth":    "to-channels", // ONNX's SpaceToDepth
+	"space-to-depth":  "to-channels",
+	"slice":           "keep", // a slice of the first channels
+	"narrow":          "keep", // torch.narrow
 }
 
 // Suggest returns the candidate that s is most likely a slip for, or "":

@@ -17,6 +17,7 @@ package onnximport
 import (
 	"errors"
 	"fmt"
+	"slices"
 
 	"stackfit/engine/onnximport/onnxpb"
 
@@ -202,4 +203,11 @@ func (im *importer) input(g *onnxpb.Graph) (engine.Shape, string, error) {
 		return in, "", fmt.Errorf("%w: the graph has no data input", ErrImport)
 	}
 	return in, x, nil
+}
+
+// note adds a note for the user once, however many nodes give rise to it.
+func (im *importer) note(s string) {
+	if !slices.Contains(im.res.Notes, s) {
+		im.res.Notes = append(im.res.Notes, s)
+	}
 }

@@ -164,6 +164,30 @@ func (b *builder) layer(k int) (*item, string, error) {
 			return stop("%d groups", g)
 		}
 		l = engine.Layer{Kind: engine.KindShuffle, Groups: g}
+	case "DepthToSpace", "SpaceToDepth", "PixelUnshuffle":
+		// PixelUnshuffle: the one the rewrites found (not an ONNX
+		// operator: PyTorch's order).
+		r := attr(n, "blocksize").GetI()
+		if r < 1 || r > engine.MaxFactor {
+			return stop("blocksize %d", r)
+		}
+		l = engine.Layer{Kind: engine.KindToSpace, PixelFactor: r}
+		if op != "DepthToSpace" {
+			l.Kind = engine.KindToChannels
+		}
+		// PyTorch's order is CRD (channel c·r² + i·r + j); DepthToSpace's
+		// default DCR and SpaceToDepth take the r² offsets first (channel
+		// (i·r + j)·C + c): the same sizes and counts, another order.
+		if mode := attr(n, "mode"); op == "SpaceToDepth" || op == "DepthToSpace" && (mode == nil || string(mode.GetS()) != "CRD") {
+			b.im.note(op + " orders the channels offsets first (DCR); read as " + l.Kind.String() +
+				", which orders them as PyTorch does (CRD): the sizes and counts agree, the exported module's channel order differs")
+		}
+	case "Slice":
+		c, ok := b.keep(n)
+		if !ok {
+			return stop("only a slice of the first channels (axis 1, from 0, step 1, bounds given as constants) is read, as keep")
+		}
+		l = engine.Layer{Kind: engine.KindKeep, Keep: c}
 	case "Relu", "Sigmoid", "Tanh", "HardSwish", "Gelu":
 		a, _ := activation(n)
 		l = engine.Layer{Kind: engine.KindAct, Act: a}
@@ -366,4 +390,42 @@ func (b *builder) affineNorm(n *onnxpb.Node, l *engine.Layer, gamma, beta string
 	}
 	b.count(false, gamma, beta)
 	b.sawNorm = true
+}
+
+// keep reads a Slice node as the first channels of its input: one axis,
+// the channels (1, or −3 of a 4-D map), from 0 with step 1, its bounds
+// constants or initializers; the end is clamped to the channels, as
+// ONNX's Slice clamps it.
+func (b *builder) keep(n *onnxpb.Node) (int64, bool) {
+	ins := n.GetInput()
+	if len(ins) < 3 || len(ins) > 5 {
+		return 0, false
+	}
+	xs := b.g.shapes[ins[0]]
+	st, ok1 := b.im.intsOf(ins[1])
+	en, ok2 := b.im.intsOf(ins[2])
+	if !ok1 || !ok2 || len(st) != 1 || len(en) != 1 || len(xs) != 4 {
+		return 0, false
+	}
+	axis := int64(0)
+	if len(ins) > 3 && ins[3] != "" {
+		ax, ok := b.im.intsOf(ins[3])
+		if !ok || len(ax) != 1 {
+			return 0, false
+		}
+		axis = ax[0]
+	}
+	if a, ok := axisOf(axis, 4); !ok || a != 1 {
+		return 0, false
+	}
+	if len(ins) > 4 && ins[4] != "" {
+		if sp, ok := b.im.intsOf(ins[4]); !ok || len(sp) != 1 || sp[0] != 1 {
+			return 0, false
+		}
+	}
+	lo, hi := clampIndex(st[0], xs[1]), clampIndex(en[0], xs[1])
+	if lo != 0 || hi < 1 {
+		return 0, false
+	}
+	return hi, true
 }

@@ -21,6 +21,13 @@ import (
 //   - channel shuffle: Reshape(N, g, C/g, H, W) → Transpose(0, 2, 1, 3,
 //     4) → Reshape back becomes ChannelShuffle (not an ONNX operator: the
 //     stack's shuffle);
+//   - pixel shuffle and unshuffle (PyTorch's order, CRD): Reshape(N, C,
+//     r, r, H, W) → Transpose(0, 1, 4, 2, 5, 3) → Reshape(N, C, rH, rW)
+//     becomes DepthToSpace in mode CRD (PyTorch's export below opset 11),
+//     and Reshape(N, C, H/r, r, W/r, r) → Transpose(0, 1, 3, 5, 2, 4) →
+//     Reshape(N, C·r², H/r, W/r) becomes PixelUnshuffle (PyTorch's
+//     nn.PixelUnshuffle export at opsets 13 and 17; not an ONNX operator:
+//     the stack's to-channels);
 //   - Slices of one tensor along the channels into equal parts (a chunk)
 //     become one Split on axis 1 with an output per part, in order;
 //   - one or two Slices of the height and width that keep a centred
@@ -46,7 +53,7 @@ func (im *importer) rewrite(gr *graph, outputs map[string]bool) {
 			if r.dead[k] {
 				continue
 			}
-			if r.layerNorm(k) || r.groupNorm(k) || r.shuffle(k) || r.chunk(k) || r.crop(k) {
+			if r.layerNorm(k) || r.groupNorm(k) || r.shuffle(k) || r.pixels(k) || r.chunk(k) || r.crop(k) {
 				changed = true
 			}
 		}
@@ -292,6 +299,54 @@ func (r *rewriter) shuffle(k int) bool {
 	}
 	n := &onnxpb.Node{OpType: proto.String("ChannelShuffle"), Name: proto.String(r.gr.nodes[k].GetName()), Input: []string{x},
 		Output: []string{r.out(back)}, Attribute: []*onnxpb.Attribute{iattr("groups", s5[1])}}
+	r.replace([]int{k, t, back}, n, []string{x})
+	return true
+}
+
+// pixels matches the pixel shuffle or unshuffle written as Reshape to 6
+// dimensions, Transpose and Reshape back to 4, starting at Reshape k.
+func (r *rewriter) pixels(k int) bool {
+	if !r.is(k, "Reshape") {
+		return false
+	}
+	x := r.gr.data[k][0]
+	xs, s6 := r.gr.shapes[x], r.gr.shapes[r.out(k)]
+	if len(xs) != 4 || len(s6) != 6 || s6[0] != xs[0] {
+		return false
+	}
+	t := r.only(r.out(k))
+	if !r.is(t, "Transpose") {
+		return false
+	}
+	back := r.only(r.out(t))
+	if !r.is(back, "Reshape") {
+		return false
+	}
+	perm, ys := attr(r.gr.nodes[t], "perm").GetInts(), r.gr.shapes[r.out(back)]
+	if len(ys) != 4 || ys[0] != xs[0] {
+		return false
+	}
+	var op string
+	var bs int64
+	c := xs[1]
+	switch {
+	case slices.Equal(perm, []int64{0, 1, 4, 2, 5, 3}) && s6[2] == s6[3] && s6[2] >= 1 && c%(s6[2]*s6[3]) == 0 && c/(s6[2]*s6[3]) == s6[1] && s6[4] == xs[2] && s6[5] == xs[3] &&
+		ys[1] == s6[1] && ys[2] == xs[2]*s6[2] && ys[3] == xs[3]*s6[3]:
+		// (N, C·r², H, W) as (N, C, r, r, H, W) → (N, C, H, r, W, r).
+		op, bs = "DepthToSpace", s6[2]
+	case slices.Equal(perm, []int64{0, 1, 3, 5, 2, 4}) && s6[1] == c && s6[3] == s6[5] && s6[2]*s6[3] == xs[2] && s6[4]*s6[5] == xs[3] &&
+		s6[3] >= 1 && ys[1]%(s6[3]*s6[5]) == 0 && ys[1]/(s6[3]*s6[5]) == c && ys[2] == s6[2] && ys[3] == s6[4]:
+		// (N, C, H, W) as (N, C, H/r, r, W/r, r) → (N, C, r, r, H/r, W/r).
+		op, bs = "PixelUnshuffle", s6[3]
+	default:
+		return false
+	}
+	attrs := []*onnxpb.Attribute{iattr("blocksize", bs)}
+	if op == "DepthToSpace" {
+		attrs = append(attrs, &onnxpb.Attribute{Name: proto.String("mode"), Kind: proto.Int32(3), S: []byte("CRD")})
+	}
+	n := &onnxpb.Node{OpType: proto.String(op), Name: proto.String(r.gr.nodes[k].GetName()), Input: []string{x},
+		Output: []string{r.out(back)}, Attribute: attrs}
 	r.replace([]int{k, t, back}, n, []string{x})
 	return true
 }

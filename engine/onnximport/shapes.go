@@ -332,6 +332,22 @@ func (im *importer) infer(n *onnxpb.Node, shapeOf func(string) []int64, shapes m
 			sh[i] = parts[k]
 			set(o, sh)
 		}
+	case "DepthToSpace", "SpaceToDepth":
+		r := attr(n, "blocksize").GetI()
+		if len(x) != 4 || r < 1 || r > maxDim {
+			return
+		}
+		if op == "DepthToSpace" {
+			if x[1]%(r*r) != 0 {
+				return
+			}
+			set(out, []int64{x[0], x[1] / (r * r), x[2] * r, x[3] * r})
+			return
+		}
+		if x[2]%r != 0 || x[3]%r != 0 {
+			return
+		}
+		set(out, []int64{x[0], x[1] * r * r, x[2] / r, x[3] / r})
 	case "Pad":
 		p := attr(n, "pads").GetInts()
 		if p == nil {

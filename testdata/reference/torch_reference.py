@@ -128,6 +128,22 @@ class ChannelShuffle(nn.Module):
         return x.reshape(n, self.groups, c // self.groups, h, w).transpose(1, 2).reshape(n, c, h, w)
 
 
+class Keep(nn.Module):
+    """stackfit's keep: the first n channels, x[:, :n] (the Ghost module's
+    out[:, :oup], Han et al. 2020), a view of the input. Basic slicing
+    would keep all C channels of a narrower map without a word; stackfit
+    refuses n > C, and so does this form."""
+
+    def __init__(self, n):
+        super().__init__()
+        self.n = n
+
+    def forward(self, x):
+        if self.n > x.shape[1]:
+            raise ValueError(f"keep {self.n} of {x.shape[1]} channels")
+        return x[:, :self.n]
+
+
 def build(layer, c):
     """Returns the torch module for one stack-file layer on c input channels."""
     if "conv" in layer or "deconv" in layer:
@@ -189,6 +205,12 @@ def build(layer, c):
         return ChannelScale(c, 1.0 if layer == "scale" else layer["scale"])
     if "shuffle" in layer:
         return ChannelShuffle(layer["shuffle"])
+    if "to-space" in layer:
+        return nn.PixelShuffle(layer["to-space"])
+    if "to-channels" in layer:
+        return nn.PixelUnshuffle(layer["to-channels"])
+    if "keep" in layer:
+        return Keep(layer["keep"])
     if "dropout" in layer:
         return nn.Dropout(layer["dropout"])
     if layer == "flatten":
@@ -596,7 +618,7 @@ def maybe_pair(rng, lo, hi):
     return a if rng.random() < 0.6 else [a, rng.randint(lo, hi)]
 
 
-def random_layer(rng, c, kind):
+def random_layer(rng, c, kind, hw=None):
     if kind in ("conv", "deconv"):
         f = rng.choice([1, 3, 6, 8, 12, 16, 24, 30, 32])
         l = {kind: f, "kernel": maybe_pair(rng, 1, 7)}
@@ -672,25 +694,43 @@ def random_layer(rng, c, kind):
         if misfits and (not fits or rng.random() < 0.2):
             return {"shuffle": rng.choice(misfits)}  # PyTorch refuses it
         return {"shuffle": rng.choice(fits or [1])}
+    if kind == "to-space":
+        fits = [r for r in (2, 3) if c % (r * r) == 0]
+        if rng.random() < 0.15 or not fits and rng.random() < 0.3:
+            return {"to-space": rng.choice([2, 3])}  # refused unless r² divides c
+        return {"to-space": rng.choice(fits or [1])}
+    if kind == "to-channels":
+        h, w = hw or (0, 0)
+        fits = [r for r in (2, 3) if h % r == 0 and w % r == 0]
+        if rng.random() < 0.15 or not fits and rng.random() < 0.3:
+            return {"to-channels": rng.choice([2, 3])}  # refused unless r divides H and W
+        return {"to-channels": rng.choice(fits or [1])}
+    if kind == "keep":
+        if rng.random() < 0.1:
+            return {"keep": c + 1}  # refused
+        return {"keep": rng.randint(1, c)}
     raise ValueError(kind)
 
 
 KINDS = ["conv", "deconv", "pool", "global-pool", "pool-to", "upsample", "norm", "act",
-         "dropout", "flatten", "dense", "reshape", "scale", "shuffle", "block", "concat", "add", "gate", "fork"]
-SINGLE = 14  # KINDS[:SINGLE] are the kinds random_layer writes
+         "dropout", "flatten", "dense", "reshape", "scale", "shuffle", "block", "concat", "add", "gate", "fork",
+         "to-space", "to-channels", "keep"]
+SINGLE = 14  # KINDS[:SINGLE] are the kinds random_layer writes in the first generated cases
+REARRANGING = ["to-space", "to-channels", "keep"]  # random_layer writes these too, in cases of their own
+GENERATED_REARRANGING = 18
 FEATURES = ["fork copy", "fork split", "fork in a branch", "fork in a residual block", "named branch", "empty branch",
             "relative x-factor", "relative divisor", "round", "relative-to block", "per-position dense", "norm eps"]
 
 
-def generated(rng, n):
+def generated(rng, n, kinds=KINDS[:SINGLE], focused=KINDS[:SINGLE], label="generated"):
     for i in range(n):
         c, h, w = rng.choice([1, 3, 4, 6, 8, 16]), rng.randint(5, 67), rng.randint(5, 67)
         layers = []
         x = torch.zeros(1, c, h, w)
         # The first layers of each case favour one kind in turn, so every kind appears.
-        focus = KINDS[i % SINGLE]
+        focus = focused[i % len(focused)]
         for j in range(rng.randint(4, 12)):
-            kind = focus if j in (1, 3) else rng.choice(KINDS[:SINGLE])
+            kind = focus if j in (1, 3) else rng.choice(kinds)
             if kind in ("dense", "reshape") and rng.random() < 0.85:
                 layers.append("flatten")
                 x = x.reshape(1, -1, 1, 1)
@@ -704,7 +744,7 @@ def generated(rng, n):
                     tgt[0] += 1
                 layer = {"reshape": tgt}
             else:
-                layer = random_layer(rng, x.shape[1], kind)
+                layer = random_layer(rng, x.shape[1], kind, tuple(x.shape[2:]))
             layers.append(layer)
             try:
                 m = build(layer, x.shape[1]).eval()
@@ -714,7 +754,7 @@ def generated(rng, n):
                     break
             except Exception:
                 break  # the case ends on the layer PyTorch refuses
-        yield f"generated {i + 1:02d} ({focus})", [c, h, w], layers
+        yield f"{label} {i + 1:02d} ({focus})", [c, h, w], layers
 
 
 # ---- blocks and merges ----
@@ -1162,6 +1202,32 @@ def generated_forks(rng, n):
         yield f"generated fork {i + 1:02d}", inp, layers
 
 
+def rearranging_cases():
+    """A sub-pixel upsampler as Shi et al. 2016 lay it out (5×5 and 3×3
+    convolutions with tanh, the last to r²·C channels at the low
+    resolution, then the shuffle; r = 3, one channel), its mirror that
+    moves space into channels first, and a stage of Ghost modules (Han et
+    al. 2020: a 1×1 primary convolution to ⌈oup/s⌉ channels with batch norm
+    and ReLU, a cheap 3×3 depthwise one on it, both joined, the first oup
+    kept), written with a fork whose first branch is the map itself."""
+    def ghost(oup, s, relu=True):
+        init = -(-oup // s)
+        act = [{"act": "relu"}] if relu else []
+        cheap = [{"conv": init * (s - 1), "kernel": 3, "pad": 1, "groups": "depthwise", "bias": False},
+                 {"norm": "batch"}] + act
+        return [{"conv": init, "kernel": 1, "bias": False}, {"norm": "batch"}] + act + \
+            [{"fork": "copy", "branches": [[], cheap]}, {"keep": oup}]
+    yield "sub-pixel upsampler r3", [1, 17, 17], [
+        {"conv": 64, "kernel": 5, "pad": 2}, {"act": "tanh"},
+        {"conv": 32, "kernel": 3, "pad": 1}, {"act": "tanh"},
+        {"conv": 9, "kernel": 3, "pad": 1}, {"to-space": 3}]
+    yield "space to channels first", [3, 24, 20], [
+        {"to-channels": 2}, {"conv": 16, "kernel": 3, "pad": 1}, {"norm": "batch"}, {"act": "relu"},
+        {"conv": 48, "kernel": 3, "pad": 1}, {"to-space": 2}, {"keep": 5}, {"conv": 4, "kernel": 1}]
+    yield "ghost modules", [16, 20, 20], ghost(16, 2) + ghost(16, 3) + ghost(24, 3, relu=False) + \
+        [{"block": 1, "residual": True, "layers": ghost(13, 4) + ghost(24, 3, relu=False)}]
+
+
 def check_forms():
     """The script's own forms against PyTorch's: the shuffle equals
     nn.ChannelShuffle, the hard activations their definitions (Howard et al.
@@ -1173,6 +1239,23 @@ def check_forms():
     r6 = torch.clamp(x + 3, 0, 6) / 6
     if not (torch.allclose(nn.Hardswish()(x), x * r6) and torch.allclose(nn.Hardsigmoid()(x), r6)):
         sys.exit("hard-swish or hard-sigmoid differs from its definition")
+    # nn.PixelShuffle's channel order, c·r² + i·r + j for output channel c
+    # at offset (i, j) of each r×r block (the order the engine's explain
+    # line states, and the one PyTorch's documentation gives through its
+    # shapes); Shi et al. 2016's periodic shuffling orders the r² offsets
+    # with c fastest (from memory), a fixed permutation of the last
+    # convolution's filters that changes no count. nn.PixelUnshuffle
+    # undoes it.
+    r, c = 3, 2
+    t = torch.randn(1, c * r * r, 4, 5)
+    y = nn.PixelShuffle(r)(t)
+    for ch in range(c):
+        for i in range(r):
+            for j in range(r):
+                if not torch.equal(y[0, ch, i::r, j::r], t[0, ch * r * r + i * r + j]):
+                    sys.exit("nn.PixelShuffle's channel order differs from c·r² + i·r + j")
+    if not torch.equal(nn.PixelUnshuffle(r)(y), t):
+        sys.exit("nn.PixelUnshuffle does not undo nn.PixelShuffle")
 
 
 def main():
@@ -1184,6 +1267,9 @@ def main():
     every = list(published()) + list(generated(rng, GENERATED)) + list(block_cases(rng))
     every += list(fork_cases()) + list(generated_forks(frng, GENERATED_FORKS))
     every += list(published_files())
+    # Cases of their own, so that the cases above stay as they were.
+    every += list(rearranging_cases())
+    every += list(generated(random.Random(SEED + 2), GENERATED_REARRANGING, KINDS[:SINGLE] + REARRANGING, REARRANGING, "rearranged"))
     for name, inp, layers in every:
         stack = {"stackfit": 1, "name": name, "input": inp, "layers": layers}
         rows, error_at, message = run(stack)

@@ -103,6 +103,10 @@ func newLayer(k engine.Kind, c int64) engine.Layer {
 		return engine.Layer{Kind: k, ScaleInit: 1e-6} // layer scale's usual start (Liu et al. 2022)
 	case engine.KindShuffle:
 		return engine.Layer{Kind: k, Groups: 2}
+	case engine.KindToSpace, engine.KindToChannels:
+		return engine.Layer{Kind: k, PixelFactor: 2}
+	case engine.KindKeep:
+		return engine.Layer{Kind: k, Keep: max(c/2, 1)}
 	case engine.KindBlock:
 		return engine.Layer{Kind: k, Repeat: 1}
 	}
