@@ -74,6 +74,9 @@ const (
 	ErrToSpaceChannels                 // channels not a multiple of the to-space factor squared
 	ErrToChannelsSize                  // height or width not a multiple of the to-channels factor
 	ErrKeepChannels                    // keep asks for more channels than the input has
+	ErrJoinShape                       // an additive fork's branches end in different shapes
+	ErrBranchFrom                      // a branch starts from a name no earlier output has
+	ErrBranchFromSplit                 // a branch of a split fork starts from a named output
 )
 
 // codeNames are the diagnostics' stable names: the words a stack file's
@@ -120,6 +123,9 @@ var codeNames = [...]string{
 	ErrToSpaceChannels: "to-space-channels",
 	ErrToChannelsSize:  "to-channels-size",
 	ErrKeepChannels:    "keep-channels",
+	ErrJoinShape:       "join-add-shape",
+	ErrBranchFrom:      "branch-from-unknown",
+	ErrBranchFromSplit: "branch-from-split",
 }
 
 // Name returns the code's stable name, e.g. "small-receptive-field"; ""
@@ -277,6 +283,21 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("channels %d is more than the %d input channels; keep at most %d, or widen the layer before to %d", d.A, d.B, d.B, d.A)
 	case WarnForkOne:
 		return "the fork has one branch, so it joins nothing; add a branch (an empty one passes the map on), or drop the fork"
+	case ErrJoinShape:
+		if d.Field == "channels" {
+			return fmt.Sprintf("branch %d ends in %d channels but branch 1 in %d; join: add sums the branches, so their channels must be equal — end the branch with a 1×1 conv of %d filters, or use join: concat", d.E, d.A, d.B, d.B)
+		}
+		return fmt.Sprintf("branch %d ends in %d×%d but branch 1 in %d×%d; join: add sums the branches, so their sizes must be equal — make their strides agree, or pool or upsample one of them", d.E, d.A, d.B, d.C, d.D)
+	case ErrBranchFrom:
+		switch {
+		case d.Hint != "":
+			return fmt.Sprintf("branch %d starts from %q, but no earlier layer or block has that name; did you mean %q?", d.E, d.Name, d.Hint)
+		case d.A == 1:
+			return fmt.Sprintf("branch %d starts from %q, which comes later in the stack; a branch can only start from an earlier output", d.E, d.Name)
+		}
+		return fmt.Sprintf("branch %d starts from %q, but no layer or block has that name; name the output it should read with name: %s", d.E, d.Name, d.Name)
+	case ErrBranchFromSplit:
+		return fmt.Sprintf("branch %d starts from %q, but a split fork's branches each read their share of the fork's input; use input: copy, or drop from:", d.E, d.Name)
 	case ErrValue:
 		return fmt.Sprintf("%s is %d; it must be at least %d", d.Field, d.A, d.B)
 	case WarnStrideDrop:

@@ -39,6 +39,6 @@ func (l *Layer) EqualFields(o *Layer) bool {
 		l.Target == o.Target && l.Repeat == o.Repeat && l.AllStrides == o.AllStrides && l.Residual == o.Residual &&
 		l.NoShortcutNorm == o.NoShortcutNorm && l.PostAct == o.PostAct && l.HasPostAct == o.HasPostAct &&
 		l.IdentityOnly == o.IdentityOnly && same(l.DropPath, o.DropPath) && l.DenseLinks == o.DenseLinks &&
-		l.Split == o.Split && l.From == o.From && l.Crop == o.Crop && l.First == o.First && l.RelBlock == o.RelBlock &&
+		l.Split == o.Split && l.JoinAdd == o.JoinAdd && l.From == o.From && l.Crop == o.Crop && l.First == o.First && l.RelBlock == o.RelBlock &&
 		l.RoundTo == o.RoundTo && same(l.ScaleInit, o.ScaleInit) && l.PixelFactor == o.PixelFactor && l.Keep == o.Keep && l.Name == o.Name && l.Note == o.Note
 }

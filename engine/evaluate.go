@@ -109,18 +109,20 @@ type Result struct {
 	taps  map[string]tap // named outputs seen so far
 	synth synthPool      // layers residual blocks add, reused between evaluations
 
-	top       flow                     // the stack's own flow
-	gates     [MaxBlockDepth + 1]flow  // each open gate's flow, by depth
-	other     flow                     // the gate a multiplication row applies
-	shortcut  flow                     // the shortcut's output, for the residual addition row
-	forkIn    [MaxBlockDepth + 1]flow  // each open fork's input, by depth
-	joined    [MaxBlockDepth + 1]flow  // each open fork's branches joined so far
-	branch    [MaxBlockDepth + 1]flow  // the flow of each open fork's current branch
-	ref       [MaxBlockDepth + 1]int64 // input channels of each open body (relative widths)
-	blockRef  [MaxBlockDepth + 1]int64 // input channels of each open block repeat
-	forkCheck forkCheck                // what the join row being computed reports
-	fixed     fixedLayers              // layers residual blocks add that never change
-	calc      calc                     // the per-row calculator, reused
+	top       flow                          // the stack's own flow
+	gates     [MaxBlockDepth + 1]flow       // each open gate's flow, by depth
+	other     flow                          // the gate a multiplication row applies
+	shortcut  flow                          // the shortcut's output, for the residual addition row
+	forkIn    [MaxBlockDepth + 1]flow       // each open fork's input, by depth
+	joined    [MaxBlockDepth + 1]flow       // each open fork's branches joined so far
+	branch    [MaxBlockDepth + 1]flow       // the flow of each open fork's current branch
+	ref       [MaxBlockDepth + 1]int64      // input channels of each open body (relative widths)
+	blockRef  [MaxBlockDepth + 1]int64      // input channels of each open block repeat
+	forkCheck forkCheck                     // what the join row being computed reports
+	pending   [MaxBlockDepth + 1][]joinRead // each open fork's branch outputs so far
+	joins     []joinRead                    // every join row's branch outputs, in row order
+	fixed     fixedLayers                   // layers residual blocks add that never change
+	calc      calc                          // the per-row calculator, reused
 }
 
 // MaxRows bounds how many rows a stack may expand to (repeats multiply).
@@ -156,6 +158,7 @@ type tally struct {
 func (r *Result) Evaluate(s *Stack) {
 	r.Rows = r.Rows[:0]
 	r.Diags = r.Diags[:0]
+	r.joins = r.joins[:0]
 	r.Totals = Totals{}
 	r.Errors, r.Warnings, r.Notes = 0, 0, 0
 	r.Input = s.Input

@@ -236,3 +236,35 @@ func TestTooManyRowsStatesSize(t *testing.T) {
 		t.Errorf("message %q does not state the 1024·1024·2 = 2,097,152 rows", msg)
 	}
 }
+
+// TestJoinWork checks the time estimate's work of a fork's join: an
+// additive join of n branches does n − 1 additions per output element and
+// reads every branch's output once (element-wise, as torch's add is); a
+// concatenating join counts none, as before. The export writes the sum
+// or the concatenation (PyTorch's + and torch.cat).
+func TestJoinWork(t *testing.T) {
+	b := func() Layer {
+		return Layer{Kind: KindBranch, Body: []Layer{{Kind: KindConv, Filters: 4, Kernel: Square(1)}}}
+	}
+	for _, c := range []struct {
+		add         bool
+		flops, read float64
+		expr        string
+	}{
+		{true, 2 * 4 * 8 * 8, 3 * 4 * 8 * 8, "b1 + b2 + b3"},
+		{false, 0, 0, "torch.cat([b1, b2, b3], 1)"},
+	} {
+		fork := Layer{Kind: KindFork, JoinAdd: c.add, Body: []Layer{b(), b(), b()}}
+		r := Evaluate(&Stack{Input: Shape{3, 8, 8}, Layers: []Layer{fork}})
+		if r.Errors != 0 {
+			t.Fatal(r.Diags)
+		}
+		w := rowWork(&r.Rows[len(r.Rows)-1])
+		if w.FwdFLOPs != c.flops || w.FwdRead != c.read {
+			t.Errorf("join add=%v: %g FLOPs reading %g values, want %g and %g", c.add, w.FwdFLOPs, w.FwdRead, c.flops, c.read)
+		}
+		if got := JoinExpr(&fork, []string{"b1", "b2", "b3"}); got != c.expr {
+			t.Errorf("join add=%v: %q, want %q", c.add, got, c.expr)
+		}
+	}
+}

@@ -63,7 +63,7 @@ func FuzzFields(f *testing.F) {
 // FuzzParseQuick reads arbitrary quick-entry lines: no panic, errors wrap
 // ErrQuick, and an accepted line's summary reads back as the same layer.
 func FuzzParseQuick(f *testing.F) {
-	for _, s := range []string{"conv 64 k3 s2 p1", "pool max k3 s2 ceil", "act leaky-relu 0.2", "block 2 residual then relu", "concat a crop", "dense", "reshape 1x1x1", "conv 1 k1 @x", "block 3 residual identity dp0.1 then relu6", "gate channel", "act relu6", "scale 1e-6", "shuffle g3", "act hard-sigmoid", "fork split", "fork copy @f", "branch", "conv x6 k1 round8 of-block", "conv /4 k1", "dense x0.25 per-position", "norm layer eps1e-06"} {
+	for _, s := range []string{"conv 64 k3 s2 p1", "pool max k3 s2 ceil", "act leaky-relu 0.2", "block 2 residual then relu", "concat a crop", "dense", "reshape 1x1x1", "conv 1 k1 @x", "block 3 residual identity dp0.1 then relu6", "gate channel", "act relu6", "scale 1e-6", "shuffle g3", "act hard-sigmoid", "fork split", "fork copy @f", "fork copy add", "branch", "branch from:Lat3", "branch FROM:x", "conv x6 k1 round8 of-block", "conv /4 k1", "dense x0.25 per-position", "norm layer eps1e-06"} {
 		f.Add(s)
 	}
 	f.Fuzz(func(t *testing.T, s string) {
@@ -130,6 +130,12 @@ func stackFromBytes(data []byte) *Stack {
 			case KindKeep:
 				l.Keep = wide()
 			}
+			if k == KindFork {
+				l.JoinAdd = next()%2 == 0
+			}
+			if k == KindBranch && next()%2 == 0 {
+				l.From = "" // from the fork's input
+			}
 			if next()%3 == 0 {
 				l.Name = names[next()%3]
 			}
@@ -178,6 +184,7 @@ func FuzzEvaluate(f *testing.F) {
 	f.Add([]byte{3, 1, 5, 2, 64, 3, 3, 1, 1, 1, 1})
 	f.Add([]byte{0, 0, 0, 1, 13, 2, 2, 2, 2})
 	f.Add([]byte("a long seed that makes blocks, merges and absurd sizes appear"))
+	f.Add([]byte{1, 4, 8, 8, 4, 20, 2, 20, 1, 1, 2, 20, 1, 0, 3, 20, 0, 1, 5})
 	f.Fuzz(func(t *testing.T, data []byte) {
 		s := stackFromBytes(data)
 		r := Evaluate(s)

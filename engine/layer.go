@@ -24,7 +24,7 @@ const (
 	KindGate            // the map scaled per channel by a gate its body computes from it
 	KindScale           // a learnable factor per channel (layer scale)
 	KindShuffle         // channel shuffle across groups
-	KindFork            // parallel branches from one map, joined along the channels
+	KindFork            // parallel branches from one map, joined along the channels or added
 	KindBranch          // one branch of a fork: a list of layers (empty: the map itself)
 	KindToSpace         // channels moved into space: C·r²×H×W → C×rH×rW (pixel shuffle)
 	KindToChannels      // space moved into channels: C×H×W → C·r²×H/r×W/r (pixel unshuffle)
@@ -229,8 +229,13 @@ type Layer struct {
 	// fork: each branch reads an equal share of the channels instead of
 	// the whole map (channel split).
 	Split bool
+	// fork: the branches' outputs are added instead of concatenated
+	// (their shapes must then be equal).
+	JoinAdd bool
 
-	// concat, add: name of the earlier layer or block whose output is merged.
+	// concat, add: name of the earlier layer or block whose output is
+	// merged. branch: the named earlier output the branch starts from
+	// instead of the fork's input ("": the fork's input).
 	From string
 	// concat, add: center-crop the larger map to the smaller one's size.
 	Crop bool

@@ -79,6 +79,7 @@ type Param struct {
 	// Required fields must be given (when they apply); the stack file
 	// always writes them.
 	Required bool
+	// An Optional TRef accepts empty text: no name (a branch's from).
 	// Optional main values may be left out of quick entry (and a Bare
 	// kind's main value out of a stack file): they take Default.
 	Optional bool
@@ -199,7 +200,7 @@ func (p *Param) Parse(s string) (Value, error) {
 	case TWidth:
 		v, err = parseWidth(p.Key, s, p.Hi)
 	case TRef:
-		if !ValidName(t) {
+		if !ValidName(t) && !(t == "" && p.Optional) {
 			err = &FieldError{p.Key, s, ""}
 		}
 		v.Text = t

@@ -69,7 +69,7 @@ func ParseQuick(line string) (Layer, error) {
 			l.Name = name
 			continue
 		}
-		j, err := sp.quickOption(&l, t)
+		j, err := sp.quickOption(&l, t, origRest[i])
 		if err != nil {
 			return Layer{}, err
 		}
@@ -110,9 +110,10 @@ func (p *Param) takesQuick(tok string) bool {
 }
 
 // quickOption applies one option token such as "k3", "same" or "nobias"
-// and returns the index of the field it set. Words are tried before
+// (orig: the token as typed, for names) and returns the index of the
+// field it set. Words are tried before
 // prefixes, so that "same" is not read as a stride.
-func (s *Spec) quickOption(l *Layer, t string) (int, error) {
+func (s *Spec) quickOption(l *Layer, t, orig string) (int, error) {
 	for i := range s.Params {
 		p := &s.Params[i]
 		if v, ok := p.quickWord(t); ok {
@@ -142,7 +143,16 @@ func (s *Spec) quickOption(l *Layer, t string) (int, error) {
 		return 0, fmt.Errorf("%w: %q does not apply to %s; see the help (?) for its options", ErrQuick, t, s.Key)
 	}
 	p := &s.Params[best]
-	v, err := p.Parse(strings.TrimPrefix(t, p.Quick))
+	text := strings.TrimPrefix(t, p.Quick)
+	if p.Type == TRef {
+		// Names keep their case: the prefix is matched without it.
+		n := len(p.Quick)
+		if len(orig) < n || !strings.EqualFold(orig[:n], p.Quick) || !ValidName(orig[n:]) {
+			return 0, fmt.Errorf("%w: %q is not %s followed by a layer name", ErrQuick, orig, p.Quick)
+		}
+		text = orig[n:]
+	}
+	v, err := p.Parse(text)
 	if err != nil {
 		return 0, fmt.Errorf("%w: %v", ErrQuick, err)
 	}

@@ -10,7 +10,7 @@ import (
 // without one, or two codes sharing one, would break that.
 func TestCodeNames(t *testing.T) {
 	seen := map[string]Code{}
-	for c := ErrOutputSize; c <= WarnForkOne; c++ {
+	for c := ErrOutputSize; c <= ErrBranchFromSplit; c++ {
 		n := c.Name()
 		if n == "" {
 			t.Errorf("code %d has no name", c)

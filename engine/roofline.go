@@ -81,6 +81,8 @@ type Work struct {
 func rowWork(row *Row) Work {
 	s := SpecOf(row.Layer.Kind)
 	switch {
+	case row.Role == RoleJoin && s.work != nil:
+		return s.work(row) // a fork's join: the fork's rule
 	case s.Body || s.Branches || row.Layer.Kind == KindBranch || s.View:
 		return Work{}
 	case s.work != nil:

@@ -55,6 +55,7 @@ type stepScratch struct {
 	// again and keeps what it normally would, recompute[end] bytes,
 	// released once the segment's first row is done (release[first]).
 	ckpt      bool
+	jn        int     // the next of Result.joins that note reads
 	recompute []int64 // row → bytes a segment ending here keeps when recomputed
 	release   []int64 // row → bytes released after the backward of a segment starting here
 }
@@ -73,6 +74,7 @@ const (
 	srGrad                 // its input needs a gradient
 	srOtherG               // its second input needs one
 	srPasses               // an addition or concatenation: passes views of its gradient on
+	srJoin                 // a fork's join: reads its branches' outputs (Result.joins)
 )
 
 func (st *stepScratch) reset(n int, ckpt bool) {
@@ -103,7 +105,7 @@ func (st *stepScratch) reset(n int, ckpt bool) {
 		st.dLive = make([]int64, n+1)
 	}
 	st.dLive = st.dLive[:n+1]
-	st.ckpt = ckpt
+	st.ckpt, st.jn = ckpt, 0
 	if ckpt {
 		if cap(st.recompute) < n {
 			st.recompute, st.release = make([]int64, n), make([]int64, n)
@@ -219,6 +221,7 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 	if live > peak.bytes {
 		peak = stepPeak{bytes: live, phase: PhaseBackward, row: int(last), infer: inferPeak}
 	}
+	jc := len(r.joins) // the joins' branch outputs, walked back with the rows
 	for i := int(last); i >= 0; i-- {
 		p := &rows[i]
 		if p.flags&srOK == 0 || p.flags&srBackward == 0 {
@@ -238,6 +241,17 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 			live -= size[out+1]
 		}
 		transient := int64(0)
+		if p.flags&srJoin != 0 {
+			// A join passes its output's gradient to every branch.
+			for jc > 0 && r.joins[jc-1].row > int32(i) {
+				jc--
+			}
+			for ; jc > 0 && r.joins[jc-1].row == int32(i); jc-- {
+				if j := r.joins[jc-1]; j.grad {
+					live, transient = st.gradInput(j.store, n, live, transient)
+				}
+			}
+		}
 		for j, s := range [2]int32{p.in, p.other} {
 			needed := p.flags&srGrad != 0
 			if j == 1 {
@@ -246,12 +260,7 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 			if !needed || uint32(s+1) > n || view && s == p.in {
 				continue
 			}
-			if st.gradLive[s+1] {
-				transient = max(transient, size[s+1]) // added into the buffer there
-				continue
-			}
-			st.gradLive[s+1] = true
-			live = live + size[s+1]
+			live, transient = st.gradInput(s, n, live, transient)
 		}
 		if at := live + transient; at > peak.bytes {
 			peak = stepPeak{bytes: at, phase: PhaseBackward, row: i, infer: inferPeak}
@@ -267,6 +276,20 @@ func (r *Result) simulateStep(st *stepScratch, e int64, ov *bool) stepPeak {
 		}
 	}
 	return peak
+}
+
+// gradInput makes the gradient of storage s exist at a row's backward:
+// a new buffer, or, where one exists, a transient added into it. It
+// returns the live bytes and the largest transient so far.
+func (st *stepScratch) gradInput(s int32, n uint32, live, transient int64) (int64, int64) {
+	if uint32(s+1) > n {
+		return live, transient
+	}
+	if st.gradLive[s+1] {
+		return live, max(transient, st.size[s+1]) // added into the buffer there
+	}
+	st.gradLive[s+1] = true
+	return live + st.size[s+1], transient
 }
 
 // note packs row i and records its output size and its reads, as
@@ -288,7 +311,7 @@ func (st *stepScratch) note(r *Result, i int, e int64, ov *bool) {
 		return
 	}
 	p.flags = srOK
-	if readsOther(row) {
+	if readsOther(row) && row.Role != RoleJoin {
 		p.other = row.OtherStore
 		if row.OtherGrad {
 			p.flags |= srOtherG
@@ -297,8 +320,22 @@ func (st *stepScratch) note(r *Result, i int, e int64, ov *bool) {
 	if row.Grad || row.OtherGrad || row.Params > 0 {
 		p.flags |= srBackward
 	}
-	if row.Grad {
+	if row.Grad && row.Role != RoleJoin {
 		p.flags |= srGrad
+	}
+	if row.Role == RoleJoin {
+		// A join reads its branches' outputs (each alive until here, each
+		// given a gradient here), not the fork's input: that the branches
+		// read.
+		p.in, p.flags = -3, p.flags|srJoin
+		for st.jn < len(r.joins) && r.joins[st.jn].row < int32(i) {
+			st.jn++
+		}
+		for k := st.jn; k < len(r.joins) && r.joins[k].row == int32(i); k++ {
+			if s := r.joins[k].store; uint32(s+1) <= uint32(len(r.Rows)) {
+				st.lastUse[s+1] = max(st.lastUse[s+1], int32(i))
+			}
+		}
 	}
 	if row.Role == RoleResidual || row.Role == RoleJoin || row.Role == RoleDenseCat || row.Layer.Kind == KindAdd || row.Layer.Kind == KindConcat {
 		p.flags |= srPasses

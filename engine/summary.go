@@ -102,6 +102,9 @@ func RowSummary(r *Row) string {
 	if r.Role == RoleDenseCat {
 		return "concat repeat input"
 	}
+	if r.Role == RoleJoin && r.Layer.JoinAdd {
+		return "add " + strconv.Itoa(len(r.Layer.Body)) + " branches"
+	}
 	if r.Role == RoleJoin {
 		return "join " + strconv.Itoa(len(r.Layer.Body)) + " branches"
 	}

@@ -463,8 +463,9 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 	}
 }
 
-// fork emits a fork: each branch from the saved input (or its share of the
-// channels), then the concatenation of the branches' outputs.
+// fork emits a fork: each branch from the saved input (its share of the
+// channels, or the named output it starts from), then the join of the
+// branches' outputs (their concatenation or their sum).
 func (g *gen) fork(l *engine.Layer, p engine.Path) {
 	base := strings.TrimPrefix(ident(p), "l")
 	in := "f" + base
@@ -477,7 +478,19 @@ func (g *gen) fork(l *engine.Layer, p engine.Path) {
 			return
 		}
 		src := in
-		if l.Split {
+		switch {
+		case br.From != "":
+			// A branch from a named earlier output reads its variable.
+			if g.phase == phaseCheck {
+				g.read[br.From] = true
+			}
+			v, ok := g.taps[br.From]
+			if !ok {
+				g.fail("branch %s starts from an unknown output", p.Append(b+1))
+				return
+			}
+			src = v
+		case l.Split:
 			src = fmt.Sprintf("%s.chunk(%d, 1)[%d]", in, len(l.Body), b)
 		}
 		g.fwdLine("x = " + src)
@@ -492,7 +505,7 @@ func (g *gen) fork(l *engine.Layer, p engine.Path) {
 		return
 	}
 	g.next++
-	g.fwdLine("x = torch.cat([" + strings.Join(outs, ", ") + "], 1)")
+	g.fwdLine("x = " + engine.JoinExpr(l, outs))
 }
 
 // residual emits the shortcut rows, the addition and the activation that

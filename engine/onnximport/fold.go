@@ -66,7 +66,8 @@ func layersOf(its []*item, m map[*engine.Layer]*item, tmp map[*item]string) []en
 		switch l.Kind {
 		case engine.KindBlock, engine.KindGate, engine.KindFork, engine.KindBranch:
 			l.Body = layersOf(it.kids, m, tmp)
-		case engine.KindConcat:
+		}
+		if it.from != nil { // a named concatenation, or a branch from a named output
 			l.From = tmp[it.from]
 		}
 		l.Name = tmp[it]
@@ -146,9 +147,9 @@ func (f *folder) match(a, b *item) bool {
 		}
 		return f.matchList(a.kids, b.kids)
 	case engine.KindGate, engine.KindBranch:
-		return f.matchList(a.kids, b.kids)
+		return a.from == nil && b.from == nil && f.matchList(a.kids, b.kids)
 	case engine.KindFork:
-		return x.Split == y.Split && f.matchList(a.kids, b.kids)
+		return x.Split == y.Split && x.JoinAdd == y.JoinAdd && f.matchList(a.kids, b.kids)
 	}
 	if x.Kind.IsMerge() {
 		return false
@@ -403,7 +404,7 @@ func structured(its []*item) bool {
 // hasMerge reports whether a merge by name is among its.
 func hasMerge(its []*item) bool {
 	for _, it := range its {
-		if it.l.Kind.IsMerge() || it.tap || hasMerge(it.kids) {
+		if it.l.Kind.IsMerge() || it.tap || it.from != nil || hasMerge(it.kids) {
 			return true
 		}
 	}

@@ -116,7 +116,8 @@ func build(it *item) engine.Layer {
 	switch l.Kind {
 	case engine.KindBlock, engine.KindGate, engine.KindFork, engine.KindBranch:
 		l.Body = buildAll(it.kids)
-	case engine.KindConcat:
+	}
+	if it.from != nil { // a named concatenation, or a branch from a named output
 		l.From = it.from.l.Name
 	}
 	return l

@@ -20,6 +20,14 @@ func constNode(out string, v float32) *onnxpb.Node {
 	return n
 }
 
+// floatConst is a Constant node holding float values.
+func floatConst(out string, v ...float32) *onnxpb.Node {
+	n := node("Constant", out, nil, out)
+	t := &onnxpb.Tensor{Name: proto.String(out), Dims: []int64{int64(len(v))}, ElemType: proto.Int32(elemFloat), FloatData: v}
+	n.Attribute = []*onnxpb.Attribute{{Name: proto.String("value"), Kind: proto.Int32(4), T: t}}
+	return n
+}
+
 // intConst is a Constant node holding int64 values (a shape vector).
 func intConst(out string, v ...int64) *onnxpb.Node {
 	n := node("Constant", out, nil, out)
@@ -161,6 +169,15 @@ func TestRewrites(t *testing.T) {
 			valued: []*onnxpb.Tensor{{Name: proto.String("scales"), Dims: []int64{4}, ElemType: proto.Int32(elemFloat), FloatData: []float32{1, 1, 2, 2}}},
 			nodes:  []*onnxpb.Node{node("Resize", "/u/Resize", []string{"x", "", "scales"}, "y")},
 			want:   []engine.Layer{{Kind: engine.KindUpsample, Factor: engine.Square(2)}},
+		},
+		{
+			// torch 1.13's export of F.interpolate(x, scale_factor=2.0):
+			// the scales are a Concat of two Constants, [1, 1] and [2, 2].
+			name: "Resize with scales joined from constants is upsampling (PyTorch's F.interpolate(scale_factor=2.0))",
+			nodes: []*onnxpb.Node{floatConst("k1", 1, 1), floatConst("k2", 2, 2),
+				node("Concat", "/Concat", []string{"k1", "k2"}, "scales", &onnxpb.Attribute{Name: proto.String("axis"), Kind: proto.Int32(2), I: proto.Int64(0)}),
+				node("Resize", "/u/Resize", []string{"x", "", "scales"}, "y")},
+			want: []engine.Layer{{Kind: engine.KindUpsample, Factor: engine.Square(2)}},
 		},
 	}
 	for _, c := range cases {

@@ -22,7 +22,7 @@ type item struct {
 	// projection: a residual block whose shortcut is a 1×1 convolution.
 	projection bool
 	tap        bool  // a merge reads its output by name
-	from       *item // a named concatenation: the item whose output it joins
+	from       *item // a named concatenation: the item whose output it joins; a branch: the one it starts from
 	span       span  // a branch: the concatenation's inputs it fills
 }
 
@@ -186,6 +186,7 @@ func (b *builder) residual(t string, j int, direct bool, others []int, depth int
 		unit.kids = body
 	} else {
 		var paths [2][]*item
+		var ends [2]string
 		for i, c := range others {
 			p, out, err := b.seq(t, c, j, depth+1)
 			if err != nil {
@@ -194,7 +195,13 @@ func (b *builder) residual(t string, j int, direct bool, others []int, depth int
 			if !b.g.reads(j, out) || out == t {
 				return nil, t, b.stop(j, "its two inputs are not a body and a shortcut from one map")
 			}
-			paths[i] = p
+			paths[i], ends[i] = p, out
+		}
+		if ends[0] == ends[1] {
+			return nil, t, b.stop(j, "it adds a map to itself")
+		}
+		if its, out, ok := b.topDown(t, j, paths, ends); ok {
+			return its, out, nil
 		}
 		// The shortcut is the path that is one 1×1 convolution (and its
 		// norm); torch's residual blocks add it second.
@@ -205,7 +212,9 @@ func (b *builder) residual(t string, j int, direct bool, others []int, depth int
 			}
 		}
 		if sc < 0 {
-			return nil, t, b.stop(j, "neither path into the addition is a projection shortcut (a 1×1 convolution with batch norm, or with a bias and no norm), the one shortcut a residual block adds")
+			// Two computed paths of any other kind: a fork whose branches
+			// are added (ResNet-D's average-pooling shortcut).
+			return b.addFork(j, paths, ends), b.joinOut(j), nil
 		}
 		p := paths[sc]
 		if len(p) == 2 && !p[0].l.NoBias || len(p) == 1 && p[0].l.NoBias {
@@ -230,6 +239,59 @@ func (b *builder) residual(t string, j int, direct bool, others []int, depth int
 	unit.out = out
 	b.itemOf[out] = unit
 	return []*item{unit}, out, nil
+}
+
+// joinOut is the tensor a join node computes.
+func (b *builder) joinOut(j int) string { return b.g.nodes[j].GetOutput()[0] }
+
+// addFork reads an addition of two paths from one map as a fork with
+// join: add, its branches in the addition's order.
+func (b *builder) addFork(j int, paths [2][]*item, ends [2]string) []*item {
+	order := [2]int{0, 1}
+	if b.g.data[j][0] == ends[1] {
+		order = [2]int{1, 0}
+	}
+	fork := &item{l: engine.Layer{Kind: engine.KindFork, JoinAdd: true}, nodes: []int{j}, out: b.joinOut(j)}
+	for _, i := range order {
+		fork.kids = append(fork.kids, &item{l: engine.Layer{Kind: engine.KindBranch}, kids: paths[i]})
+	}
+	b.mark(j)
+	b.itemOf[fork.out] = fork
+	return []*item{fork}
+}
+
+// topDown reads an addition of a path that goes down from map t and comes
+// back up to its size with a path that does not (a feature pyramid's
+// top-down merge, Lin et al. 2017: the upsampled coarse map plus a
+// lateral 1×1 convolution of t), written flat as a named output would be
+// by hand: the path, then a fork with join: add whose branches are the
+// flow itself and the other path from t by name; a deep pyramid so stays
+// within the nesting limit. ok is false where the pattern does not fit.
+func (b *builder) topDown(t string, j int, paths [2][]*item, ends [2]string) ([]*item, string, bool) {
+	ts, os := b.g.shapes[t], b.g.shapes[b.joinOut(j)]
+	src := b.itemOf[t]
+	if src == nil || len(ts) != 4 || len(os) != 4 || ts[2] != os[2] || ts[3] != os[3] {
+		return nil, "", false
+	}
+	down := -1
+	for i := range paths {
+		if b.goesDown(t, paths[i]) && !b.goesDown(t, paths[1-i]) {
+			down = i
+		}
+	}
+	if down < 0 {
+		return nil, "", false
+	}
+	src.tap = true
+	flow := &item{l: engine.Layer{Kind: engine.KindBranch}}
+	lateral := &item{l: engine.Layer{Kind: engine.KindBranch}, kids: paths[1-down], from: src}
+	fork := &item{l: engine.Layer{Kind: engine.KindFork, JoinAdd: true}, nodes: []int{j}, out: b.joinOut(j), kids: []*item{flow, lateral}}
+	if b.g.data[j][0] != ends[down] {
+		fork.kids = []*item{lateral, flow}
+	}
+	b.mark(j)
+	b.itemOf[fork.out] = fork
+	return append(paths[down], fork), fork.out, true
 }
 
 // isProjection reports whether a path is a projection shortcut: a 1×1

@@ -142,11 +142,30 @@ func (im *importer) fold(n *onnxpb.Node) {
 		for _, in := range ins {
 			v, ok := im.intsOf(in)
 			if !ok {
+				im.foldFloats(out, ins) // F.interpolate's scales: [1, 1] and [2, 2] joined
 				return
 			}
 			all = append(all, v...)
 		}
 		im.values[out] = all
+	}
+}
+
+// foldFloats makes the concatenation of short float constants ins a
+// constant out, where every input is one (floats reads it).
+func (im *importer) foldFloats(out string, ins []string) {
+	var fs []float32
+	for _, in := range ins {
+		f, ok := im.floats(in)
+		if !ok || len(fs)+len(f) > 16 {
+			return
+		}
+		for _, v := range f {
+			fs = append(fs, float32(v))
+		}
+	}
+	if len(fs) > 0 {
+		im.consts[out] = &onnxpb.Tensor{FloatData: fs}
 	}
 }
 

@@ -96,6 +96,9 @@ func layerLines(t *table, an *engine.Analysis) {
 					label += fmt.Sprintf(" — repeat %d of %d", head.At(d-1), max(b.Repeat, 1))
 				case br != nil:
 					label += fmt.Sprintf(" — branch %d of %d", head.At(d-1), len(b.Body))
+					if br.From != "" {
+						label += " from " + br.From
+					}
 					if br.Name != "" {
 						label += " [" + br.Name + "]"
 					}

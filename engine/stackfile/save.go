@@ -256,16 +256,22 @@ func layerNode(orig *engine.Layer) *yaml.Node {
 }
 
 // branchNode writes one branch of a fork: its list of layers, or a mapping
-// with layers, name and note when it is named or has a note. An item that
+// with its fields (from), name, note and layers when it has any of them. An item that
 // is not a branch is written as itself (the engine reports it).
 func branchNode(b *engine.Layer) *yaml.Node {
 	if b.Kind != engine.KindBranch {
 		return layerNode(b)
 	}
-	if b.Name == "" && b.Note == "" {
+	if b.Name == "" && b.Note == "" && b.From == "" {
 		return layerSeq(b.Body)
 	}
 	m := &yaml.Node{Kind: yaml.MappingNode}
+	sp := engine.SpecOf(engine.KindBranch)
+	for i := range sp.Params {
+		if p := &sp.Params[i]; p.Applies(b) && !p.IsDefault(b) {
+			put(m, p.Key, valueNode(p, p.Get(b)))
+		}
+	}
 	if b.Name != "" {
 		put(m, "name", strNode(b.Name))
 	}

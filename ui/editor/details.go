@@ -141,6 +141,9 @@ func lastRow(r *engine.Result, p engine.Path, first int) int {
 
 func (fr *frame) blockLines(it *item, res *engine.Result, mem *engine.Memory) []string {
 	l := it.layer
+	if l.Kind == engine.KindBranch && len(l.Body) == 0 && l.From != "" {
+		return []string{fmt.Sprintf("an empty branch: the output of %q joins unchanged", l.From)}
+	}
 	if l.Kind == engine.KindBranch && len(l.Body) == 0 {
 		return []string{"an empty branch: the fork's input (or its share of the channels) joins unchanged"}
 	}
@@ -163,14 +166,22 @@ func (fr *frame) blockLines(it *item, res *engine.Result, mem *engine.Memory) []
 		if l.Split {
 			how = fmt.Sprintf("each reads 1/%d of the channels", max(len(l.Body), 1))
 		}
+		join := "joined along the channels"
+		if l.JoinAdd {
+			join = "added element by element"
+		}
 		return []string{
-			fmt.Sprintf("%d branch%s (%s), joined along the channels → rows %s to %s",
-				len(l.Body), map[bool]string{true: "", false: "es"}[len(l.Body) == 1], how, res.Rows[it.first].Path, res.Rows[it.last].Path),
+			fmt.Sprintf("%d branch%s (%s), %s → rows %s to %s",
+				len(l.Body), map[bool]string{true: "", false: "es"}[len(l.Body) == 1], how, join, res.Rows[it.first].Path, res.Rows[it.last].Path),
 			totals,
 		}
 	case engine.KindBranch:
+		from := ""
+		if l.From != "" {
+			from = fmt.Sprintf(" from the output of %q", l.From)
+		}
 		return []string{
-			fmt.Sprintf("branch %d of its fork: %d layer%s → rows %s to %s", it.addr[len(it.addr)-1]+1,
+			fmt.Sprintf("branch %d of its fork%s: %d layer%s → rows %s to %s", it.addr[len(it.addr)-1]+1, from,
 				len(l.Body), plural(len(l.Body)), res.Rows[it.first].Path, res.Rows[it.last].Path),
 			totals,
 		}

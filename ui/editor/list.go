@@ -218,6 +218,9 @@ func (t *stackTree) line(d drawing, it *item, lay layout, selected, inRange bool
 			}
 		}
 		label = engine.Summary(l)
+		if l.Kind == engine.KindBranch && l.From != "" {
+			label += " from " + l.From
+		}
 		if l.Kind == engine.KindBranch && len(l.Body) == 0 {
 			label += " · empty: the map itself"
 		}
