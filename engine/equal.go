@@ -1,6 +1,9 @@
 package engine
 
-import "math"
+import (
+	"math"
+	"slices"
+)
 
 // Equal reports whether two layers are the same in every field, their
 // bodies included, item by item. Floating-point fields compare by their
@@ -40,5 +43,6 @@ func (l *Layer) EqualFields(o *Layer) bool {
 		l.NoShortcutNorm == o.NoShortcutNorm && l.PostAct == o.PostAct && l.HasPostAct == o.HasPostAct &&
 		l.IdentityOnly == o.IdentityOnly && same(l.DropPath, o.DropPath) && l.DenseLinks == o.DenseLinks &&
 		l.Split == o.Split && l.JoinAdd == o.JoinAdd && l.From == o.From && l.Crop == o.Crop && l.First == o.First && l.RelBlock == o.RelBlock &&
-		l.RoundTo == o.RoundTo && same(l.ScaleInit, o.ScaleInit) && l.PixelFactor == o.PixelFactor && l.Keep == o.Keep && l.Name == o.Name && l.Note == o.Note
+		l.RoundTo == o.RoundTo && same(l.ScaleInit, o.ScaleInit) && l.PixelFactor == o.PixelFactor && l.Keep == o.Keep && l.Name == o.Name && l.Note == o.Note &&
+		l.Unit == o.Unit && slices.Equal(l.Args, o.Args) && slices.Equal(l.Binds, o.Binds)
 }

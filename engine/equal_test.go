@@ -20,6 +20,12 @@ func setSome(v reflect.Value) bool {
 		v.SetFloat(0.5)
 	case reflect.String:
 		v.SetString("x")
+	case reflect.Slice:
+		e := reflect.New(v.Type().Elem()).Elem()
+		if !setSome(e) {
+			return false
+		}
+		v.Set(reflect.Append(reflect.MakeSlice(v.Type(), 0, 1), e))
 	case reflect.Struct:
 		for i := 0; i < v.NumField(); i++ {
 			w := reflect.New(v.Type()).Elem()

@@ -262,6 +262,13 @@ type Layer struct {
 
 	Name string // optional short identifier
 	Note string // optional free text
+
+	// A use of a unit (a block whose body is the unit's expansion, see
+	// ExpandUnits): the unit's name and the use's arguments.
+	Unit string
+	Args []Arg
+	// In a unit's body: the fields bound to the unit's parameters.
+	Binds []Bind
 }
 
 // stride returns the effective stride.

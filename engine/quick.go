@@ -3,6 +3,7 @@ package engine
 import (
 	"errors"
 	"fmt"
+	"slices"
 	"strings"
 )
 
@@ -19,6 +20,9 @@ func ParseQuick(line string) (Layer, error) {
 	}
 	// Names keep their case.
 	orig := strings.Fields(strings.TrimSpace(line))
+	if toks[0] == "unit" {
+		return parseQuickUse(orig[1:])
+	}
 	k, ok := KindByName(toks[0])
 	if !ok {
 		kinds := names(Kinds())
@@ -235,4 +239,39 @@ func kindsWithPrefix(prefix string) []string {
 		}
 	}
 	return out
+}
+
+// parseQuickUse reads a use of a unit as Summary writes it: "unit NAME",
+// then PARAM=VALUE words, ×N or xN for a repeat, @name. The values are
+// checked when the use is expanded (ExpandUnits), against the unit.
+func parseQuickUse(words []string) (Layer, error) {
+	if len(words) == 0 || !ValidName(words[0]) {
+		return Layer{}, fmt.Errorf("%w: unit needs a unit's name, e.g. unit cna c=64", ErrQuick)
+	}
+	l := Layer{Kind: KindBlock, Repeat: 1, Unit: words[0]}
+	for _, w := range words[1:] {
+		switch {
+		case strings.HasPrefix(w, "@"):
+			if !ValidName(w[1:]) {
+				return Layer{}, fmt.Errorf("%w: %q is not a layer name; use letters, digits, '_' and '-'", ErrQuick, w[1:])
+			}
+			l.Name = w[1:]
+		case strings.HasPrefix(w, "×") || strings.HasPrefix(strings.ToLower(w), "x") && len(w) > 1 && w[1] >= '0' && w[1] <= '9':
+			n, err := ParseInt("repeat", strings.TrimPrefix(strings.TrimPrefix(strings.ToLower(w), "×"), "x"), 1, MaxRepeat)
+			if err != nil {
+				return Layer{}, fmt.Errorf("%w: %v", ErrQuick, err)
+			}
+			l.Repeat = n
+		default:
+			name, value, ok := strings.Cut(w, "=")
+			if !ok || !ValidName(name) || value == "" {
+				return Layer{}, fmt.Errorf("%w: %q: give a unit's argument as NAME=VALUE, e.g. c=64", ErrQuick, w)
+			}
+			if slices.ContainsFunc(l.Args, func(a Arg) bool { return a.Name == name }) {
+				return Layer{}, fmt.Errorf("%w: argument %s is given twice", ErrQuick, name)
+			}
+			l.Args = append(l.Args, Arg{name, value})
+		}
+	}
+	return l, nil
 }

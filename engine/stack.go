@@ -15,6 +15,9 @@ type Stack struct {
 	// Quiet lists the warnings this stack silences (each a warning code,
 	// once): Evaluate does not report them.
 	Quiet []Code
+	// Units are the sub-stacks the file defines once and uses by name
+	// (see ExpandUnits).
+	Units []Unit
 }
 
 // Clone returns a deep copy of the stack, safe to edit independently.
@@ -22,6 +25,7 @@ func (s *Stack) Clone() *Stack {
 	c := *s
 	c.Layers = CloneLayers(s.Layers)
 	c.Quiet = slices.Clone(s.Quiet)
+	c.Units = CloneUnits(s.Units)
 	return &c
 }
 
@@ -33,6 +37,8 @@ func CloneLayers(ls []Layer) []Layer {
 	out := make([]Layer, len(ls))
 	copy(out, ls)
 	for i := range out {
+		out[i].Args = slices.Clone(out[i].Args)
+		out[i].Binds = slices.Clone(out[i].Binds)
 		if out[i].Body != nil {
 			out[i].Body = CloneLayers(out[i].Body)
 		}

@@ -10,6 +10,9 @@ import (
 // differ from their defaults in their quick-entry form. ParseQuick reads
 // it back.
 func Summary(l *Layer) string {
+	if l.Unit != "" {
+		return useSummary(l)
+	}
 	n := l.Normalized()
 	sp := SpecOf(n.Kind)
 	var b strings.Builder
@@ -122,4 +125,22 @@ func pairText(p Pair) string {
 		return strconv.FormatInt(p.H, 10)
 	}
 	return strconv.FormatInt(p.H, 10) + "x" + strconv.FormatInt(p.W, 10)
+}
+
+// useSummary writes a use of a unit: "unit cna c=64 k=1", then ×N when
+// it repeats.
+func useSummary(l *Layer) string {
+	var b strings.Builder
+	b.WriteString("unit ")
+	b.WriteString(l.Unit)
+	for _, a := range l.Args {
+		b.WriteByte(' ')
+		b.WriteString(a.Name)
+		b.WriteByte('=')
+		b.WriteString(a.Value)
+	}
+	if l.Repeat > 1 {
+		b.WriteString(" ×" + strconv.FormatInt(l.Repeat, 10))
+	}
+	return b.String()
 }

@@ -92,7 +92,7 @@ func layerLines(t *table, an *engine.Analysis) {
 					label += " [" + b.Name + "]"
 				}
 				switch {
-				case b.Kind == engine.KindBlock:
+				case b.Kind == engine.KindBlock && (b.Unit == "" || b.Repeat > 1):
 					label += fmt.Sprintf(" — repeat %d of %d", head.At(d-1), max(b.Repeat, 1))
 				case br != nil:
 					label += fmt.Sprintf(" — branch %d of %d", head.At(d-1), len(b.Body))

@@ -79,6 +79,11 @@ func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
 	if pairs == nil {
 		return l
 	}
+	for _, kv := range pairs {
+		if kv[0].Value == "unit" {
+			return d.use(pairs, label)
+		}
+	}
 	var kindNode, kindVal *yaml.Node
 	for _, kv := range pairs {
 		if k, ok := engine.KindByName(kv[0].Value); ok {
@@ -109,6 +114,10 @@ func (d *decoder) layer(n *yaml.Node, label string, depth int) engine.Layer {
 		}
 		switch {
 		case k.Value == "name":
+			if d.unit != nil {
+				d.fail(k, where, ErrName, "a unit's layers cannot be named: every use would repeat the name; name the use of %s instead", d.unit.Name)
+				continue
+			}
 			d.layerName(v, where, &l)
 			continue
 		case k.Value == "note":
@@ -255,8 +264,22 @@ func (d *decoder) kindValue(v *yaml.Node, where string, sp *engine.Spec, l *engi
 	d.param(v, w, m, l)
 }
 
-// param reads one field's value by its type and bounds.
+// param reads one field's value by its type and bounds; in a unit's
+// layers a value "$name" binds the field to the unit's parameter.
 func (d *decoder) param(n *yaml.Node, w string, p *engine.Param, l *engine.Layer) {
+	if n.Kind == yaml.ScalarNode && n.Tag == "!!str" && strings.HasPrefix(n.Value, "$") {
+		ref, ok := engine.ParamRef(n.Value)
+		if !ok {
+			d.fail(n, w, ErrName, "%q is not a parameter reference; write $ and a parameter's name, e.g. $c", n.Value)
+			return
+		}
+		key := p.Key
+		if sp := engine.SpecOf(l.Kind); sp.Main == p {
+			key = sp.Key
+		}
+		d.bind(n, w, key, ref, p, l)
+		return
+	}
 	var v engine.Value
 	ok := true
 	switch p.Type {

@@ -50,7 +50,7 @@ func Load(data []byte) (*engine.Stack, error) {
 		first = doc.Content[0].Line // past the first document's own "---"
 	}
 	extra := secondDocument(dec, data, first)
-	d := &decoder{names: map[string]int{}}
+	d := &decoder{names: map[string]int{}, unitLines: map[string]int{}}
 	if n := findAlias(&doc); n != nil {
 		// Refused before anything reads the tree: aliases are how "billion
 		// laughs" files expand, and stack files never need them.
@@ -147,6 +147,9 @@ func syntaxError(err error) *Error {
 type decoder struct {
 	errs  ErrorList
 	names map[string]int // layer name → line of first use
+	unit  *engine.Unit   // the unit whose layers are being read, if any
+	// unitLines: unit name → the line of its definition
+	unitLines map[string]int
 }
 
 func (d *decoder) fail(n *yaml.Node, field string, sentinel error, format string, args ...any) {
@@ -236,7 +239,7 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 	}
 	s := &engine.Stack{}
 	var haveInput, haveLayers bool
-	top := []string{"stackfit", "name", "note", "input", "training", "stage", "quiet", "layers"}
+	top := []string{"stackfit", "name", "note", "input", "training", "stage", "quiet", "units", "layers"}
 	for _, kv := range d.mapping(doc.Content[0], "file", "a stack (stackfit:, name:, input:, layers:)") {
 		k, v := kv[0], kv[1]
 		switch k.Value {
@@ -256,6 +259,8 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 			s.Stage = d.stage(v)
 		case "quiet":
 			s.Quiet = d.quiet(v)
+		case "units":
+			s.Units = d.units(v)
 		case "layers":
 			haveLayers = true
 			s.Layers = d.layers(v)
@@ -268,6 +273,9 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 	}
 	if !haveLayers && len(d.errs) == 0 {
 		d.fail(doc.Content[0], "layers", ErrMissing, "missing; add a list of layers, e.g. layers: [{conv: 32, kernel: 3}]")
+	}
+	if len(d.errs) == 0 {
+		d.expand(s)
 	}
 	return s
 }

@@ -45,6 +45,9 @@ func document(s *engine.Stack) *yaml.Node {
 			put(root, "quiet", q)
 		}
 	}
+	if len(s.Units) > 0 {
+		put(root, "units", unitsNode(s.Units))
+	}
 	put(root, "layers", layerSeq(s.Layers))
 	return &yaml.Node{Kind: yaml.DocumentNode, Content: []*yaml.Node{root}}
 }
@@ -204,21 +207,29 @@ func stage(st engine.Stage) *yaml.Node {
 // differ from their defaults, name and note; a kind with a body writes its
 // fields after name and note so that the body comes last.
 func layerNode(orig *engine.Layer) *yaml.Node {
+	if orig.Unit != "" {
+		return useNode(orig)
+	}
 	l := orig.Normalized()
 	sp := engine.SpecOf(l.Kind)
-	if sp.Bare && sp.Main == nil && l.Name == "" && l.Note == "" {
+	if sp.Bare && sp.Main == nil && l.Name == "" && l.Note == "" && len(l.Binds) == 0 {
 		return strNode(sp.Key)
 	}
 	m := &yaml.Node{Kind: yaml.MappingNode}
-	if sp.Main != nil {
+	switch {
+	case sp.Main != nil && boundNode(&l, sp.Key) != nil:
+		put(m, sp.Key, boundNode(&l, sp.Key))
+	case sp.Main != nil:
 		put(m, sp.Key, valueNode(sp.Main, sp.Main.Get(&l)))
-	} else {
+	default:
 		put(m, sp.Key, &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!null", Value: ""})
 	}
 	fields := func() {
 		for i := range sp.Params {
 			p := &sp.Params[i]
-			if p.Applies(&l) && (p.Required || !p.IsDefault(&l)) {
+			if b := boundNode(&l, p.Key); b != nil {
+				put(m, p.Key, b)
+			} else if p.Applies(&l) && (p.Required || !p.IsDefault(&l)) {
 				put(m, p.Key, valueNode(p, p.Get(&l)))
 			}
 		}
@@ -262,13 +273,15 @@ func branchNode(b *engine.Layer) *yaml.Node {
 	if b.Kind != engine.KindBranch {
 		return layerNode(b)
 	}
-	if b.Name == "" && b.Note == "" && b.From == "" {
+	if b.Name == "" && b.Note == "" && b.From == "" && len(b.Binds) == 0 {
 		return layerSeq(b.Body)
 	}
 	m := &yaml.Node{Kind: yaml.MappingNode}
 	sp := engine.SpecOf(engine.KindBranch)
 	for i := range sp.Params {
-		if p := &sp.Params[i]; p.Applies(b) && !p.IsDefault(b) {
+		if p := &sp.Params[i]; boundNode(b, p.Key) != nil {
+			put(m, p.Key, boundNode(b, p.Key))
+		} else if p.Applies(b) && !p.IsDefault(b) {
 			put(m, p.Key, valueNode(p, p.Get(b)))
 		}
 	}

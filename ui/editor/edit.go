@@ -21,6 +21,9 @@ func (m *Model) change(what string, fn func(s *engine.Stack) (addr, error)) tea.
 	before := snapshot{stack: m.stack, cursor: m.tree.cursor, what: what}
 	next := m.stack.Clone()
 	sel, err := fn(next)
+	if err == nil {
+		err = expandUses(next)
+	}
 	if err != nil {
 		m.setStatus(err.Error(), statusError)
 		return nil
@@ -493,4 +496,50 @@ func plural(n int) string {
 		return ""
 	}
 	return "s"
+}
+
+// expandUses gives every use of a unit in s its expansion, refusing a
+// change made inside one: a use's rows are its unit's, and the stack file
+// saves only the use, so such a change would be lost. A use without a
+// body (one just added) is expanded.
+func expandUses(s *engine.Stack) error {
+	if !hasUses(s.Layers) {
+		return nil
+	}
+	fresh := s.Clone()
+	if err := engine.ExpandUnits(fresh); err != nil {
+		return err
+	}
+	if err := sameUses(s.Layers, fresh.Layers); err != nil {
+		return err
+	}
+	s.Layers = fresh.Layers
+	return nil
+}
+
+func hasUses(ls []engine.Layer) bool {
+	for i := range ls {
+		if ls[i].Unit != "" || hasUses(ls[i].Body) {
+			return true
+		}
+	}
+	return false
+}
+
+// sameUses compares every expanded use in ls with its fresh expansion.
+func sameUses(ls, fresh []engine.Layer) error {
+	for i := range ls {
+		l := &ls[i]
+		switch {
+		case i >= len(fresh):
+			return nil
+		case l.Unit != "" && l.Body != nil && !engine.EqualLayers(l.Body, fresh[i].Body):
+			return fmt.Errorf("refused: those rows belong to a use of unit %s, and the file keeps only the use; change its arguments, or the unit's definition", l.Unit)
+		case l.Unit == "":
+			if err := sameUses(l.Body, fresh[i].Body); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
 }
