@@ -44,6 +44,9 @@ func PyTorch(w io.Writer, an *engine.Analysis, source string) error {
 		return g.err
 	}
 	class := className(an.Stack.Name)
+	for g.units.taken(class) {
+		class += "Net" // a stack named like one of its units' classes
+	}
 	b := bufio.NewWriterSize(w, 64<<10)
 	var head strings.Builder
 	g.header(&head, source)
@@ -61,6 +64,7 @@ func PyTorch(w io.Writer, an *engine.Analysis, source string) error {
 	b.WriteString("\n    def forward(self, x):\n")
 	newGen(an, b, phaseForward, g).walk(an.Stack.Layers, engine.Path{})
 	b.WriteString("        return x\n")
+	g.units.write(b)
 	fmt.Fprintf(b, "\n\nINPUT_SHAPE = (%d, %d, %d)\nMODEL = %s\n", an.Stack.Input.C, an.Stack.Input.H, an.Stack.Input.W, class)
 	writeEstimate(b, an)
 	b.WriteString(measureTool)
@@ -301,6 +305,11 @@ type gen struct {
 	// or dense link reads, the only ones kept in a variable; and the
 	// helpers the generated lines call.
 	read, keep, uses map[string]bool
+	// units: the class of each use of a unit written as one (by the use's
+	// repeat path), and the classes in the order made (check walk).
+	units *unitClasses
+	// frames: the uses being written into their classes, innermost last.
+	frames []*frame
 }
 
 // newGen makes a walk of phase ph; a writing walk takes what the check
@@ -308,9 +317,10 @@ type gen struct {
 func newGen(an *engine.Analysis, out *bufio.Writer, ph phase, check *gen) *gen {
 	g := &gen{an: an, r: an.Result, out: out, phase: ph, taps: map[string]string{}}
 	if check != nil {
-		g.read, g.keep, g.uses = check.read, check.keep, check.uses
+		g.read, g.keep, g.uses, g.units = check.read, check.keep, check.uses, check.units
 	} else {
 		g.read, g.keep, g.uses = map[string]bool{}, map[string]bool{}, map[string]bool{}
+		g.units = &unitClasses{byUse: map[string]string{}, byText: map[string]string{}}
 	}
 	return g
 }
@@ -332,6 +342,14 @@ func (g *gen) reads(v string) {
 
 // initLine writes one line of __init__ in the init phase.
 func (g *gen) initLine(s string) {
+	if n := len(g.frames); n > 0 {
+		f := g.frames[n-1]
+		f.init = append(f.init, s)
+		if g.phase == phaseCheck {
+			g.noteHelpers(s)
+		}
+		return
+	}
 	switch g.phase {
 	case phaseInit:
 		g.out.WriteString("        " + s + "\n")
@@ -343,6 +361,14 @@ func (g *gen) initLine(s string) {
 // fwdLine writes lines of forward in the forward phase.
 func (g *gen) fwdLine(lines ...string) {
 	for _, s := range lines {
+		if n := len(g.frames); n > 0 {
+			f := g.frames[n-1]
+			f.fwd = append(f.fwd, s)
+			if g.phase == phaseCheck {
+				g.noteHelpers(s)
+			}
+			continue
+		}
 		switch g.phase {
 		case phaseForward:
 			g.out.WriteString("        " + s + "\n")
@@ -394,9 +420,14 @@ func (g *gen) named(name string) {
 	g.fwdLine("# output of "+quoted(name), g.tap(name)+" = x")
 }
 
-func ident(p engine.Path) string {
-	s := "l" + strings.NewReplacer(".", "_").Replace(p.String())
-	return s
+// ident is the Python name of path p's module or variable: relative to
+// the use of a unit being written into its class, if any.
+func (g *gen) ident(p engine.Path) string {
+	if n := len(g.frames); n > 0 {
+		segs := strings.Split(p.String(), ".")
+		return "l" + strings.Join(segs[min(g.frames[n-1].base.Len(), len(segs)):], "_")
+	}
+	return "l" + strings.NewReplacer(".", "_").Replace(p.String())
 }
 
 // tap returns the variable holding a named output, creating it.
@@ -423,7 +454,7 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 		switch l.Kind {
 		case engine.KindGate:
 			gp := p.Append(1)
-			saved := "g" + strings.TrimPrefix(ident(gp), "l")
+			saved := "g" + strings.TrimPrefix(g.ident(gp), "l")
 			g.fwdLine(saved + " = x")
 			g.walk(l.Body, gp) // x becomes the gate
 			if g.next >= len(g.r.Rows) || g.r.Rows[g.next].Role != engine.RoleGate {
@@ -437,9 +468,13 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 		case engine.KindBlock:
 			for rep := 1; rep <= int(max(l.Repeat, 1)); rep++ {
 				rp := p.Append(rep)
+				if l.Unit != "" && selfContained(l.Body) {
+					g.use(l, rp)
+					continue
+				}
 				saved := ""
 				if l.Residual || l.DenseLinks {
-					saved = "r" + strings.TrimPrefix(ident(rp), "l")
+					saved = "r" + strings.TrimPrefix(g.ident(rp), "l")
 					g.save(saved)
 				}
 				g.walk(l.Body, rp)
@@ -467,7 +502,7 @@ func (g *gen) walk(ls []engine.Layer, parent engine.Path) {
 // channels, or the named output it starts from), then the join of the
 // branches' outputs (their concatenation or their sum).
 func (g *gen) fork(l *engine.Layer, p engine.Path) {
-	base := strings.TrimPrefix(ident(p), "l")
+	base := strings.TrimPrefix(g.ident(p), "l")
 	in := "f" + base
 	g.fwdLine(in + " = x")
 	outs := make([]string, 0, len(l.Body))
@@ -515,7 +550,7 @@ func (g *gen) residual(saved string) {
 	for g.next < len(g.r.Rows) && g.r.Rows[g.next].Role == engine.RoleShortcut {
 		row := &g.r.Rows[g.next]
 		g.next++
-		id := ident(row.Path)
+		id := g.ident(row.Path)
 		g.initLine(fmt.Sprintf("self.%s = %s", id, g.module(row)))
 		g.reads(sc)
 		g.fwdLine(fmt.Sprintf("sc = self.%s(%s)", id, sc))
@@ -527,7 +562,7 @@ func (g *gen) residual(saved string) {
 		g.next++
 		body := "x"
 		if rate := row.Layer.Rate; rate > 0 {
-			id := ident(row.Path)
+			id := g.ident(row.Path)
 			g.initLine(fmt.Sprintf("self.%s = DropPath(%s)", id, strconv.FormatFloat(rate, 'g', -1, 64)))
 			body = fmt.Sprintf("self.%s(x)", id)
 		}
@@ -542,7 +577,7 @@ func (g *gen) residual(saved string) {
 	if g.next < len(g.r.Rows) && g.r.Rows[g.next].Role == engine.RolePostAct {
 		row := &g.r.Rows[g.next]
 		g.next++
-		id := ident(row.Path)
+		id := g.ident(row.Path)
 		g.initLine(fmt.Sprintf("self.%s = %s", id, g.module(row)))
 		g.fwdLine(fmt.Sprintf("x = self.%s(x)", id))
 	}
@@ -562,7 +597,7 @@ func (g *gen) row() {
 		g.fail("layer %s (%s) has no PyTorch form", row.Path, row.Layer.Kind)
 		return
 	}
-	id := ident(row.Path)
+	id := g.ident(row.Path)
 	if t.Expr != "" {
 		if strings.Contains(t.Expr, engine.OtherVar) {
 			if g.phase == phaseCheck {
