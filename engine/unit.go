@@ -338,3 +338,76 @@ func countLayers(ls []Layer) int {
 	}
 	return n
 }
+
+// EditThroughUse turns a change made to a use's rows into a change of
+// its unit, so that a unit is edited once for every use: fresh is the
+// use's expansion before the change, edited the expansion changed. A field
+// bound to a parameter sets the use's argument (this use only); any other
+// field changes the unit's layer, so every use follows. Layers added,
+// removed, moved, renamed or changed inside a nested use are refused with
+// the reason; u and use are then unchanged.
+func EditThroughUse(u *Unit, use *Layer, fresh, edited []Layer) error {
+	body, args := CloneLayers(u.Body), slices.Clone(use.Args)
+	if err := liftEdit(body, fresh, edited, &args, u.Name); err != nil {
+		return err
+	}
+	u.Body, use.Args = body, args
+	return nil
+}
+
+func liftEdit(tmpl, fresh, edited []Layer, args *[]Arg, unit string) error {
+	if len(tmpl) != len(fresh) || len(fresh) != len(edited) {
+		return fmt.Errorf("unit %s: adding, removing or moving layers of a use changes the unit's structure; edit the units: section of the file, or make the use a block of its own", unit)
+	}
+	for i := range tmpl {
+		t, f, e := &tmpl[i], &fresh[i], &edited[i]
+		if t.Unit != "" {
+			if !EqualLayers(f.Body, e.Body) || !slices.Equal(f.Args, e.Args) || f.Repeat != e.Repeat {
+				return fmt.Errorf("unit %s: that row belongs to its use of unit %s; select that use to change its arguments", unit, t.Unit)
+			}
+			continue
+		}
+		if f.Kind != e.Kind || f.Name != e.Name || f.Note != e.Note {
+			return fmt.Errorf("unit %s: a layer of a use keeps its kind, name and note; edit the unit in the file", unit)
+		}
+		sp := SpecOf(f.Kind)
+		params := make([]*Param, 0, len(sp.Params)+1)
+		if sp.Main != nil {
+			params = append(params, sp.Main)
+		}
+		for j := range sp.Params {
+			params = append(params, &sp.Params[j])
+		}
+		for _, p := range params {
+			vf, ve := p.Get(f), p.Get(e)
+			if vf == ve {
+				continue
+			}
+			key := p.Key
+			if p == sp.Main {
+				key = sp.Key
+			}
+			if b := slices.IndexFunc(t.Binds, func(b Bind) bool { return b.Field == key }); b >= 0 {
+				setArg(args, t.Binds[b].Param, p.Text(ve))
+				continue
+			}
+			p.Set(t, ve)
+		}
+		*t = t.Normalized()
+		if err := liftEdit(t.Body, f.Body, e.Body, args, unit); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// setArg sets (or adds) the argument name.
+func setArg(args *[]Arg, name, value string) {
+	for i := range *args {
+		if (*args)[i].Name == name {
+			(*args)[i].Value = value
+			return
+		}
+	}
+	*args = append(*args, Arg{name, value})
+}

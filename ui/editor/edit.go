@@ -498,10 +498,12 @@ func plural(n int) string {
 	return "s"
 }
 
-// expandUses gives every use of a unit in s its expansion, refusing a
-// change made inside one: a use's rows are its unit's, and the stack file
-// saves only the use, so such a change would be lost. A use without a
-// body (one just added) is expanded.
+// expandUses gives every use of a unit in s its expansion. A change made
+// to a use's rows goes to its unit (engine.EditThroughUse): a field bound
+// to a parameter becomes the use's argument, any other changes the unit
+// and so every use — one change, one undo step; a change the unit cannot
+// take (a layer added inside a use) is refused, since the file keeps only
+// the use. A use without a body (one just added) is expanded.
 func expandUses(s *engine.Stack) error {
 	if !hasUses(s.Layers) {
 		return nil
@@ -510,8 +512,15 @@ func expandUses(s *engine.Stack) error {
 	if err := engine.ExpandUnits(fresh); err != nil {
 		return err
 	}
-	if err := sameUses(s.Layers, fresh.Layers); err != nil {
+	lifted, err := liftUses(s, s.Layers, fresh.Layers)
+	if err != nil {
 		return err
+	}
+	if lifted {
+		fresh = s.Clone()
+		if err := engine.ExpandUnits(fresh); err != nil {
+			return err
+		}
 	}
 	s.Layers = fresh.Layers
 	return nil
@@ -526,20 +535,31 @@ func hasUses(ls []engine.Layer) bool {
 	return false
 }
 
-// sameUses compares every expanded use in ls with its fresh expansion.
-func sameUses(ls, fresh []engine.Layer) error {
+// liftUses finds the uses in ls whose rows were changed (they differ from
+// their fresh expansion) and turns each change into one of its unit.
+func liftUses(s *engine.Stack, ls, fresh []engine.Layer) (bool, error) {
+	lifted := false
 	for i := range ls {
 		l := &ls[i]
 		switch {
 		case i >= len(fresh):
-			return nil
+			return lifted, nil
 		case l.Unit != "" && l.Body != nil && !engine.EqualLayers(l.Body, fresh[i].Body):
-			return fmt.Errorf("refused: those rows belong to a use of unit %s, and the file keeps only the use; change its arguments, or the unit's definition", l.Unit)
-		case l.Unit == "":
-			if err := sameUses(l.Body, fresh[i].Body); err != nil {
-				return err
+			u := s.UnitByName(l.Unit)
+			if u == nil {
+				return false, fmt.Errorf("no unit is named %q", l.Unit)
 			}
+			if err := engine.EditThroughUse(u, l, fresh[i].Body, l.Body); err != nil {
+				return false, fmt.Errorf("refused: %w", err)
+			}
+			lifted = true
+		case l.Unit == "":
+			more, err := liftUses(s, l.Body, fresh[i].Body)
+			if err != nil {
+				return false, err
+			}
+			lifted = lifted || more
 		}
 	}
-	return nil
+	return lifted, nil
 }

@@ -1,6 +1,11 @@
 package editor
 
 import (
+	"fmt"
+	"slices"
+	"strconv"
+	"strings"
+
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
@@ -67,6 +72,16 @@ func (m *Model) editLayer() {
 		return
 	}
 	a := cur.addr
+	if cur.layer.Unit != "" {
+		m.useForm("use of unit "+cur.layer.Unit, *cur.layer,
+			func(s *engine.Stack, l engine.Layer) {
+				if p := at(s, a); p != nil {
+					*p = l
+				}
+			},
+			func(l engine.Layer) tea.Cmd { return m.replaceLayer(a, l) })
+		return
+	}
 	m.layerForm("edit "+engine.Summary(cur.layer), *cur.layer,
 		func(s *engine.Stack, l engine.Layer) {
 			if p := at(s, a); p != nil {
@@ -104,4 +119,88 @@ func anyText(msgs []string) bool {
 		}
 	}
 	return false
+}
+
+// useForm opens the arguments of a use of a unit: one field per
+// parameter (empty: the unit's default), then the repeat count; place
+// puts a candidate use into a copy of the stack (for the preview) and
+// commit applies the accepted one. The preview expands the use as the
+// values stand; a value the unit's field refuses is reported on its
+// parameter.
+func (m *Model) useForm(title string, orig engine.Layer, place func(s *engine.Stack, l engine.Layer), commit func(l engine.Layer) tea.Cmd) {
+	u := m.stack.UnitByName(orig.Unit)
+	if u == nil {
+		m.setStatus(fmt.Sprintf("no unit is named %q", orig.Unit), statusError)
+		return
+	}
+	params := u.Params
+	ff := make([]form.Field, 0, len(params)+1)
+	for _, p := range params {
+		help := "required"
+		if !p.Required {
+			help = "empty: the unit's default, " + p.Default
+		}
+		v := ""
+		for _, arg := range orig.Args {
+			if arg.Name == p.Name {
+				v = arg.Value
+			}
+		}
+		ff = append(ff, form.Field{Key: p.Name, Help: help, Value: v, Limit: 1 << 10})
+	}
+	ff = append(ff, form.Field{Key: "repeat", Help: "times the unit runs, 1 to " + strconv.Itoa(engine.MaxRepeat), Value: strconv.FormatInt(max(orig.Repeat, 1), 10), Limit: 8})
+	// build returns the use the values give and the stack with it placed
+	// and expanded (nil with errors).
+	build := func(values []string) (engine.Layer, *engine.Stack, []string) {
+		l := orig
+		l.Args, l.Body = nil, nil
+		errs := make([]string, len(ff))
+		for i, p := range params {
+			if v := strings.TrimSpace(values[i]); v != "" {
+				l.Args = append(l.Args, engine.Arg{Name: p.Name, Value: v})
+			}
+		}
+		n, err := engine.ParseInt("repeat", values[len(params)], 1, engine.MaxRepeat)
+		if err != nil {
+			errs[len(params)] = err.Error()
+			return l, nil, errs
+		}
+		l.Repeat = n
+		s := m.stack.Clone()
+		place(s, l)
+		if err := expandUses(s); err != nil {
+			i := slices.IndexFunc(params, func(p engine.UnitParam) bool { return strings.Contains(err.Error(), p.Name+" ") })
+			errs[max(i, 0)] = err.Error()
+			return l, nil, errs
+		}
+		return l, s, errs
+	}
+	check := func(values []string) ([]string, []bool) {
+		_, s, errs := build(values)
+		if s == nil {
+			s = m.stack
+		}
+		m.preview, m.previewBlocked = m.analyzeQuick(s), anyText(errs)
+		return errs, make([]bool, len(ff))
+	}
+	m.openForm(title, ff, check, formJob{
+		commit: func(values []string) tea.Cmd {
+			l, _, _ := build(values)
+			return commit(l) // expanded by the change, from the arguments
+		},
+		cancelled: "nothing changed",
+	})
+}
+
+// addUse adds a use of the unit below the selection, through its form
+// (a unit with a required parameter needs a value first).
+func (m *Model) addUse(unit string) tea.Cmd {
+	if err := m.tree.addable(); err != nil {
+		return m.apply(edit{}, err)
+	}
+	l := engine.Layer{Kind: engine.KindBlock, Repeat: 1, Unit: unit}
+	m.useForm("add a use of unit "+unit, l,
+		func(s *engine.Stack, l engine.Layer) { _, _ = m.tree.placeAfter(s, l) },
+		func(l engine.Layer) tea.Cmd { return m.insertAfter(l, "added "+engine.Summary(&l)) })
+	return nil
 }

@@ -142,6 +142,9 @@ func (m *Model) result(res tea.Msg) tea.Cmd {
 		}
 	case picker.Chosen:
 		m.closeOverlay()
+		if kinds := engine.Kinds(); r.Index >= len(kinds) {
+			return m.addUse(m.stack.Units[r.Index-len(kinds)].Name)
+		}
 		return m.addKind(engine.Kinds()[r.Index])
 	case picker.Cancelled:
 		m.closeOverlay()
@@ -181,9 +184,16 @@ func (m *Model) result(res tea.Msg) tea.Cmd {
 // openPicker opens the kind picker.
 func (m *Model) openPicker() {
 	kinds := engine.Kinds()
-	items := make([]picker.Item, len(kinds))
+	items := make([]picker.Item, len(kinds), len(kinds)+len(m.stack.Units))
 	for i, k := range kinds {
 		items[i] = picker.Item{Name: k.String(), Help: engine.SpecOf(k).Help}
+	}
+	for _, u := range m.stack.Units { // the file's units, after the kinds
+		help := u.Note
+		if help == "" {
+			help = "a unit of this file"
+		}
+		items = append(items, picker.Item{Name: "unit " + u.Name, Help: help})
 	}
 	m.clearPreview()
 	m.open(picker.New("add which kind of layer? (a letter jumps to it)", items, nil, m.keys.Picker(), m.st))

@@ -9,10 +9,12 @@ import (
 	"stackfit/engine/stackfile"
 )
 
-// TestUseRowsAreTheUnits: the rows of a use come from its unit, and the
-// stack file keeps only the use, so a change inside them is refused (it
-// would be lost on saving); a use added by quick entry is expanded at
-// once, and a use naming no unit is refused with the reason.
+// TestUseRowsAreTheUnits: the rows of a use come from its unit and the
+// file keeps only the use, so a change made to them goes to the unit: a
+// field bound to a parameter becomes this use's argument, any other
+// changes the unit and every use with it, in one undo step; a layer added
+// inside a use is refused. A use added by quick entry is expanded at once,
+// and a use naming no unit is refused with the reason.
 func TestUseRowsAreTheUnits(t *testing.T) {
 	data, err := os.ReadFile("../../testdata/examples/cap-inspector-units.yaml")
 	if err != nil {
@@ -23,13 +25,40 @@ func TestUseRowsAreTheUnits(t *testing.T) {
 		t.Fatal(err)
 	}
 	m := newModel(t, s, 100, 30)
-	before := m.stack
+	// a bound field: the stem's width is its argument c
 	m.change("widen", func(s *engine.Stack) (addr, error) {
-		s.Layers[0].Body[0].Filters = 99
+		s.Layers[0].Body[0].Filters = 40
 		return nil, nil
 	})
-	if m.stack != before || !strings.Contains(m.status, "belong to a use of unit cbr") {
-		t.Errorf("a change inside a use was taken: %q", m.status)
+	if a := m.stack.Layers[0].Args; len(a) != 2 || a[0] != (engine.Arg{Name: "c", Value: "40"}) || m.stack.Layers[0].Body[0].Filters != 40 {
+		t.Fatalf("a bound field: args %v, status %q", a, m.status)
+	}
+	if m.stack.Layers[1].Body[0].Body[0].Body[0].Filters != 32 {
+		t.Error("another use changed with one use's argument")
+	}
+	// an unbound field: cbr's kernel, written in the unit, changes in every use
+	m.change("kernel 5", func(s *engine.Stack) (addr, error) {
+		s.Layers[0].Body[0].Kernel = engine.Square(5)
+		return nil, nil
+	})
+	if k := m.stack.Units[0].Body[0].Kernel; k != engine.Square(5) {
+		t.Fatalf("the unit's kernel is %v (status %q)", k, m.status)
+	}
+	if k := m.stack.Layers[1].Body[0].Body[0].Body[0].Kernel; k != engine.Square(5) {
+		t.Errorf("a nested use of cbr kept kernel %v", k)
+	}
+	press(m, "ctrl+z")
+	if k := m.stack.Units[0].Body[0].Kernel; k != engine.Square(3) || m.stack.Layers[1].Body[0].Body[0].Body[0].Kernel != engine.Square(3) {
+		t.Errorf("one undo did not restore the unit and its uses: %v", k)
+	}
+	// a layer added inside a use is refused
+	before := m.stack
+	m.change("add", func(s *engine.Stack) (addr, error) {
+		s.Layers[0].Body = append(s.Layers[0].Body, engine.Layer{Kind: engine.KindAct})
+		return nil, nil
+	})
+	if m.stack != before || !strings.Contains(m.status, "changes the unit's structure") {
+		t.Errorf("a layer added inside a use: %q", m.status)
 	}
 	press(m, "G", ":")
 	typeText(m, "unit cbr c=8")
@@ -44,5 +73,71 @@ func TestUseRowsAreTheUnits(t *testing.T) {
 	press(m, "enter")
 	if len(m.stack.Layers) != n || !strings.Contains(m.status, `did you mean "cbr"`) {
 		t.Errorf("a use of no unit: %d layers, %q", len(m.stack.Layers), m.status)
+	}
+}
+
+// TestUseForm: enter on a use opens its arguments, one field per
+// parameter of the unit and the repeat; a new value re-expands the use
+// (one change), a value the unit's field refuses is shown on its
+// parameter and nothing changes.
+func TestUseForm(t *testing.T) {
+	data, err := os.ReadFile("../../testdata/examples/cap-inspector-units.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := stackfile.Load(data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := newModel(t, s, 100, 30)
+	press(m, "enter") // the stem: unit cbr c=32 s=2
+	if v := view(m); !strings.Contains(v, "use of unit cbr") || !strings.Contains(v, "repeat") {
+		t.Fatalf("the use's form:\n%s", v)
+	}
+	press(m, "ctrl+u")
+	typeText(m, "24")
+	press(m, "enter")
+	stem := m.stack.Layers[0]
+	if stem.Unit != "cbr" || len(stem.Args) != 2 || stem.Args[0].Value != "24" || stem.Body[0].Filters != 24 {
+		t.Fatalf("after the form: %+v, status %q", stem, m.status)
+	}
+	press(m, "enter", "ctrl+u")
+	typeText(m, "0")
+	press(m, "enter")
+	if v := view(m); !strings.Contains(v, "does not suit") {
+		t.Errorf("a refused value is not shown:\n%s", v)
+	}
+	press(m, "esc")
+	if m.stack.Layers[0].Body[0].Filters != 24 {
+		t.Error("a refused value changed the stack")
+	}
+}
+
+// TestPickerOffersUnits: the picker lists the file's units after the
+// kinds; choosing one opens its form, and a required parameter must be
+// given before the use is added.
+func TestPickerOffersUnits(t *testing.T) {
+	data, err := os.ReadFile("../../testdata/examples/cap-inspector-units.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := stackfile.Load(data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := newModel(t, s, 100, 30)
+	n := len(m.stack.Layers)
+	press(m, "a", "u", "u", "u")
+	if v := view(m); !strings.Contains(v, "unit basic") {
+		t.Fatalf("the picker:\n%s", v)
+	}
+	press(m, "enter", "enter")
+	if len(m.stack.Layers) != n || !strings.Contains(view(m), "needs c") {
+		t.Fatalf("a use without its required width was added: %d layers\n%s", len(m.stack.Layers), view(m))
+	}
+	typeText(m, "16")
+	press(m, "enter")
+	if len(m.stack.Layers) != n+1 || m.stack.Layers[1].Unit != "basic" || len(m.stack.Layers[1].Body) != 3 {
+		t.Fatalf("after the form: %d layers, status %q", len(m.stack.Layers), m.status)
 	}
 }
