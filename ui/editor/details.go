@@ -193,6 +193,17 @@ func (fr *frame) blockLines(it *item, res *engine.Result, mem *engine.Memory) []
 			totals,
 		}
 	}
+	if l.Unit != "" {
+		rep := ""
+		if l.Repeat > 1 {
+			rep = fmt.Sprintf(", %d times (later ones with stride 1)", l.Repeat)
+		}
+		return []string{
+			fmt.Sprintf("a use of unit %s: its %d layer%s%s → rows %s to %s; enter edits its arguments, an edit of its rows edits the unit",
+				l.Unit, len(l.Body), plural(len(l.Body)), rep, res.Rows[it.first].Path, res.Rows[it.last].Path),
+			totals,
+		}
+	}
 	return []string{
 		fmt.Sprintf("%d repeat%s of %d layer%s → rows %s to %s; later repeats run with stride 1%s",
 			max(l.Repeat, 1), plural(int(max(l.Repeat, 1))), len(l.Body), plural(len(l.Body)),
