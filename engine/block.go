@@ -39,18 +39,24 @@ type fixedLayers struct {
 	cat  Layer
 	norm Layer
 	act  [len(activations)]Layer
+	// defaulted: norm and act hold a stack's defaults.
+	defaulted bool
 }
 
-func (x *fixedLayers) init() {
-	if x.add.Kind == KindAdd {
+// init sets the layers up for a stack with defaults d: the shortcut's norm
+// and the activations after an addition take the stack's defaults as the
+// written layers do.
+func (x *fixedLayers) init(d Defaults) {
+	if x.add.Kind == KindAdd && len(d) == 0 && !x.defaulted {
 		return
 	}
 	x.add = Layer{Kind: KindAdd}
 	x.cat = Layer{Kind: KindConcat}
-	x.norm = Layer{Kind: KindNorm, Norm: NormBatch}
+	x.norm = d.Resolve(&Layer{Kind: KindNorm, Norm: NormBatch})
 	for i := range x.act {
-		x.act[i] = Layer{Kind: KindAct, Act: ActKind(i)}
+		x.act[i] = d.Resolve(&Layer{Kind: KindAct, Act: ActKind(i)})
 	}
+	x.defaulted = len(d) > 0
 }
 
 // synthPool hands out the layers residual blocks add (projection shortcuts,

@@ -77,6 +77,7 @@ const (
 	ErrJoinShape                       // an additive fork's branches end in different shapes
 	ErrBranchFrom                      // a branch starts from a name no earlier output has
 	ErrBranchFromSplit                 // a branch of a split fork starts from a named output
+	ErrGroupWidth                      // input channels not a multiple of the group width
 )
 
 // codeNames are the diagnostics' stable names: the words a stack file's
@@ -126,6 +127,7 @@ var codeNames = [...]string{
 	ErrJoinShape:       "join-add-shape",
 	ErrBranchFrom:      "branch-from-unknown",
 	ErrBranchFromSplit: "branch-from-split",
+	ErrGroupWidth:      "group-width",
 }
 
 // Name returns the code's stable name, e.g. "small-receptive-field"; ""
@@ -213,6 +215,8 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("kernel %s spans %d pixels but the padded input %s is only %d; use a smaller kernel or dilation, or add padding", ax, d.A, ax, d.B)
 	case ErrGroupsChannels:
 		return fmt.Sprintf("input channels %d are not divisible by groups %d; pick groups that divide %d", d.A, d.B, d.A)
+	case ErrGroupWidth:
+		return fmt.Sprintf("input channels %d are not a multiple of group-width %d (groups = input channels / group width); pick a group width that divides %d, e.g. %d, or write groups instead", d.A, d.B, d.A, gcd(d.A, d.B))
 	case ErrGroupsFilters:
 		return fmt.Sprintf("filters %d are not divisible by groups %d; use a multiple of %d", d.A, d.B, d.B)
 	case ErrDenseSpatial:

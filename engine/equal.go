@@ -35,7 +35,8 @@ func (l *Layer) EqualFields(o *Layer) bool {
 	same := func(a, b float64) bool { return math.Float64bits(a) == math.Float64bits(b) }
 	return l.Kind == o.Kind && l.Filters == o.Filters && l.Kernel == o.Kernel && l.Stride == o.Stride &&
 		l.Pad == o.Pad && l.Dilation == o.Dilation && l.Groups == o.Groups && l.Depthwise == o.Depthwise &&
-		l.Rel.Div == o.Rel.Div && same(l.Rel.Mul, o.Rel.Mul) && l.NoBias == o.NoBias && l.OutPad == o.OutPad &&
+		l.Rel.Div == o.Rel.Div && same(l.Rel.Mul, o.Rel.Mul) && l.NoBias == o.NoBias && l.BiasOn == o.BiasOn &&
+		l.GroupWidth == o.GroupWidth && l.OutPad == o.OutPad &&
 		l.Pool == o.Pool && l.Ceil == o.Ceil && l.Size == o.Size && l.Factor == o.Factor && l.Upsample == o.Upsample &&
 		l.Norm == o.Norm && l.NormGroups == o.NormGroups && l.Affine == o.Affine && same(l.Eps, o.Eps) &&
 		l.PerPosition == o.PerPosition && l.Act == o.Act && same(l.Slope, o.Slope) && same(l.Rate, o.Rate) &&
@@ -43,6 +44,6 @@ func (l *Layer) EqualFields(o *Layer) bool {
 		l.NoShortcutNorm == o.NoShortcutNorm && l.PostAct == o.PostAct && l.HasPostAct == o.HasPostAct &&
 		l.IdentityOnly == o.IdentityOnly && same(l.DropPath, o.DropPath) && l.DenseLinks == o.DenseLinks &&
 		l.Split == o.Split && l.JoinAdd == o.JoinAdd && l.From == o.From && l.Crop == o.Crop && l.First == o.First && l.RelBlock == o.RelBlock &&
-		l.RoundTo == o.RoundTo && same(l.ScaleInit, o.ScaleInit) && l.PixelFactor == o.PixelFactor && l.Keep == o.Keep && l.Name == o.Name && l.Note == o.Note &&
+		l.RelInput == o.RelInput && l.RoundTo == o.RoundTo && same(l.ScaleInit, o.ScaleInit) && l.PixelFactor == o.PixelFactor && l.Keep == o.Keep && l.Name == o.Name && l.Note == o.Note &&
 		l.Unit == o.Unit && slices.Equal(l.Args, o.Args) && slices.Equal(l.Binds, o.Binds)
 }

@@ -60,7 +60,7 @@ type FPair struct {
 // Row holds the computed numbers of one layer.
 type Row struct {
 	Path      Path
-	Layer     *Layer // the layer in the evaluated stack
+	Layer     *Layer // the layer in the evaluated stack, with the stack's defaults applied
 	In, Out   Shape  // per-sample input and output shapes
 	Status    Status
 	Role      Role  // what the row is: a written layer or one a residual block adds
@@ -122,6 +122,7 @@ type Result struct {
 	pending   [MaxBlockDepth + 1][]joinRead // each open fork's branch outputs so far
 	joins     []joinRead                    // every join row's branch outputs, in row order
 	fixed     fixedLayers                   // layers residual blocks add that never change
+	defaulted defaultedLayers               // the stack's layers with its defaults applied
 	calc      calc                          // the per-row calculator, reused
 }
 
@@ -170,7 +171,7 @@ func (r *Result) Evaluate(s *Stack) {
 		}
 	}
 	r.synth.reset()
-	r.fixed.init()
+	r.fixed.init(s.Defaults)
 	if r.taps == nil {
 		r.taps = make(map[string]tap)
 	} else {
@@ -194,7 +195,14 @@ func (r *Result) Evaluate(s *Stack) {
 	} else if int(n) > cap(r.Rows) {
 		r.Rows = make([]Row, 0, n) // one allocation instead of doubling
 	}
-	r.items(s.Layers, Path{}, f, false)
+	layers := s.Layers
+	if len(s.Defaults) > 0 {
+		// The defaults are read on every evaluation, never baked into the
+		// layers: rows point into this copy, which holds each layer as
+		// it computes.
+		layers = r.defaulted.build(s.Layers, s.Defaults)
+	}
+	r.items(layers, Path{}, f, false)
 	if f.ok {
 		r.Output = f.shape
 	}

@@ -136,6 +136,12 @@ func stackFromBytes(data []byte) *Stack {
 			if k == KindBranch && next()%2 == 0 {
 				l.From = "" // from the fork's input
 			}
+			if next()%4 == 0 {
+				l.GroupWidth = wide()
+			}
+			if next()%6 == 0 {
+				l.Rel, l.RelInput, l.RelBlock = Rel{Mul: float64(next()%8) / 2}, next()%2 == 0, next()%3 == 0
+			}
 			if next()%3 == 0 {
 				l.Name = names[next()%3]
 			}
@@ -151,6 +157,10 @@ func stackFromBytes(data []byte) *Stack {
 	}
 	s := &Stack{Input: Shape{wide(), 1 + next()%40, 1 + next()%40}}
 	s.Layers = layers(0)
+	if next()%3 == 0 {
+		s.Defaults = Defaults{{Kind: KindConv, NoBias: next()%2 == 0}, {Kind: KindNorm, Eps: float64(next()%4) / 1000},
+			{Kind: KindAct, Slope: float64(next()%3) / 10}}
+	}
 	s.Training = Training{Batch: next(), Precision: Precision(next() % 4), Optimizer: Optimizer(next() % 6),
 		Budget: wide() << 20, GPUs: next() % 9, Shard: Shard(next() % 4), Accumulate: next() % 5, Checkpoint: next() % 7}
 	return s

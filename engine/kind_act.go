@@ -83,7 +83,7 @@ var actSpec = Spec{
 		get:  func(l *Layer) Value { return Value{Int: int64(l.Act)} },
 		set:  func(l *Layer, v Value) { l.Act = ActKind(v.Int) }},
 	Params: []Param{{Key: "slope", Help: "negative slope of leaky-relu, e.g. 0.01", Type: TFloat, FLo: 0, FHi: 1e6,
-		QuickBare: true, Want: "give a number from 0, e.g. 0.2",
+		QuickBare: true, FileDefault: true, Want: "give a number from 0, e.g. 0.2",
 		Only:    func(l *Layer) bool { return l.Act == ActLeakyReLU },
 		OnlyMsg: "slope applies only to leaky-relu; remove it or write act: leaky-relu",
 		get:     func(l *Layer) Value { return Value{Float: l.Slope} },

@@ -31,9 +31,31 @@ var (
 				l.Groups = 0
 			}
 		}}
-	biasParam = Param{Key: "bias", Help: "yes or no", Type: TBool, Default: Value{Bool: true}, Words: []string{"nobias", ""},
-		get: func(l *Layer) Value { return Value{Bool: !l.NoBias} },
-		set: func(l *Layer, v Value) { l.NoBias = !v.Bool }}
+	biasParam = Param{Key: "bias", Help: "yes, no or default", Type: TToggle, Words: []string{"", "bias", "nobias"},
+		FileDefault: true, Want: "give yes, no or default",
+		get: func(l *Layer) Value {
+			switch {
+			case l.NoBias:
+				return Value{Int: int64(Off)}
+			case l.BiasOn:
+				return Value{Int: int64(On)}
+			}
+			return Value{}
+		},
+		set: func(l *Layer, v Value) { l.NoBias, l.BiasOn = Toggle(v.Int) == Off, Toggle(v.Int) == On },
+		show: func(l *Layer) Value {
+			if l.NoBias {
+				return Value{Int: int64(Off)}
+			}
+			return Value{Int: int64(On)}
+		}}
+	groupWidthParam = Param{Key: "group-width", Help: "channels per group: groups = input channels / this (RegNet's group width), or 0 for none",
+		Type: TInt, Lo: 0, Hi: MaxChannels, Quick: "gw",
+		Only:      func(l *Layer) bool { return l.GroupWidth != 0 && !l.Depthwise && l.Groups <= 1 },
+		OnlyMsg:   "group-width (from 1) sets the groups itself; remove groups, or remove group-width",
+		OnlyQuick: "sets the groups itself; drop g",
+		get:       func(l *Layer) Value { return Value{Int: l.GroupWidth} },
+		set:       func(l *Layer, v Value) { l.GroupWidth = v.Int }}
 )
 
 // filtersParam is the main value of both convolutions.
@@ -53,7 +75,7 @@ func setWidth(l *Layer, v Value) {
 var convSpec = Spec{
 	Kind: KindConv, Key: "conv", Help: "convolution: filters over a sliding window", Example: "conv 64 k3 s2 p1",
 	Main:       &filtersParam,
-	Params:     append([]Param{kernelParam, strideParam, padParam, dilationParam, groupsParam, biasParam}, widthParams...),
+	Params:     append([]Param{kernelParam, strideParam, padParam, dilationParam, groupsParam, groupWidthParam, biasParam}, widthParams...),
 	Weighted:   true,
 	eval:       func(c *calc, f *flow) { c.conv(f, false) },
 	keepLayout: true,
@@ -66,7 +88,7 @@ var convSpec = Spec{
 var deconvSpec = Spec{
 	Kind: KindDeconv, Key: "deconv", Help: "transposed convolution: upsamples with learned filters", Example: "deconv 32 k4 s2 p1",
 	Main: &filtersParam,
-	Params: []Param{kernelParam, strideParam, padParam, dilationParam, groupsParam,
+	Params: []Param{kernelParam, strideParam, padParam, dilationParam, groupsParam, groupWidthParam,
 		{Key: "out-pad", Help: "n or h×w, below the stride", Type: TPair, Lo: 0, Hi: MaxWindow, Quick: "op",
 			get: func(l *Layer) Value { return Value{Pair: l.OutPad} },
 			set: func(l *Layer, v Value) { l.OutPad = v.Pair }},
@@ -107,11 +129,7 @@ func explainConv(row *Row) []string {
 	} else {
 		out = append(out, axisLines(l, in, row.Out, s, d)...)
 	}
-	g := l.Groups
-	if l.Depthwise {
-		g = in.C
-	}
-	g = max(g, 1)
+	g := l.GroupsFor(in.C)
 	filters := row.Out.C
 	w := filters * (in.C / g) * l.Kernel.H * l.Kernel.W
 	bias := ""
@@ -121,6 +139,9 @@ func explainConv(row *Row) []string {
 	perGroup := strconv.FormatInt(in.C, 10)
 	if g > 1 {
 		perGroup = fmt.Sprintf("(%d/%d)", in.C, g)
+	}
+	if l.GroupWidth > 0 && !l.Depthwise && l.Groups <= 1 {
+		out = append(out, fmt.Sprintf("groups = %d input channels / group width %d = %d", in.C, l.GroupWidth, g))
 	}
 	out = append(out, fmt.Sprintf("params = %d·%d·%s·%d%s = %s", l.Kernel.H, l.Kernel.W, perGroup, filters, bias, GroupDigits(row.Params)))
 	if !l.Rel.IsZero() {
@@ -135,10 +156,7 @@ func explainConv(row *Row) []string {
 
 func torchConv(row *Row) Torch {
 	l, in := row.Layer, row.In
-	groups := max(l.Groups, 1)
-	if l.Depthwise {
-		groups = in.C
-	}
+	groups := l.GroupsFor(in.C)
 	var t Torch
 	pad := "(0, 0)"
 	switch l.Pad.Mode {
@@ -174,13 +192,37 @@ func pyBool(b bool) string {
 	return "False"
 }
 
+// GroupsFor returns the channel groups of a convolution with cin input
+// channels: the input channels when depthwise, cin / GroupWidth with a
+// group width, else Groups (at least 1). Evaluation reports a group width
+// that does not divide the input; this returns at least 1 regardless.
+func (l *Layer) GroupsFor(cin int64) int64 {
+	switch {
+	case l.Depthwise:
+		return max(cin, 1)
+	case l.Groups <= 1 && l.GroupWidth > 0:
+		return max(cin/l.GroupWidth, 1)
+	}
+	return max(l.Groups, 1)
+}
+
 // groups resolves and checks the channel groups of a (transposed)
 // convolution of filters outputs.
 func (c *calc) groups(cin, filters int64) (int64, bool) {
 	g := c.l.Groups
-	if c.l.Depthwise {
+	switch {
+	case c.l.Depthwise:
 		g = cin
-	} else if g == 0 {
+	case g <= 1 && c.l.GroupWidth != 0:
+		if !c.atLeast("group-width", c.l.GroupWidth, 1) {
+			return 0, false
+		}
+		if cin%c.l.GroupWidth != 0 {
+			c.fail(Diagnostic{Code: ErrGroupWidth, Field: "group-width", A: cin, B: c.l.GroupWidth})
+			return 0, false
+		}
+		g = cin / c.l.GroupWidth
+	case g == 0:
 		g = 1
 	}
 	if !c.atLeast("groups", g, 1) {
@@ -214,7 +256,7 @@ func (c *calc) conv(f *flow, transposed bool) {
 		return
 	}
 	g, cin := int64(1), in.C
-	if l.Groups > 1 || l.Depthwise || l.Groups < 0 {
+	if l.Groups > 1 || l.Depthwise || l.Groups < 0 || l.GroupWidth != 0 {
 		if g, ok = c.groups(in.C, filters); !ok {
 			return
 		}
@@ -319,7 +361,7 @@ func (c *calc) deconvAxis(ax byte, in, k, s, d int64, pad Padding, p, op int64) 
 func convWork(row *Row) Work {
 	l := row.Layer
 	switch {
-	case l.Depthwise || l.Groups > 1:
+	case l.Depthwise || l.Groups > 1 || l.GroupsFor(row.In.C) > 1:
 		return weightedWork(row, ClassGrouped)
 	case l.Kernel.H == 1 && l.Kernel.W == 1 && (row.Unstrided || l.EffectiveStride() == Square(1)):
 		return weightedWork(row, ClassPointwise)

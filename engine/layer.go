@@ -173,6 +173,13 @@ type Layer struct {
 	Rel Rel
 	// conv, deconv, dense: no additive bias.
 	NoBias bool
+	// conv, deconv, dense: the layer writes bias: yes itself, so a stack's
+	// defaults cannot take its bias away (never set with NoBias).
+	BiasOn bool
+	// conv, deconv: groups from a channels-per-group figure (group width,
+	// Radosavovic et al. 2020): groups = input channels / GroupWidth;
+	// zero: Groups (or Depthwise) decides.
+	GroupWidth int64
 	// deconv: extra rows/columns added at the bottom/right of the output.
 	OutPad Pair
 
@@ -190,7 +197,8 @@ type Layer struct {
 	Norm       NormKind
 	NormGroups int64
 	Affine     Toggle
-	// norm: the ε added to the variance; zero means PyTorch's 1e-5.
+	// norm: the ε added to the variance; zero means unwritten: the stack's
+	// default for norms, else PyTorch's 1e-5.
 	Eps float64
 	// dense: apply at every position of a map (over its channels), as a
 	// 1×1 convolution does, instead of needing a 1×1 map.
@@ -247,6 +255,9 @@ type Layer struct {
 	// innermost enclosing block repeat, not of the innermost body (gate,
 	// branch or repeat).
 	RelBlock bool
+	// conv, deconv, dense: a relative width reads the layer's own input
+	// (its row's input channels), not an enclosing body's.
+	RelInput bool
 	// conv, deconv, dense: round a relative width to a multiple of this,
 	// never below it nor below 90% of the exact value; zero: no rounding.
 	RoundTo int64
@@ -309,6 +320,9 @@ func (k Kind) HasWeights() bool { return SpecOf(k).Weighted }
 // Normalized returns the layer with every field that equals its kind's
 // default reset to the zero value, so that two layers that compute the same
 // thing compare equal (the stack file's canonical form relies on this).
+// Fields a stack's defaults may set (Param.FileDefault) are kept as
+// written: a written value, even one equal to the kind's default, holds
+// whatever the defaults say.
 func (l Layer) Normalized() Layer {
 	if l.Kind == KindPool && l.Stride == l.Kernel || l.Kind != KindPool && l.Stride == Square(1) {
 		l.Stride = Pair{}
@@ -325,8 +339,11 @@ func (l Layer) Normalized() Layer {
 	if l.Pad.Mode != PadExplicit {
 		l.Pad.Size = Pair{}
 	}
-	if l.Kind == KindNorm && l.Eps == 1e-5 {
-		l.Eps = 0
+	if l.NoBias {
+		l.BiasOn = false
+	}
+	if l.Depthwise || l.Groups > 1 {
+		l.GroupWidth = 0
 	}
 	if l.Kind == KindBlock && l.Repeat < 1 {
 		l.Repeat = 1

@@ -84,6 +84,10 @@ type Param struct {
 	// kind's main value out of a stack file): they take Default.
 	Optional bool
 	Default  Value
+	// FileDefault: a stack's defaults may set the field for every layer of
+	// the kind that leaves it unwritten (Defaults); its zero Value means
+	// unwritten, and Layer.Normalized keeps any other value as written.
+	FileDefault bool
 	// Only, when set, says when the field applies; OnlyMsg is the stack
 	// file's complaint and OnlyQuick quick entry's when it is given
 	// elsewhere.

@@ -324,3 +324,99 @@ func TestRearrangeErrors(t *testing.T) {
 		})
 	}
 }
+
+func TestGroupWidth(t *testing.T) {
+	tests := []struct {
+		source         string
+		in             Shape
+		stride, groups int64
+		params         int64
+	}{
+		{"torchvision regnet_y_400mf block1-0.f.b: 48 channels, 6 groups", Shape{48, 112, 112}, 2, 6, 3456},
+		{"torchvision regnet_y_400mf block2-1.f.b: 104 channels, 13 groups", Shape{104, 28, 28}, 1, 13, 7488},
+		{"torchvision regnet_y_400mf block3-0.f.b: 208 channels, 26 groups", Shape{208, 28, 28}, 2, 26, 14976},
+		{"torchvision regnet_y_400mf block4-5.f.b: 440 channels, 55 groups", Shape{440, 7, 7}, 1, 55, 31680},
+	}
+	for _, tt := range tests {
+		t.Run(tt.source, func(t *testing.T) {
+			l := Layer{Kind: KindConv, Filters: tt.in.C, Kernel: Square(3), Stride: Square(tt.stride), Pad: Padding{Size: Square(1)}, GroupWidth: 8, NoBias: true}
+			r, row := single(tt.in, l)
+			if r.Errors != 0 {
+				t.Fatalf("unexpected errors: %v", r.Diags)
+			}
+			out := (tt.in.H-1)/tt.stride + 1
+			if row.Out != (Shape{tt.in.C, out, out}) || row.Params != tt.params || row.MACs != tt.params*out*out {
+				t.Errorf("out %v params %d MACs %d; want %d×%d×%d, %d, %d", row.Out, row.Params, row.MACs, tt.in.C, out, out, tt.params, tt.params*out*out)
+			}
+			if g := l.GroupsFor(tt.in.C); g != tt.groups {
+				t.Errorf("groups %d, want %d", g, tt.groups)
+			}
+			// The same layer with the groups written out computes the same.
+			l.GroupWidth, l.Groups = 0, tt.groups
+			_, same := single(tt.in, l)
+			if same.Params != row.Params || same.MACs != row.MACs {
+				t.Errorf("with groups %d: params %d MACs %d, want %d %d", tt.groups, same.Params, same.MACs, row.Params, row.MACs)
+			}
+		})
+	}
+	// A width that is not a multiple of the group width has no grouping;
+	// PyTorch's Conv2d refuses in_channels not divisible by groups.
+	r, _ := single(Shape{100, 8, 8}, Layer{Kind: KindConv, Filters: 100, Kernel: Square(3), GroupWidth: 8})
+	if !hasCode(r, ErrGroupWidth) || r.Diags[0].Field != "group-width" {
+		t.Fatalf("100 channels at group width 8: %v, want ErrGroupWidth on group-width", r.Diags)
+	}
+	if msg := r.Diags[0].Message(); msg != "input channels 100 are not a multiple of group-width 8 (groups = input channels / group width); pick a group width that divides 100, e.g. 4, or write groups instead" {
+		t.Errorf("message %q", msg)
+	}
+	if got := r.Describe(r.Diags[0]); got[:len("layer 1 (conv)")] != "layer 1 (conv)" {
+		t.Errorf("describe %q", got)
+	}
+}
+
+func TestRelativeToInput(t *testing.T) {
+	dw := Layer{Kind: KindConv, Rel: Rel{Mul: 1}, Kernel: Square(3), Pad: Padding{Size: Square(1)}, Depthwise: true, NoBias: true}
+	tests := []struct {
+		source   string
+		relInput bool
+		out      int64
+		params   int64
+		err      Code
+	}{
+		{"Sandler et al. 2018, Table 1: the depthwise step reads the 144 expanded channels", true, 144, 144 * 9, 0},
+		{"x1 of the block's input is 24, which the 144 channels do not group into (PyTorch: out_channels divisible by groups)", false, 0, 0, ErrGroupsFilters},
+	}
+	for _, tt := range tests {
+		t.Run(tt.source, func(t *testing.T) {
+			l := dw
+			l.RelInput = tt.relInput
+			s := &Stack{Input: Shape{24, 56, 56}, Layers: []Layer{{Kind: KindBlock, Repeat: 1, Body: []Layer{
+				{Kind: KindConv, Rel: Rel{Mul: 6}, Kernel: Square(1), NoBias: true}, l}}}}
+			r := Evaluate(s)
+			if tt.err != 0 {
+				if !hasCode(r, tt.err) {
+					t.Fatalf("diagnostics %v, want %v", r.Diags, tt.err)
+				}
+				return
+			}
+			if r.Errors != 0 {
+				t.Fatalf("unexpected errors: %v", r.Diags)
+			}
+			row := r.Rows[1]
+			if row.Out.C != tt.out || row.Params != tt.params {
+				t.Errorf("out %v params %d, want %d channels, %d", row.Out, row.Params, tt.out, tt.params)
+			}
+			if got := r.Explain(1); !contains(got, "width = channels of this layer's input × 1 = 144") {
+				t.Errorf("explain %q", got)
+			}
+		})
+	}
+}
+
+func contains(lines []string, s string) bool {
+	for _, l := range lines {
+		if l == s {
+			return true
+		}
+	}
+	return false
+}

@@ -3,8 +3,8 @@ package engine
 import "slices"
 
 // Stack is a whole network description: a name, the per-sample input shape,
-// the layers in order, the training settings and the settings of the
-// stage InsertStage adds.
+// the layers in order, the training settings, the settings of the stage
+// InsertStage adds and the stack's own field defaults.
 type Stack struct {
 	Name     string
 	Note     string
@@ -12,6 +12,9 @@ type Stack struct {
 	Layers   []Layer
 	Training Training
 	Stage    Stage
+	// Defaults are the stack's own field defaults per kind (a norm's
+	// eps): every layer that leaves such a field unwritten takes them.
+	Defaults Defaults
 	// Quiet lists the warnings this stack silences (each a warning code,
 	// once): Evaluate does not report them.
 	Quiet []Code
@@ -26,6 +29,7 @@ func (s *Stack) Clone() *Stack {
 	c.Layers = CloneLayers(s.Layers)
 	c.Quiet = slices.Clone(s.Quiet)
 	c.Units = CloneUnits(s.Units)
+	c.Defaults = s.Defaults.Clone()
 	return &c
 }
 

@@ -330,15 +330,6 @@ func CloneUnits(us []Unit) []Unit {
 	return out
 }
 
-// countLayers counts the layers of ls, bodies included.
-func countLayers(ls []Layer) int {
-	n := len(ls)
-	for i := range ls {
-		n += countLayers(ls[i].Body)
-	}
-	return n
-}
-
 // EditThroughUse turns a change made to a use's rows into a change of
 // its unit, so that a unit is edited once for every use: fresh is the
 // use's expansion before the change, edited the expansion changed. A field

@@ -110,7 +110,7 @@ func ResolveWidth(n int64, r Rel, roundTo, in int64) int64 {
 
 // width resolves the layer's width in this row and checks it: a relative
 // width reads the input of the enclosing body (or block), recorded while
-// the enclosing items were entered.
+// the enclosing items were entered, or the row's own input.
 func (c *calc) width(field string) (int64, bool) {
 	l := c.l
 	if l.Rel.IsZero() {
@@ -118,7 +118,10 @@ func (c *calc) width(field string) (int64, bool) {
 	}
 	lvl := min(c.row.Path.Len()/2, len(c.r.ref)-1)
 	ref := c.r.ref[lvl]
-	if l.RelBlock {
+	switch {
+	case l.RelInput:
+		ref = c.row.In.C
+	case l.RelBlock:
 		ref = c.r.blockRef[lvl]
 	}
 	n := ResolveWidth(0, l.Rel, l.RoundTo, ref)
@@ -136,18 +139,21 @@ func (c *calc) width(field string) (int64, bool) {
 // widthParams are the fields of a relative width, shared by the weighted
 // kinds: what it is relative to and its rounding.
 var widthParams = []Param{
-	{Key: "relative-to", Help: "body (the enclosing block repeat, gate or branch's input) or block (the enclosing repeat's input)",
-		Type: TChoice, Choices: []string{"body", "block"}, Words: []string{"", "of-block"},
+	{Key: "relative-to", Help: "body (the enclosing block repeat, gate or branch's input), block (the enclosing repeat's input) or input (this layer's own input)",
+		Type: TChoice, Choices: []string{"body", "block", "input"}, Words: []string{"", "of-block", "of-input"},
 		Only:      func(l *Layer) bool { return !l.Rel.IsZero() },
 		OnlyMsg:   "relative-to needs a relative width such as x6 or /4",
 		OnlyQuick: "needs a relative width such as x6 or /4",
 		get: func(l *Layer) Value {
-			if l.RelBlock {
+			switch {
+			case l.RelInput:
+				return Value{Int: 2}
+			case l.RelBlock:
 				return Value{Int: 1}
 			}
 			return Value{}
 		},
-		set: func(l *Layer, v Value) { l.RelBlock = v.Int == 1 }},
+		set: func(l *Layer, v Value) { l.RelBlock, l.RelInput = v.Int == 1, v.Int == 2 }},
 	{Key: "round", Help: "round a relative width to a multiple of this (8 in the MobileNet family), or 0 for none",
 		Type: TInt, Lo: 0, Hi: 1024, Quick: "round",
 		Only:      func(l *Layer) bool { return !l.Rel.IsZero() },
@@ -161,7 +167,10 @@ var widthParams = []Param{
 func widthLine(row *Row) string {
 	l := row.Layer
 	of := "the enclosing body's input"
-	if l.RelBlock {
+	switch {
+	case l.RelInput:
+		of = "this layer's input"
+	case l.RelBlock:
 		of = "the enclosing block repeat's input"
 	}
 	how := "× " + strconv.FormatFloat(l.Rel.Mul, 'g', -1, 64)

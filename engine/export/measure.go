@@ -72,10 +72,7 @@ func writeProbes(w io.Writer, an *engine.Analysis) {
 			inF := row.MACs / max(pos*out.C, 1)
 			op = fmt.Sprintf("\"op\": \"dense\", \"positions\": %d, \"in\": %d, \"out\": %d, \"bias\": %s", pos, inF, out.C, pyBool(!l.NoBias))
 		default:
-			g := max(l.Groups, 1)
-			if l.Depthwise {
-				g = in.C
-			}
+			g := l.GroupsFor(in.C)
 			before, _ := l.ResolvedPadding(in)
 			s, d := l.EffectiveStride(), l.EffectiveDilation()
 			if row.Unstrided {

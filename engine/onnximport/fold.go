@@ -161,7 +161,7 @@ func (f *folder) match(a, b *item) bool {
 // name, and groups when they follow the input.
 func (f *folder) shape(it *item) engine.Layer {
 	l := it.l
-	l.Filters, l.Rel, l.RoundTo, l.RelBlock, l.Stride, l.Name = 0, engine.Rel{}, 0, false, engine.Pair{}, ""
+	l.Filters, l.Rel, l.RoundTo, l.RelBlock, l.RelInput, l.Stride, l.Name = 0, engine.Rel{}, 0, false, false, engine.Pair{}, ""
 	if f.depthwise(it) {
 		l.Groups, l.Depthwise = 0, true
 	}
@@ -274,6 +274,7 @@ type width struct {
 	rel   engine.Rel
 	round int64
 	block bool // relative to the enclosing block repeat's input
+	input bool // relative to the layer's own input
 }
 
 // choice is a width for the representative layer of a position.
@@ -320,6 +321,13 @@ func (f *folder) widths(bodies [][]*item) ([]choice, bool) {
 			cs = append(cs, c)
 			continue
 		}
+		if dw && f.inputWidth(ps) {
+			// A depthwise convolution after a width change reads best as
+			// "as wide as its input" (x1, relative-to: input).
+			c.w = width{rel: engine.Rel{Mul: 1}, input: true}
+			cs = append(cs, c)
+			continue
+		}
 		found := false
 		for _, block := range []bool{false, true} {
 			for _, round := range []int64{0, 8} {
@@ -363,14 +371,29 @@ func (f *folder) widths(bodies [][]*item) ([]choice, bool) {
 	return cs, true
 }
 
+// inputWidth reports whether every instance of a position is as wide as
+// its own input and not every one as wide as its body's input (where x1
+// of the body reads as well).
+func (f *folder) inputWidth(ps []place) bool {
+	body := true
+	for _, p := range ps {
+		in, out := f.in[p.it].C, f.out[p.it].C
+		if in < 1 || out != in {
+			return false
+		}
+		body = body && p.body == in
+	}
+	return !body
+}
+
 // apply writes the chosen widths into the representative layers.
 func apply(cs []choice) {
 	for _, c := range cs {
 		l := &c.it.l
 		if c.w.rel.IsZero() {
-			l.Filters, l.Rel, l.RoundTo, l.RelBlock = c.w.abs, engine.Rel{}, 0, false
+			l.Filters, l.Rel, l.RoundTo, l.RelBlock, l.RelInput = c.w.abs, engine.Rel{}, 0, false, false
 		} else {
-			l.Rel, l.RoundTo, l.RelBlock = c.w.rel, c.w.round, c.w.block
+			l.Rel, l.RoundTo, l.RelBlock, l.RelInput = c.w.rel, c.w.round, c.w.block, c.w.input
 		}
 		if c.depthwise {
 			l.Groups, l.Depthwise = 0, true

@@ -134,6 +134,7 @@ func (im *importer) model(m *onnxpb.Model, consts map[string]*onnxpb.Tensor, nam
 	s := &engine.Stack{Name: name, Input: in}
 	if err != nil {
 		s.Layers = b.finish(s, items)
+		tidy(s)
 		if werr := writable(s); werr != nil {
 			s.Layers = nil // the layers before the stop are past a limit: none are kept
 		}
@@ -145,6 +146,7 @@ func (im *importer) model(m *onnxpb.Model, consts map[string]*onnxpb.Tensor, nam
 		}
 	}
 	s.Layers = b.finish(s, items)
+	tidy(s)
 	im.res.Read = im.res.Nodes
 	if err := writable(s); err != nil {
 		return nil, nil, err

@@ -120,7 +120,7 @@ func (b *builder) layer(k int) (*item, string, error) {
 		}
 		b.count(false, in(1), in(2))
 	case "BatchNormalization":
-		l = engine.Layer{Kind: engine.KindNorm, Norm: engine.NormBatch}
+		l = engine.Layer{Kind: engine.KindNorm, Norm: engine.NormBatch, Eps: pytorchEps} // ONNX's default epsilon
 		if a := attr(n, "epsilon"); a != nil {
 			l.Eps = f32(a.GetF())
 		}

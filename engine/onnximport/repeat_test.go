@@ -60,8 +60,9 @@ func top(ls []engine.Layer) string {
 // TestFoldInvertedStage: a stage whose first unit strides and widens
 // (8 → 16, no addition) and whose later units add their input is one
 // block of 3 with an identity-only residual, written as its first repeat
-// with the expansion x6 of each repeat's input and the depthwise groups
-// following it (Sandler et al. 2018, Table 2: t = 6, n = 3, s = 2).
+// with the expansion x6 of each repeat's input and the depthwise
+// convolution as wide as its own input (x1, relative-to: input) (Sandler
+// et al. 2018, Table 2: t = 6, n = 3, s = 2).
 func TestFoldInvertedStage(t *testing.T) {
 	s, _, err := Import(inverted(t, [][4]int64{{8, 48, 16, 2}, {16, 96, 16, 1}, {16, 96, 16, 1}}), "mb")
 	if err != nil {
@@ -75,8 +76,8 @@ func TestFoldInvertedStage(t *testing.T) {
 		t.Fatalf("block %+v", b)
 	}
 	e, d, p := b.Body[0], b.Body[2], b.Body[4]
-	if e.Rel != (engine.Rel{Mul: 6}) || d.Rel != (engine.Rel{Mul: 6}) || !d.Depthwise || d.Stride != engine.Square(2) || !p.Rel.IsZero() || p.Filters != 16 {
-		t.Errorf("expand %v, depthwise %v groups %d dw %v stride %v, project %d %v", e.Rel, d.Rel, d.Groups, d.Depthwise, d.Stride, p.Filters, p.Rel)
+	if e.Rel != (engine.Rel{Mul: 6}) || d.Rel != (engine.Rel{Mul: 1}) || !d.RelInput || !d.Depthwise || d.Stride != engine.Square(2) || !p.Rel.IsZero() || p.Filters != 16 {
+		t.Errorf("expand %v, depthwise %v of input %v groups %d dw %v stride %v, project %d %v", e.Rel, d.Rel, d.RelInput, d.Groups, d.Depthwise, d.Stride, p.Filters, p.Rel)
 	}
 	// The folded stack counts what the graph holds: 3·3·3·8 for the stem,
 	// then per unit in·6in + 9·6in + 6in·out.

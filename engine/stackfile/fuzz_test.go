@@ -32,6 +32,7 @@ func FuzzLoad(f *testing.F) {
 	f.Add([]byte("stackfit: 1\ninput: [8, 8, 8]\nlayers:\n  - block: 2\n    residual: true\n    shortcut: identity\n    drop-path: 0.1\n    layers:\n      - {conv: 16, kernel: 1}\n      - gate: channel\n        layers: [global-pool, {conv: 4, kernel: 1}, {act: relu}, {conv: 16, kernel: 1}, {act: sigmoid}]\n"))
 	f.Add([]byte("stackfit: 1\ninput: [3, 8, 8]\nlayers:\n  - block: 2\n    residual: true\n    layers: [{add: x}]\n"))
 	f.Add([]byte("stackfit: 1\ninput: [8, 8, 8]\nlayers:\n  - fork: copy\n    name: f\n    branches:\n      - [{conv: x2, kernel: 1, round: 8}]\n      - - {conv: /2, kernel: 3, pad: 1, relative-to: block}\n        - fork: split\n          branches: [[], [{conv: x1, kernel: 1}]]\n      - []\n      - {name: b, layers: [{dense: x4, per-position: true}]}\n  - {norm: layer, eps: 1.0e-06}\n"))
+	f.Add([]byte("stackfit: 1\ninput: [16, 8, 8]\ndefaults:\n  conv: {bias: false}\n  norm: {eps: 0.001}\n  act: {slope: 0.2}\nlayers:\n  - {conv: 16, kernel: 1, bias: true}\n  - {norm: batch, eps: 1.0e-05}\n  - {act: leaky-relu}\n  - {conv: x1, kernel: 3, groups: depthwise, relative-to: input}\n  - {conv: 16, kernel: 3, group-width: 8}\n"))
 	sentinels := []error{ErrSyntax, ErrUnknown, ErrType, ErrRange, ErrMissing, ErrVersion, ErrTooLarge, ErrAlias, ErrNesting, ErrName}
 	f.Fuzz(func(t *testing.T, data []byte) {
 		s, err := Load(data)

@@ -239,7 +239,7 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 	}
 	s := &engine.Stack{}
 	var haveInput, haveLayers bool
-	top := []string{"stackfit", "name", "note", "input", "training", "stage", "quiet", "units", "layers"}
+	top := []string{"stackfit", "name", "note", "input", "training", "stage", "quiet", "defaults", "units", "layers"}
 	for _, kv := range d.mapping(doc.Content[0], "file", "a stack (stackfit:, name:, input:, layers:)") {
 		k, v := kv[0], kv[1]
 		switch k.Value {
@@ -259,6 +259,8 @@ func (d *decoder) document(doc *yaml.Node) *engine.Stack {
 			s.Stage = d.stage(v)
 		case "quiet":
 			s.Quiet = d.quiet(v)
+		case "defaults":
+			s.Defaults = d.defaults(v)
 		case "units":
 			s.Units = d.units(v)
 		case "layers":

@@ -45,6 +45,9 @@ func document(s *engine.Stack) *yaml.Node {
 			put(root, "quiet", q)
 		}
 	}
+	if ds := defaults(s.Defaults); ds != nil {
+		put(root, "defaults", ds)
+	}
 	if len(s.Units) > 0 {
 		put(root, "units", unitsNode(s.Units))
 	}

@@ -137,11 +137,11 @@ func TestLoadErrors(t *testing.T) {
 		want     string // the whole first error
 	}{
 		{"unknown key with hint", head + "  - {conv: 8, kernal: 3}\n",
-			ErrUnknown, `4:15: layer 1 (conv): unknown key "kernal"; did you mean "kernel"? (allowed: conv, kernel, stride, pad, dilation, groups, bias, relative-to, round, name, note)`},
+			ErrUnknown, `4:15: layer 1 (conv): unknown key "kernal"; did you mean "kernel"? (allowed: conv, kernel, stride, pad, dilation, groups, group-width, bias, relative-to, round, name, note)`},
 		{"unknown kind with hint", head + "  - {convv: 8, kernel: 3}\n",
 			ErrUnknown, `4:5: layer 1: unknown layer kind "convv"; did you mean "conv"? (kinds: conv, deconv, pool, global-pool, pool-to, upsample, norm, act, dropout, flatten, dense, reshape, block, concat, add, gate, scale, shuffle, fork, branch, to-space, to-channels, keep)`},
 		{"unknown top-level key", "stackfit: 1\ninput: [3, 32, 32]\nlayer:\n  - flatten\n",
-			ErrUnknown, `3:1: file: unknown key "layer"; did you mean "layers"? (allowed: stackfit, name, note, input, training, stage, quiet, units, layers)`},
+			ErrUnknown, `3:1: file: unknown key "layer"; did you mean "layers"? (allowed: stackfit, name, note, input, training, stage, quiet, defaults, units, layers)`},
 		{"wrong type", head + "  - {conv: eight, kernel: 3}\n",
 			ErrType, `4:12: layer 1 (conv) → conv (filters): expected a whole number, found the text "eight"`},
 		{"negative", head + "  - {conv: 8, kernel: -3}\n",

@@ -31,8 +31,12 @@ func (m *Model) analyzeQuick(s *engine.Stack) *engine.Analysis {
 func (m *Model) layerForm(title string, orig engine.Layer, place func(s *engine.Stack, l engine.Layer), commit func(l engine.Layer) tea.Cmd, cancelled string) {
 	fields := engine.FieldsFor(orig.Kind)
 	ff := make([]form.Field, len(fields))
+	// The form shows what the layer computes with: a field the layer
+	// leaves to the stack's defaults shows the default, and stays
+	// unwritten unless it is changed.
+	shown := m.stack.Defaults.Resolve(&orig)
 	for i, fl := range fields {
-		ff[i] = form.Field{Key: fl.Key, Help: fl.Help, Value: fl.Get(&orig), Limit: fl.Limit}
+		ff[i] = form.Field{Key: fl.Key, Help: fl.Help, Value: fl.Get(&shown), Limit: fl.Limit}
 	}
 	build := func(values []string) (engine.Layer, []string) {
 		l := orig

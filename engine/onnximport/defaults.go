@@ -1,0 +1,121 @@
+package onnximport
+
+import (
+	"slices"
+
+	"stackfit/engine"
+)
+
+// pytorchEps is the ε PyTorch's norms take when none is given (and ONNX's
+// BatchNormalization and InstanceNormalization when epsilon is absent).
+const pytorchEps = 1e-5
+
+// tidy writes what repeats across the stack once: a norm ε most norms
+// share becomes the file's default for norms, and grouped convolutions
+// that share one group width while their group counts differ (RegNet's
+// design) are written with that group width. The stack computes exactly
+// what it did before; a rewrite that would change a count is dropped.
+func tidy(s *engine.Stack) {
+	groupWidths(s)
+	normEps(s)
+}
+
+// normEps sets the file's default ε for norms to the value most norms
+// share when that is not PyTorch's, and leaves it out of those norms; a
+// norm with another ε keeps it written (PyTorch's 1e-5 included, then).
+// Without such a default, PyTorch's own ε is left out.
+func normEps(s *engine.Stack) {
+	var norms []*engine.Layer
+	walk(s.Layers, func(l *engine.Layer) {
+		if l.Kind == engine.KindNorm {
+			norms = append(norms, l)
+		}
+	})
+	count := map[float64]int{}
+	best, most := pytorchEps, 0
+	for _, l := range norms {
+		e := l.Eps
+		if e == 0 {
+			e = pytorchEps
+		}
+		count[e]++
+		if count[e] > most || count[e] == most && e == pytorchEps {
+			best, most = e, count[e]
+		}
+	}
+	shared := best != pytorchEps && most >= 2 && 2*most > len(norms)
+	for _, l := range norms {
+		switch {
+		case shared && l.Eps == best:
+			l.Eps = 0
+		case shared && l.Eps == 0:
+			l.Eps = pytorchEps
+		case !shared && l.Eps == pytorchEps:
+			l.Eps = 0
+		}
+	}
+	if shared {
+		_ = s.Defaults.Set(engine.KindNorm, "eps", engine.Value{Float: best}) // a field norms may default
+	}
+}
+
+// groupWidths writes grouped convolutions with their group width (input
+// channels per group) when every grouped convolution of the stack that is
+// not depthwise has the same group width and their group counts differ:
+// RegNet's stages keep one group width while the widths, and so the
+// group counts, grow (Radosavovic et al. 2020, section 3).
+func groupWidths(s *engine.Stack) {
+	r := engine.Evaluate(s)
+	if r.Errors != 0 {
+		return
+	}
+	in := map[*engine.Layer]int64{} // −1: the layer's rows differ in input channels
+	for i := range r.Rows {
+		row := &r.Rows[i]
+		l := row.Layer
+		if l.Kind != engine.KindConv || l.Depthwise || l.Groups <= 1 || row.Role != engine.RoleLayer {
+			continue
+		}
+		if c, seen := in[l]; seen && c != row.In.C {
+			in[l] = -1
+		} else {
+			in[l] = row.In.C
+		}
+	}
+	var width int64
+	var groups []int64
+	for l, c := range in {
+		if c < 1 || c%l.Groups != 0 {
+			return
+		}
+		gw := c / l.Groups
+		if width != 0 && gw != width {
+			return
+		}
+		width = gw
+		if !slices.Contains(groups, l.Groups) {
+			groups = append(groups, l.Groups)
+		}
+	}
+	if len(in) < 2 || len(groups) < 2 {
+		return
+	}
+	before, rows := r.Totals, len(r.Rows)
+	was := engine.CloneLayers(s.Layers)
+	walk(s.Layers, func(l *engine.Layer) {
+		if l.Kind == engine.KindConv && !l.Depthwise && l.Groups > 1 {
+			l.Groups, l.GroupWidth = 0, width
+		}
+	})
+	if after := engine.Evaluate(s); after.Errors != 0 || after.Totals != before || len(after.Rows) != rows {
+		s.Layers = was
+	}
+}
+
+// walk calls fn on every layer of ls, bodies included.
+func walk(ls []engine.Layer, fn func(*engine.Layer)) {
+	for i := range ls {
+		fn(&ls[i])
+		walk(ls[i].Body, fn)
+	}
+}
