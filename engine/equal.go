@@ -39,7 +39,7 @@ func (l *Layer) EqualFields(o *Layer) bool {
 		l.GroupWidth == o.GroupWidth && l.OutPad == o.OutPad &&
 		l.Pool == o.Pool && l.Ceil == o.Ceil && l.Size == o.Size && l.Factor == o.Factor && l.Upsample == o.Upsample &&
 		l.Norm == o.Norm && l.NormGroups == o.NormGroups && l.Affine == o.Affine && same(l.Eps, o.Eps) &&
-		l.PerPosition == o.PerPosition && l.Act == o.Act && same(l.Slope, o.Slope) && same(l.Rate, o.Rate) &&
+		l.PerPosition == o.PerPosition && l.Act == o.Act && same(l.Slope, o.Slope) && l.PerChannel == o.PerChannel && same(l.Rate, o.Rate) &&
 		l.Target == o.Target && l.Repeat == o.Repeat && l.AllStrides == o.AllStrides && l.Residual == o.Residual &&
 		l.NoShortcutNorm == o.NoShortcutNorm && l.PostAct == o.PostAct && l.HasPostAct == o.HasPostAct &&
 		l.IdentityOnly == o.IdentityOnly && same(l.DropPath, o.DropPath) && l.DenseLinks == o.DenseLinks &&

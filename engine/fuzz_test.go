@@ -129,6 +129,8 @@ func stackFromBytes(data []byte) *Stack {
 				l.PixelFactor = wide()
 			case KindKeep:
 				l.Keep = wide()
+			case KindAct:
+				l.PerChannel = next()%2 == 0
 			}
 			if k == KindFork {
 				l.JoinAdd = next()%2 == 0

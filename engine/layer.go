@@ -203,9 +203,12 @@ type Layer struct {
 	// dense: apply at every position of a map (over its channels), as a
 	// 1×1 convolution does, instead of needing a 1×1 map.
 	PerPosition bool
-	// act: function and negative slope (leaky-relu; zero means 0.01).
+	// act: function and negative slope (leaky-relu; zero means 0.01), or
+	// the value prelu's learned slopes start at (zero means 0.25).
 	Act   ActKind
 	Slope float64
+	// act: prelu learns one slope per channel instead of one shared.
+	PerChannel bool
 	// dropout: probability of zeroing an element.
 	Rate float64
 	// reshape: target shape.

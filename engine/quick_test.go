@@ -70,6 +70,12 @@ func TestQuickParse(t *testing.T) {
 		{"to-space 2", engine.Layer{Kind: engine.KindToSpace, PixelFactor: 2}},
 		{"to-channels 3 @down", engine.Layer{Kind: engine.KindToChannels, PixelFactor: 3, Name: "down"}},
 		{"keep 16", engine.Layer{Kind: engine.KindKeep, Keep: 16}},
+		{"act mish", engine.Layer{Kind: engine.KindAct, Act: engine.ActMish}},
+		{"act softmax", engine.Layer{Kind: engine.KindAct, Act: engine.ActSoftmax}},
+		{"act prelu", engine.Layer{Kind: engine.KindAct, Act: engine.ActPReLU}},
+		{"act prelu per-channel", engine.Layer{Kind: engine.KindAct, Act: engine.ActPReLU, PerChannel: true}},
+		{"act prelu 0.1 per-channel", engine.Layer{Kind: engine.KindAct, Act: engine.ActPReLU, PerChannel: true, Slope: 0.1}},
+		{"block 2 residual then mish", engine.Layer{Kind: engine.KindBlock, Repeat: 2, Residual: true, PostAct: engine.ActMish, HasPostAct: true}},
 	}
 	for _, tt := range tests {
 		got, err := engine.ParseQuick(tt.line)
@@ -131,7 +137,7 @@ func TestQuickDidYouMean(t *testing.T) {
 		{"upsample 2 bilinaer", `"bilinaer" does not apply to upsample; did you mean "bilinear"?`},
 		{"global-pool mx", `"mx" does not apply to global-pool; did you mean "max"?`},
 		{"conv 64 k3 nobais", `"nobais" does not apply to conv; did you mean "nobias"?`},
-		{"block 2 residual then lrelu", `give none or one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid; did you mean "leaky-relu"?`},
+		{"block 2 residual then lrelu", `give none or one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid, mish, softmax, prelu; did you mean "leaky-relu"?`},
 		// Nothing close: no guess, the list or the help instead.
 		{"act zzzzzz", "act needs a function: relu, leaky-relu"},
 		{"conv 64 k3 qqqq", `"qqqq" does not apply to conv; see the help (?) for its options`},
@@ -169,6 +175,9 @@ func TestSuggest(t *testing.T) {
 		{"PixelShuffle", kinds, "to-space"},      // PyTorch's module name
 		{"space-to-depth", kinds, "to-channels"}, // ONNX's operator
 		{"slice", kinds, "keep"},
+		{"PReLu", acts, "prelu"},           // PyTorch's nn.PReLU, case aside
+		{"parametric-relu", acts, "prelu"}, // He et al. 2015's name
+		{"Softmax2d", acts, "softmax"},     // PyTorch's nn.Softmax2d
 	}
 	for _, tt := range tests {
 		if got := engine.Suggest(tt.s, tt.candidates); got != tt.want {

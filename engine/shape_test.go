@@ -241,6 +241,49 @@ func TestMobileKinds(t *testing.T) {
 	}
 }
 
+// TestActivationKinds checks mish, softmax and prelu: each keeps the shape
+// and adds no buffer, MAC or receptive field (PyTorch's nn.Mish,
+// nn.Softmax and nn.PReLU documentation: output (*) of input (*), same
+// shape). Mish has no parameters (Misra 2019, eq. 1: x·tanh(softplus(x))),
+// nor has the softmax over the channels; prelu learns one slope per
+// channel or one shared by all (He et al. 2015, section 2.1: "the number
+// of extra parameters is equal to the total number of channels", and the
+// channel-shared variant one per layer).
+func TestActivationKinds(t *testing.T) {
+	tests := []struct {
+		source string
+		in     Shape
+		l      Layer
+		params int64
+	}{
+		{"Misra 2019: Mish is element-wise, no parameters", Shape{64, 56, 56}, Layer{Kind: KindAct, Act: ActMish}, 0},
+		{"PyTorch docs, nn.Softmax(dim=1): a softmax over 21 classes at every position", Shape{21, 64, 48}, Layer{Kind: KindAct, Act: ActSoftmax}, 0},
+		{"He et al. 2015, section 2.1: channel-wise, one slope per channel", Shape{96, 55, 55}, Layer{Kind: KindAct, Act: ActPReLU, PerChannel: true}, 96},
+		{"He et al. 2015, section 2.1: channel-shared, one slope per layer", Shape{96, 55, 55}, Layer{Kind: KindAct, Act: ActPReLU}, 1},
+		{"PyTorch docs, nn.PReLU(num_parameters=C, init): the start value changes no count", Shape{16, 3, 5}, Layer{Kind: KindAct, Act: ActPReLU, PerChannel: true, Slope: 0.5}, 16},
+		{"He et al. 2015: after a fully connected layer, one slope per unit", Shape{4096, 1, 1}, Layer{Kind: KindAct, Act: ActPReLU, PerChannel: true}, 4096},
+	}
+	for _, tt := range tests {
+		t.Run(tt.source, func(t *testing.T) {
+			r, row := single(tt.in, tt.l)
+			if r.Errors != 0 {
+				t.Fatalf("unexpected errors: %v", r.Diags)
+			}
+			if row.Out != tt.in || row.Params != tt.params || r.Totals.Params != tt.params || row.Buffers != 0 || row.MACs != 0 || row.RF != (FPair{1, 1}) {
+				t.Errorf("out %v params %d (total %d) buffers %d MACs %d rf %v; want %v, %d, 0, 0, 1×1",
+					row.Out, row.Params, r.Totals.Params, row.Buffers, row.MACs, row.RF, tt.in, tt.params)
+			}
+		})
+	}
+	// A residual block's activation after its addition may be prelu: one
+	// shared slope per repeat (the block's after: names no field).
+	body := []Layer{{Kind: KindConv, Filters: 8, Kernel: Square(3), Pad: Padding{Size: Square(1)}, NoBias: true}}
+	r := Evaluate(&Stack{Input: Shape{8, 6, 6}, Layers: []Layer{{Kind: KindBlock, Repeat: 2, Residual: true, HasPostAct: true, PostAct: ActPReLU, Body: body}}})
+	if want := int64(2 * (8*8*9 + 1)); r.Errors != 0 || r.Totals.Params != want {
+		t.Errorf("two repeats then prelu: %d params (%v), want %d", r.Totals.Params, r.Diags, want)
+	}
+}
+
 // TestRearrangeKinds checks the sub-pixel rearrangements and the channel
 // slice: to-space takes C·r² channels at H×W to C at rH×rW and to-channels
 // reverses it (PyTorch's nn.PixelShuffle and nn.PixelUnshuffle

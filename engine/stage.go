@@ -79,7 +79,7 @@ func StageTemplate(s *Stack, after int) StageOptions {
 			opt.Norm, opt.Groups = c.norm.Norm, c.norm.NormGroups
 		}
 		opt.NoAct = !c.hasAct
-		opt.Act, opt.Slope = c.act, c.slope
+		opt.Act, opt.Slope, opt.PerChannel = c.act, c.slope, c.perChannel
 	}
 	if st.Kernel > 0 {
 		opt.Kernel = st.Kernel
@@ -108,6 +108,9 @@ func StageTemplate(s *Stack, after int) StageOptions {
 	if opt.NoAct || opt.Act != ActLeakyReLU {
 		opt.Slope = 0
 	}
+	if opt.NoAct || opt.Act != ActPReLU {
+		opt.PerChannel = false
+	}
 	if opt.NoNorm || opt.Norm != NormGroup {
 		opt.Groups = 0
 	}
@@ -117,11 +120,12 @@ func StageTemplate(s *Stack, after int) StageOptions {
 // copied is what StageTemplate copies from the stack: a convolution, the
 // norm after it and the activation after that.
 type copied struct {
-	conv   *Layer
-	norm   *Layer // nil: no norm follows
-	hasAct bool
-	act    ActKind
-	slope  float64
+	conv       *Layer
+	norm       *Layer // nil: no norm follows
+	hasAct     bool
+	act        ActKind
+	slope      float64
+	perChannel bool // a prelu's one slope per channel
 }
 
 // nearestConv finds the last plain convolution in ls (bodies included) and
@@ -159,7 +163,7 @@ func nearestConv(ls []Layer, post *Layer) copied {
 			j++
 		}
 		if n := next(j); n != nil && n.Kind == KindAct {
-			c.hasAct, c.act, c.slope = true, n.Act, n.Slope
+			c.hasAct, c.act, c.slope, c.perChannel = true, n.Act, n.Slope, n.PerChannel
 		}
 		return c
 	}

@@ -115,7 +115,7 @@ func TestStageSettingsRefuse(t *testing.T) {
 		{"bias", "maybe", `bias: "maybe" is not valid; give yes or no`},
 		{"norm", "bn", `norm: "bn" is not valid; give one of batch, group, instance, layer, none; did you mean "batch"?`},
 		{"groups", "x", `groups: "x" is not valid; give a whole number from 1 to 16777216`},
-		{"act", "lrelu", `act: "lrelu" is not valid; give one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid, none; did you mean "leaky-relu"?`},
+		{"act", "lrelu", `act: "lrelu" is not valid; give one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid, mish, softmax, prelu, none; did you mean "leaky-relu"?`},
 		{"slope", "0", `slope: "0" is not valid; give a number above 0 and below 1e6, e.g. 0.2`},
 		{"slope", "NaN", `slope: "NaN" is not valid; give a number above 0 and below 1e6, e.g. 0.2`},
 		{"up", "transposed", `up: "transposed" is not valid; give one of deconv, upsample`},

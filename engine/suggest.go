@@ -12,7 +12,9 @@ var aliases = map[string]string{
 	"swish":           "silu", // Ramachandran et al. 2017 name x·sigmoid(x) swish
 	"hswish":          "hard-swish",
 	"hsigmoid":        "hard-sigmoid",
-	"bn":              "batch", // norm batch
+	"parametric-relu": "prelu",   // He et al. 2015's parametric rectified linear unit
+	"softmax2d":       "softmax", // PyTorch's nn.Softmax2d: the softmax over the channels
+	"bn":              "batch",   // norm batch
 	"batchnorm":       "batch",
 	"gn":              "group",
 	"groupnorm":       "group",

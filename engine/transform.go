@@ -121,7 +121,10 @@ type StageOptions struct {
 	NoAct  bool     // no activation after each norm
 	Act    ActKind  // the activation (ReLU by default)
 	Slope  float64  // leaky-relu's negative slope; 0 means its default, 0.01
-	Up     UpMode   // how an up-stage (InsertUpStage) doubles the size
+	// PerChannel: a prelu activation learns one slope per channel (copied
+	// from the stack's; the stage settings name no field for it).
+	PerChannel bool
+	Up         UpMode // how an up-stage (InsertUpStage) doubles the size
 }
 
 // InsertStage returns a copy of s with a downsampling stage inserted after
@@ -179,6 +182,7 @@ func stageBody(conv Layer, opt StageOptions) ([]Layer, error) {
 		if opt.Act == ActLeakyReLU {
 			act.Slope = opt.Slope
 		}
+		act.PerChannel = opt.Act == ActPReLU && opt.PerChannel
 		body = append(body, act)
 	}
 	return body, nil

@@ -61,6 +61,7 @@ func (im *importer) graph(g *onnxpb.Graph, x string) (*graph, error) {
 			}
 			if len(n.GetOutput()) == 1 {
 				im.fold(n)
+				im.unsqueezeWeight(n)
 			}
 			if ins := n.GetInput(); len(ins) == 1 && len(n.GetOutput()) == 1 {
 				im.foldData(n, gr.shapes[resolve(ins[0])])

@@ -96,10 +96,23 @@ type importer struct {
 	initial   map[string]bool
 	shapeOnly bool // the initializers were decoded without their values
 	missing   bool // a value was wanted that shapeOnly left out
+	// opset is the model's ONNX operator set (its default domain's).
+	opset int64
+	// unsqueezed maps the output of a folded Unsqueeze of a weight to
+	// that weight and the output's dimensions (a PReLU slope exported
+	// without constant folding: Unsqueeze(weight [C], axes 1, 2)).
+	unsqueezed map[string]weightView
+}
+
+// weightView is a weight seen through a folded Unsqueeze.
+type weightView struct {
+	weight string
+	dims   []int64
 }
 
 func newImporter(shapeOnly bool) *importer {
-	return &importer{consts: map[string]*onnxpb.Tensor{}, values: map[string][]int64{}, initial: map[string]bool{}, shapeOnly: shapeOnly}
+	return &importer{consts: map[string]*onnxpb.Tensor{}, values: map[string][]int64{}, initial: map[string]bool{}, shapeOnly: shapeOnly,
+		unsqueezed: map[string]weightView{}}
 }
 
 // model imports a decoded model.
@@ -111,6 +124,9 @@ func (im *importer) model(m *onnxpb.Model, consts map[string]*onnxpb.Tensor, nam
 	for _, op := range m.GetOpsetImport() {
 		if (op.GetDomain() == "" || op.GetDomain() == "ai.onnx") && (op.GetVersion() < 7 || op.GetVersion() > 21) {
 			return nil, nil, fmt.Errorf("%w: opset %d; opsets 7 to 21 are read (torch.onnx.export writes 13 to 17)", ErrImport, op.GetVersion())
+		}
+		if op.GetDomain() == "" || op.GetDomain() == "ai.onnx" {
+			im.opset = op.GetVersion()
 		}
 	}
 	im.res = &Result{Nodes: len(g.GetNode())}

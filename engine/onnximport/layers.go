@@ -22,6 +22,8 @@ func activation(n *onnxpb.Node) (engine.ActKind, bool) {
 		return engine.ActHardSwish, true
 	case "Gelu":
 		return engine.ActGELU, true
+	case "Mish": // an ONNX operator from opset 18
+		return engine.ActMish, true
 	}
 	return 0, false
 }
@@ -188,7 +190,7 @@ func (b *builder) layer(k int) (*item, string, error) {
 			return stop("only a slice of the first channels (axis 1, from 0, step 1, bounds given as constants) is read, as keep")
 		}
 		l = engine.Layer{Kind: engine.KindKeep, Keep: c}
-	case "Relu", "Sigmoid", "Tanh", "HardSwish", "Gelu":
+	case "Relu", "Sigmoid", "Tanh", "HardSwish", "Gelu", "Mish":
 		a, _ := activation(n)
 		l = engine.Layer{Kind: engine.KindAct, Act: a}
 	case "LeakyRelu":
@@ -196,6 +198,18 @@ func (b *builder) layer(k int) (*item, string, error) {
 		if a := attr(n, "alpha"); a != nil {
 			l.Slope = f32(a.GetF())
 		}
+	case "PRelu":
+		c, w, ok := b.preluSlopes(n)
+		if !ok {
+			return stop("only a slope weight of one value or one per channel ([C, 1, 1] or [1] of an N×C×H×W map) is read, as prelu")
+		}
+		l = engine.Layer{Kind: engine.KindAct, Act: engine.ActPReLU, PerChannel: c}
+		b.count(false, w)
+	case "Softmax":
+		if !b.channelSoftmax(n) {
+			return stop("only a softmax over the channels at each position is read (axis 1 of an N×C×H×W map, or the last axis of a channels-last one)")
+		}
+		l = engine.Layer{Kind: engine.KindAct, Act: engine.ActSoftmax}
 	case "HardSigmoid":
 		if !hardSigmoid(n) {
 			return stop("only PyTorch's hard sigmoid (alpha 1/6, beta 1/2) is read")
@@ -390,6 +404,69 @@ func (b *builder) affineNorm(n *onnxpb.Node, l *engine.Layer, gamma, beta string
 	}
 	b.count(false, gamma, beta)
 	b.sawNorm = true
+}
+
+// channelSoftmax reports whether a Softmax node is one over the channels
+// at each position: axis 1 of an N×C×H×W map (from opset 13 the axis
+// alone; before it, Softmax flattens every axis from its own on, so only
+// where the map is 1×1), or the last axis of a map made channels-last by
+// a Transpose (what an exporter writes before opset 13).
+func (b *builder) channelSoftmax(n *onnxpb.Node) bool {
+	axis := int64(-1) // ONNX's default from opset 13
+	if b.im.opset < 13 {
+		axis = 1
+	}
+	if a := attr(n, "axis"); a != nil {
+		axis = a.GetI()
+	}
+	ins := n.GetInput()
+	if len(ins) != 1 {
+		return false
+	}
+	xs := b.g.shapes[ins[0]]
+	a, ok := axisOf(axis, int64(len(xs)))
+	if !ok || len(xs) != 4 {
+		return false
+	}
+	if b.chanLast {
+		return a == 3
+	}
+	return a == 1 && (b.im.opset >= 13 || xs[2]*xs[3] == 1)
+}
+
+// preluSlopes reads a PRelu node's slope: an initializer of one value
+// (shared: [1], [1, 1, 1] or a scalar) or of one per channel of its
+// N×C×H×W input ([C, 1, 1], PyTorch's nn.PReLU(C) as torch.onnx 1.13
+// writes it at opsets 13 and 17; [C] on a channels-last map, broadcast
+// along its last axis); perChannel says which. A one-channel map's single
+// slope reads as shared: the counts agree. The slope is a weight or,
+// exported without constant folding, an Unsqueeze of one (weight [C],
+// axes 1 and 2); weight names the one to count.
+func (b *builder) preluSlopes(n *onnxpb.Node) (perChannel bool, weight string, ok bool) {
+	ins := n.GetInput()
+	if len(ins) != 2 {
+		return false, "", false
+	}
+	weight = ins[1]
+	d, known := b.im.dims(weight)
+	if v, seen := b.im.unsqueezed[weight]; seen {
+		weight, d, known = v.weight, v.dims, true
+	}
+	xs := b.g.shapes[ins[0]]
+	if !known || !b.im.initial[weight] || len(xs) != 4 || len(d) > 3 {
+		return false, "", false
+	}
+	count := int64(1)
+	for _, v := range d {
+		count *= v
+	}
+	switch {
+	case count == 1:
+		return false, weight, true
+	case b.chanLast:
+		return true, weight, len(d) == 1 && d[0] == xs[3]
+	}
+	return true, weight, len(d) == 3 && d[0] == xs[1] && d[1] == 1 && d[2] == 1
 }
 
 // keep reads a Slice node as the first channels of its input: one axis,

@@ -395,7 +395,8 @@ func (im *importer) infer(n *onnxpb.Node, shapeOf func(string) []int64, shapes m
 		}
 		set(out, sh)
 	case "BatchNormalization", "InstanceNormalization", "LayerNormalization", "Relu", "Sigmoid", "Tanh", "HardSwish",
-		"HardSigmoid", "Gelu", "LeakyRelu", "Clip", "Dropout", "Erf", "Sqrt", "Identity", "Softmax", "Neg", "Abs", "Exp", "Elu", "Selu":
+		"HardSigmoid", "Gelu", "LeakyRelu", "Clip", "Dropout", "Erf", "Sqrt", "Identity", "Softmax", "Neg", "Abs", "Exp", "Elu", "Selu",
+		"Softplus", "PRelu", "Mish":
 		set(out, slices.Clone(x))
 	}
 }

@@ -310,9 +310,9 @@ func isProjection(p []*item) bool {
 }
 
 // product reads a node that multiplies t by something computed from t:
-// x·sigmoid(x) is SiLU, x·hardsigmoid(x) hard swish, x·(1 + erf(x/√2))
-// then ·0.5 GELU in its expanded form; anything else is a gate whose
-// body computes the factor.
+// x·sigmoid(x) is SiLU, x·hardsigmoid(x) hard swish, x·tanh(softplus(x))
+// Mish, x·(1 + erf(x/√2)) then ·0.5 GELU in its expanded form; anything
+// else is a gate whose body computes the factor.
 func (b *builder) product(t string, j, other, depth int) ([]*item, string, error) {
 	out := b.g.nodes[j].GetOutput()[0]
 	act := func(a engine.ActKind, ks ...int) ([]*item, string, error) {
@@ -331,6 +331,10 @@ func (b *builder) product(t string, j, other, depth int) ([]*item, string, error
 		return act(engine.ActSiLU, other, j)
 	case slices.Equal(ops, []string{"HardSigmoid"}) && hardSigmoid(b.g.nodes[other]):
 		return act(engine.ActHardSwish, other, j)
+	case slices.Equal(ops, []string{"Softplus", "Tanh"}):
+		// Mish, x·tanh(softplus(x)), as torch.onnx 1.13 writes nn.Mish
+		// at opsets 13 and 17 (it has no ONNX operator before opset 18).
+		return act(engine.ActMish, append(chain, j)...)
 	case slices.Equal(ops, []string{"Div", "Erf", "Add"}):
 		if k := b.single(out); k >= 0 && b.g.nodes[k].GetOpType() == "Mul" && len(b.g.data[k]) == 1 {
 			return act(engine.ActGELU, append(chain, j, k)...)

@@ -292,3 +292,42 @@ func (im *importer) foldData(n *onnxpb.Node, sh []int64) {
 		im.initial[out] = true
 	}
 }
+
+// unsqueezeWeight records a folded Unsqueeze of a weight (axes as an
+// attribute before opset 13, a constant input from it) in im.unsqueezed.
+func (im *importer) unsqueezeWeight(n *onnxpb.Node) {
+	ins := n.GetInput()
+	if n.GetOpType() != "Unsqueeze" || len(ins) == 0 || !im.initial[ins[0]] {
+		return
+	}
+	d, ok := im.dims(ins[0])
+	if !ok {
+		return
+	}
+	axes := attr(n, "axes").GetInts()
+	if len(ins) > 1 {
+		axes, ok = im.intsOf(ins[1])
+	}
+	rank := int64(len(d) + len(axes))
+	if !ok || len(axes) == 0 || rank > 8 {
+		return
+	}
+	out := make([]int64, rank)
+	for _, a := range axes {
+		i, ok := axisOf(a, rank)
+		if !ok || out[i] != 0 {
+			return
+		}
+		out[i] = -1 // an inserted axis
+	}
+	j := 0
+	for i := range out {
+		if out[i] == -1 {
+			out[i] = 1
+			continue
+		}
+		out[i] = d[j]
+		j++
+	}
+	im.unsqueezed[n.GetOutput()[0]] = weightView{weight: ins[0], dims: out}
+}

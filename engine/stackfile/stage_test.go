@@ -72,7 +72,7 @@ func TestStageErrors(t *testing.T) {
 		{"stage: {layers: 65}\n", ErrRange, `3:17: stage → layers: 65 is out of range; it must be between 0 and 64`},
 		{"stage: {kernel: 4}\n", ErrRange, `3:17: stage → kernel: 4 is out of range; give an odd number from 1 to 15 (the padding k/2 then keeps the size)`},
 		{"stage: {norm: bn}\n", ErrRange, `3:15: stage → norm: "bn" is not one of batch, group, instance, layer, none; did you mean "batch"?`},
-		{"stage: {act: lrelu}\n", ErrRange, `3:14: stage → act: "lrelu" is not one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid, none; did you mean "leaky-relu"?`},
+		{"stage: {act: lrelu}\n", ErrRange, `3:14: stage → act: "lrelu" is not one of relu, leaky-relu, gelu, silu, sigmoid, tanh, relu6, hard-swish, hard-sigmoid, mish, softmax, prelu, none; did you mean "leaky-relu"?`},
 		{"stage: {bias: maybe}\n", ErrType, `3:15: stage → bias: expected true or false, found the text "maybe"`},
 		{"stage: {slope: 0}\n", ErrRange, `3:16: stage → slope: 0 is out of range; give a number above 0 and below 1e6, e.g. 0.2`},
 		{"stage: 3\n", ErrType, `3:8: stage: expected stage settings (key: value lines), found "3"`},

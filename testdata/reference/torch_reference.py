@@ -200,6 +200,9 @@ def build(layer, c):
             "relu6": nn.ReLU6(),
             "hard-swish": nn.Hardswish(),
             "hard-sigmoid": nn.Hardsigmoid(),
+            "mish": nn.Mish(),
+            "softmax": nn.Softmax(dim=1),
+            "prelu": nn.PReLU(c if layer.get("per-channel") else 1, init=layer.get("slope", 0.25)),
         }[layer["act"]]
     if layer == "scale" or "scale" in layer:
         return ChannelScale(c, 1.0 if layer == "scale" else layer["scale"])
@@ -709,6 +712,15 @@ def random_layer(rng, c, kind, hw=None):
         if rng.random() < 0.1:
             return {"keep": c + 1}  # refused
         return {"keep": rng.randint(1, c)}
+    if kind in ("mish", "softmax"):
+        return {"act": kind}
+    if kind == "prelu":
+        l = {"act": "prelu"}
+        if rng.random() < 0.5:
+            l["per-channel"] = True
+        if rng.random() < 0.3:
+            l["slope"] = rng.choice([0.1, 0.5])
+        return l
     raise ValueError(kind)
 
 
@@ -718,6 +730,10 @@ KINDS = ["conv", "deconv", "pool", "global-pool", "pool-to", "upsample", "norm",
 SINGLE = 14  # KINDS[:SINGLE] are the kinds random_layer writes in the first generated cases
 REARRANGING = ["to-space", "to-channels", "keep"]  # random_layer writes these too, in cases of their own
 GENERATED_REARRANGING = 18
+# Activations random_layer writes too (as act), in cases of their own: Mish
+# (Misra 2019), the softmax over the channels, PReLU (He et al. 2015).
+ACTIVATING = ["mish", "softmax", "prelu"]
+GENERATED_ACTIVATING = 18
 FEATURES = ["fork copy", "fork split", "fork in a branch", "fork in a residual block", "named branch", "empty branch",
             "relative x-factor", "relative divisor", "round", "relative-to block", "per-position dense", "norm eps"]
 
@@ -1228,6 +1244,22 @@ def rearranging_cases():
         [{"block": 1, "residual": True, "layers": ghost(13, 4) + ghost(24, 3, relu=False)}]
 
 
+def activation_cases():
+    """Each new activation where what autograd keeps shows: after a
+    convolution (which keeps its input) and before one (which keeps the
+    activation's output), so keeping the input or the output counts
+    differently; a residual block with each after its addition; PReLU with
+    one shared slope and one per channel (He et al. 2015, section 2.1)."""
+    for a in ({"act": "mish"}, {"act": "softmax"}, {"act": "prelu"}, {"act": "prelu", "per-channel": True, "slope": 0.1}):
+        yield "between convolutions: " + " ".join(str(v) for v in a.values()), [3, 12, 10], [
+            {"conv": 8, "kernel": 3, "pad": 1}, a, {"conv": 4, "kernel": 1}, a]
+    for a in ("mish", "softmax", "prelu"):
+        yield "residual then " + a, [8, 9, 9], [
+            {"block": 2, "residual": True, "after": a, "layers": [
+                {"conv": 8, "kernel": 3, "pad": 1, "bias": False}, {"norm": "batch"}, {"act": a},
+                {"conv": 8, "kernel": 3, "pad": 1, "bias": False}, {"norm": "batch"}]}]
+
+
 def check_forms():
     """The script's own forms against PyTorch's: the shuffle equals
     nn.ChannelShuffle, the hard activations their definitions (Howard et al.
@@ -1270,6 +1302,8 @@ def main():
     # Cases of their own, so that the cases above stay as they were.
     every += list(rearranging_cases())
     every += list(generated(random.Random(SEED + 2), GENERATED_REARRANGING, KINDS[:SINGLE] + REARRANGING, REARRANGING, "rearranged"))
+    every += list(activation_cases())
+    every += list(generated(random.Random(SEED + 3), GENERATED_ACTIVATING, KINDS[:SINGLE] + ACTIVATING, ACTIVATING, "activated"))
     for name, inp, layers in every:
         stack = {"stackfit": 1, "name": name, "input": inp, "layers": layers}
         rows, error_at, message = run(stack)
