@@ -168,26 +168,9 @@ def measure(batch, precision, optimizer, steps=3, device=None):
     device = device or ("cuda" if torch.cuda.is_available() else "cpu")
     if precision.endswith("-master"):
         raise SystemExit("precision %s: the master-copy scheme needs its own training loop; measure with --precision fp32, fp16-mixed, bf16-mixed or bf16" % precision)
-    model = MODEL().to(device).train()
-    if precision == "bf16":
-        model = model.to(torch.bfloat16)
-    dtype = {"fp16-mixed": torch.float16, "bf16-mixed": torch.bfloat16}.get(precision)
-    if device == "cpu" and dtype == torch.float16:
+    if device == "cpu" and _dtype_of(precision) == torch.float16:
         raise SystemExit("fp16 autocast needs CUDA; on the CPU measure bf16-mixed")
-    opt = _optimizer(optimizer, model.parameters())
-    x = torch.randn(batch, *INPUT_SHAPE, device=device)
-    if precision == "bf16":
-        x = x.to(torch.bfloat16)
-
-    def step():
-        opt.zero_grad(set_to_none=False)
-        if dtype is not None:
-            with torch.autocast(device_type=device, dtype=dtype):
-                out = model(x)
-        else:
-            out = model(x)
-        out.float().sum().backward()
-        opt.step()
+    model, opt, step = _trainer(batch, precision, optimizer, device, set_to_none=False)
 
     step()  # the first step makes the gradients and the optimizer state
     if device == "cuda":
@@ -313,6 +296,13 @@ def probes(batch, precision, device, rounds=7):
 def step_time(batch, precision, optimizer, device, steps=5):
     """The least time of a few whole training steps (forward, backward and
     the optimizer step) on synthetic data, after a warm-up step."""
+    _, _, step = _trainer(batch, precision, optimizer, device, set_to_none=True)
+    return _timed(step, device, warmup=1, repeats=steps)
+
+
+def _trainer(batch, precision, optimizer, device, set_to_none):
+    """The model, its optimizer and one training step (forward, backward,
+    optimizer) on synthetic data at this batch and precision."""
     model = MODEL().to(device).train()
     if precision == "bf16":
         model = model.to(torch.bfloat16)
@@ -323,7 +313,7 @@ def step_time(batch, precision, optimizer, device, steps=5):
         x = x.to(torch.bfloat16)
 
     def step():
-        opt.zero_grad(set_to_none=True)
+        opt.zero_grad(set_to_none=set_to_none)
         if dtype is not None:
             with torch.autocast(device_type=device, dtype=dtype):
                 out = model(x)
@@ -332,7 +322,7 @@ def step_time(batch, precision, optimizer, device, steps=5):
         out.float().sum().backward()
         opt.step()
 
-    return _timed(step, device, warmup=1, repeats=steps)
+    return model, opt, step
 
 
 def main(argv=None):

@@ -16,15 +16,7 @@ import (
 // inside a use is refused. A use added by quick entry is expanded at once,
 // and a use naming no unit is refused with the reason.
 func TestUseRowsAreTheUnits(t *testing.T) {
-	data, err := os.ReadFile("../../testdata/examples/cap-inspector-units.yaml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := stackfile.Load(data)
-	if err != nil {
-		t.Fatal(err)
-	}
-	m := newModel(t, s, 100, 30)
+	m := newModel(t, capUnits(t), 100, 30)
 	// a bound field: the stem's width is its argument c
 	m.change("widen", func(s *engine.Stack) (addr, error) {
 		s.Layers[0].Body[0].Filters = 40
@@ -81,15 +73,7 @@ func TestUseRowsAreTheUnits(t *testing.T) {
 // (one change), a value the unit's field refuses is shown on its
 // parameter and nothing changes.
 func TestUseForm(t *testing.T) {
-	data, err := os.ReadFile("../../testdata/examples/cap-inspector-units.yaml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := stackfile.Load(data)
-	if err != nil {
-		t.Fatal(err)
-	}
-	m := newModel(t, s, 100, 30)
+	m := newModel(t, capUnits(t), 100, 30)
 	press(m, "enter") // the stem: unit cbr c=32 s=2
 	if v := view(m); !strings.Contains(v, "use of unit cbr") || !strings.Contains(v, "repeat") {
 		t.Fatalf("the use's form:\n%s", v)
@@ -117,15 +101,7 @@ func TestUseForm(t *testing.T) {
 // kinds; choosing one opens its form, and a required parameter must be
 // given before the use is added.
 func TestPickerOffersUnits(t *testing.T) {
-	data, err := os.ReadFile("../../testdata/examples/cap-inspector-units.yaml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := stackfile.Load(data)
-	if err != nil {
-		t.Fatal(err)
-	}
-	m := newModel(t, s, 100, 30)
+	m := newModel(t, capUnits(t), 100, 30)
 	n := len(m.stack.Layers)
 	press(m, "a", "u", "u", "u")
 	if v := view(m); !strings.Contains(v, "unit basic") {
@@ -140,4 +116,18 @@ func TestPickerOffersUnits(t *testing.T) {
 	if len(m.stack.Layers) != n+1 || m.stack.Layers[1].Unit != "basic" || len(m.stack.Layers[1].Body) != 3 {
 		t.Fatalf("after the form: %d layers, status %q", len(m.stack.Layers), m.status)
 	}
+}
+
+// capUnits loads the cap inspector written with units.
+func capUnits(t *testing.T) *engine.Stack {
+	t.Helper()
+	data, err := os.ReadFile("../../testdata/examples/cap-inspector-units.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := stackfile.Load(data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
 }
