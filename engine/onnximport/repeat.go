@@ -15,7 +15,8 @@ import (
 // and the flattens a person would not write are left out. The folded
 // stack must compute what the unfolded one does, row for row; where it
 // does not, the simpler merge of identical repeats is kept, and where
-// even that differs, the items as read.
+// even that differs, the items as read. Then repeated patterns become
+// units where that shortens the file (unitize); s.Units holds them.
 func (b *builder) finish(s *engine.Stack, items []*item) []engine.Layer {
 	f := newFolder(s, items)
 	merged, plain := cloneItems(items), cloneItems(items)
@@ -25,13 +26,16 @@ func (b *builder) finish(s *engine.Stack, items []*item) []engine.Layer {
 		func() []*item { return plain },
 	}
 	var ls []engine.Layer
+	var its []*item
 	for i, try := range tries {
 		b.names = map[string]bool{}
-		ls = b.layers(s, f, try())
+		its = try()
+		ls = b.layers(s, f, its)
 		if i == len(tries)-1 || f.sameRows(s, ls) {
 			break
 		}
 	}
+	s.Units, ls = b.unitize(s, its, ls)
 	return ls
 }
 
