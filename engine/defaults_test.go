@@ -117,7 +117,7 @@ func TestDefaultsSet(t *testing.T) {
 		k           Kind
 		want        string
 	}{
-		{"a kind without defaults", "kernel", KindPool, `defaults: "pool" is not valid; defaults are for the kinds conv, deconv, norm, act and dense; remove pool from defaults`},
+		{"a kind without defaults", "kernel", KindPool, `defaults: "pool" is not valid; defaults are for the kinds conv, deconv, norm, act, dense and spatial-gate; remove pool from defaults`},
 		{"a field each layer writes", "kernel", KindConv, `defaults → conv: "kernel" is not valid; a conv default may set bias; kernel differs from layer to layer, so write it on each conv layer`},
 		{"a misspelt field", "esp", KindNorm, `defaults → norm: "esp" is not valid; a norm default may set eps; did you mean "eps"?`},
 	}

@@ -78,6 +78,7 @@ const (
 	ErrBranchFrom                      // a branch starts from a name no earlier output has
 	ErrBranchFromSplit                 // a branch of a split fork starts from a named output
 	ErrGroupWidth                      // input channels not a multiple of the group width
+	ErrGateKernel                      // a spatial gate's kernel is even
 )
 
 // codeNames are the diagnostics' stable names: the words a stack file's
@@ -128,6 +129,7 @@ var codeNames = [...]string{
 	ErrBranchFrom:      "branch-from-unknown",
 	ErrBranchFromSplit: "branch-from-split",
 	ErrGroupWidth:      "group-width",
+	ErrGateKernel:      "spatial-gate-kernel",
 }
 
 // Name returns the code's stable name, e.g. "small-receptive-field"; ""
@@ -302,6 +304,8 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("branch %d starts from %q, but no layer or block has that name; name the output it should read with name: %s", d.E, d.Name, d.Name)
 	case ErrBranchFromSplit:
 		return fmt.Sprintf("branch %d starts from %q, but a split fork's branches each read their share of the fork's input; use input: copy, or drop from:", d.E, d.Name)
+	case ErrGateKernel:
+		return fmt.Sprintf("kernel %d is even; the spatial gate pads (k − 1)/2 on each side to keep the map's size, which needs an odd kernel: use %d or %d", d.A, d.A-1, d.A+1)
 	case ErrValue:
 		return fmt.Sprintf("%s is %d; it must be at least %d", d.Field, d.A, d.B)
 	case WarnStrideDrop:

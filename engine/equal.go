@@ -44,6 +44,6 @@ func (l *Layer) EqualFields(o *Layer) bool {
 		l.NoShortcutNorm == o.NoShortcutNorm && l.PostAct == o.PostAct && l.HasPostAct == o.HasPostAct &&
 		l.IdentityOnly == o.IdentityOnly && same(l.DropPath, o.DropPath) && l.DenseLinks == o.DenseLinks &&
 		l.Split == o.Split && l.JoinAdd == o.JoinAdd && l.From == o.From && l.Crop == o.Crop && l.First == o.First && l.RelBlock == o.RelBlock &&
-		l.RelInput == o.RelInput && l.RoundTo == o.RoundTo && same(l.ScaleInit, o.ScaleInit) && l.PixelFactor == o.PixelFactor && l.Keep == o.Keep && l.Name == o.Name && l.Note == o.Note &&
+		l.RelInput == o.RelInput && l.RoundTo == o.RoundTo && same(l.ScaleInit, o.ScaleInit) && l.PixelFactor == o.PixelFactor && l.Keep == o.Keep && l.GateNorm == o.GateNorm && l.Name == o.Name && l.Note == o.Note &&
 		l.Unit == o.Unit && slices.Equal(l.Args, o.Args) && slices.Equal(l.Binds, o.Binds)
 }

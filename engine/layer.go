@@ -5,30 +5,31 @@ type Kind uint8
 
 // Layer kinds. The names returned by String are the keys used in stack files.
 const (
-	KindInvalid    Kind = iota
-	KindConv            // 2-D convolution
-	KindDeconv          // 2-D transposed convolution
-	KindPool            // max or average pooling with a fixed window
-	KindGlobalPool      // pooling over the whole map to 1×1
-	KindPoolTo          // average pooling to a fixed output size (adaptive)
-	KindUpsample        // upsampling by an integer factor
-	KindNorm            // batch, group, instance or layer normalisation
-	KindAct             // element-wise activation
-	KindDropout         // dropout
-	KindFlatten         // C×H×W → C·H·W×1×1
-	KindDense           // fully connected layer
-	KindReshape         // reinterpret the elements as a new C×H×W
-	KindBlock           // a group of layers, repeated, optionally residual
-	KindConcat          // channel-wise concatenation with a named earlier output
-	KindAdd             // element-wise sum with a named earlier output
-	KindGate            // the map scaled per channel by a gate its body computes from it
-	KindScale           // a learnable factor per channel (layer scale)
-	KindShuffle         // channel shuffle across groups
-	KindFork            // parallel branches from one map, joined along the channels or added
-	KindBranch          // one branch of a fork: a list of layers (empty: the map itself)
-	KindToSpace         // channels moved into space: C·r²×H×W → C×rH×rW (pixel shuffle)
-	KindToChannels      // space moved into channels: C×H×W → C·r²×H/r×W/r (pixel unshuffle)
-	KindKeep            // the first N channels kept, the rest dropped
+	KindInvalid     Kind = iota
+	KindConv             // 2-D convolution
+	KindDeconv           // 2-D transposed convolution
+	KindPool             // max or average pooling with a fixed window
+	KindGlobalPool       // pooling over the whole map to 1×1
+	KindPoolTo           // average pooling to a fixed output size (adaptive)
+	KindUpsample         // upsampling by an integer factor
+	KindNorm             // batch, group, instance or layer normalisation
+	KindAct              // element-wise activation
+	KindDropout          // dropout
+	KindFlatten          // C×H×W → C·H·W×1×1
+	KindDense            // fully connected layer
+	KindReshape          // reinterpret the elements as a new C×H×W
+	KindBlock            // a group of layers, repeated, optionally residual
+	KindConcat           // channel-wise concatenation with a named earlier output
+	KindAdd              // element-wise sum with a named earlier output
+	KindGate             // the map scaled per channel by a gate its body computes from it
+	KindScale            // a learnable factor per channel (layer scale)
+	KindShuffle          // channel shuffle across groups
+	KindFork             // parallel branches from one map, joined along the channels or added
+	KindBranch           // one branch of a fork: a list of layers (empty: the map itself)
+	KindToSpace          // channels moved into space: C·r²×H×W → C×rH×rW (pixel shuffle)
+	KindToChannels       // space moved into channels: C×H×W → C·r²×H/r×W/r (pixel unshuffle)
+	KindKeep             // the first N channels kept, the rest dropped
+	KindSpatialGate      // the map scaled per position by a gate from its channels' mean and max
 	kindCount
 )
 
@@ -273,6 +274,9 @@ type Layer struct {
 	PixelFactor int64
 	// keep: how many channels, from the first, pass on.
 	Keep int64
+	// spatial-gate: a batch norm between the gate's convolution and its
+	// sigmoid (Kernel holds the convolution's window, NoBias its bias).
+	GateNorm bool
 
 	Name string // optional short identifier
 	Note string // optional free text

@@ -304,3 +304,46 @@ func TestCheckpointPeakSimulated(t *testing.T) {
 		t.Errorf("peaks: plain %d, checkpointed %d (keeps %d)", p4.PeakPerSample, c4.PeakPerSample, c4.ActPerSample)
 	}
 }
+
+// TestSpatialGateKeeps holds the spatial gate to what PyTorch 1.13's
+// autograd saves for x · σ(conv([mean(x, 1); max(x, 1)])), read with
+// saved_tensors_hooks (testdata/papers/spatialgate.py; per sample, fp32):
+// the input, the 2×H×W concatenation, the 1×H×W gate and, when the input
+// needs a gradient, the int64 indices of the maximum; with the batch
+// norm also the convolution's 1×H×W output. On a 5×9×11 input that is
+// 1980 + 792 + 396 + 792 = 3960 bytes (the measured figure), 3168 without
+// the indices, 4356 and 3564 with the norm.
+func TestSpatialGateKeeps(t *testing.T) {
+	tests := []struct {
+		source string
+		first  bool // the gate is the first layer: its input needs no gradient
+		norm   bool
+		want   int64
+	}{
+		{"saved_tensors_hooks, input with a gradient", false, false, 3960},
+		{"saved_tensors_hooks, input without a gradient", true, false, 3168},
+		{"saved_tensors_hooks, with the norm", false, true, 4356},
+		{"saved_tensors_hooks, with the norm, input without a gradient", true, true, 3564},
+	}
+	for _, tt := range tests {
+		t.Run(tt.source, func(t *testing.T) {
+			gate := engine.Layer{Kind: engine.KindSpatialGate, Kernel: engine.Square(7), GateNorm: tt.norm}
+			s := &engine.Stack{Input: engine.Shape{C: 5, H: 9, W: 11}, Layers: []engine.Layer{gate}}
+			at := 0
+			if !tt.first {
+				// A 1×1 convolution that keeps the shape gives the input a gradient.
+				s.Layers = []engine.Layer{{Kind: engine.KindConv, Filters: 5, Kernel: engine.Square(1)}, gate}
+				at = 1
+			}
+			r := engine.Evaluate(s)
+			if r.Errors != 0 {
+				t.Fatal(r.Diags)
+			}
+			var m engine.Memory
+			r.Memory(engine.Training{Batch: 1}, engine.DefaultAssumptions(), &m)
+			if m.Rows[at] != tt.want {
+				t.Errorf("keeps %d bytes, want %d", m.Rows[at], tt.want)
+			}
+		})
+	}
+}

@@ -76,6 +76,9 @@ func TestQuickParse(t *testing.T) {
 		{"act prelu per-channel", engine.Layer{Kind: engine.KindAct, Act: engine.ActPReLU, PerChannel: true}},
 		{"act prelu 0.1 per-channel", engine.Layer{Kind: engine.KindAct, Act: engine.ActPReLU, PerChannel: true, Slope: 0.1}},
 		{"block 2 residual then mish", engine.Layer{Kind: engine.KindBlock, Repeat: 2, Residual: true, PostAct: engine.ActMish, HasPostAct: true}},
+		{"spatial-gate", engine.Layer{Kind: engine.KindSpatialGate, Kernel: engine.Square(7)}},
+		{"spatial-gate k3 nobias batch-norm", engine.Layer{Kind: engine.KindSpatialGate, Kernel: engine.Square(3), NoBias: true, GateNorm: true}},
+		{"spatial-gate 5", engine.Layer{Kind: engine.KindSpatialGate, Kernel: engine.Square(5)}},
 	}
 	for _, tt := range tests {
 		got, err := engine.ParseQuick(tt.line)

@@ -463,3 +463,68 @@ func contains(lines []string, s string) bool {
 	}
 	return false
 }
+
+// TestSpatialGate checks the spatial gate of Woo et al. 2018 (CBAM,
+// equation 3 and Figure 2): σ(f^{k×k}([AvgPool(F); MaxPool(F)])), the
+// pooling along the channels, one output channel, padding keeping the
+// size, so the parameters are k·k·2 weights, a bias (nn.Conv2d's default)
+// and, with the batch norm of the authors' code (from memory: the
+// convolution without bias, then BatchNorm2d(1)), its scale and shift and
+// three buffers (PyTorch's BatchNorm2d: running mean, running variance,
+// num_batches_tracked). The MACs are the convolution's (k·k·2 per
+// position); the receptive field widens by k − 1 (a k×k window at unit
+// stride, Araujo et al. 2019, "Computing receptive fields of
+// convolutional neural networks", r = r₀ + (k − 1)·j).
+func TestSpatialGate(t *testing.T) {
+	tests := []struct {
+		source                string
+		in                    Shape
+		l                     Layer
+		params, buffers, macs int64
+		rf                    float64
+	}{
+		{"Woo et al. 2018, eq. 3: 7×7 on ResNet-50's conv2_x output, 256×56×56", Shape{256, 56, 56},
+			Layer{Kind: KindSpatialGate, Kernel: Square(7)}, 7*7*2 + 1, 0, 7 * 7 * 2 * 56 * 56, 7},
+		{"Woo et al. 2018, the authors' code (from memory): no bias, batch norm", Shape{256, 56, 56},
+			Layer{Kind: KindSpatialGate, Kernel: Square(7), NoBias: true, GateNorm: true}, 7*7*2 + 2, 3, 7 * 7 * 2 * 56 * 56, 7},
+		{"Woo et al. 2018, Table 3 (from memory): the 3×3 kernel it compares, on conv5_x's 2048×7×7", Shape{2048, 7, 7},
+			Layer{Kind: KindSpatialGate, Kernel: Square(3)}, 3*3*2 + 1, 0, 3 * 3 * 2 * 7 * 7, 3},
+		{"PyTorch Conv2d's output size: 7×7 padded by 3 keeps a 1×1 map ((1 + 6 − 7)/1 + 1 = 1)", Shape{5, 1, 1},
+			Layer{Kind: KindSpatialGate, Kernel: Square(7), NoBias: true}, 7 * 7 * 2, 0, 7 * 7 * 2, 7},
+		{"PyTorch Conv2d's output size: a 1×1 gate of one channel's own mean and max", Shape{3, 9, 5},
+			Layer{Kind: KindSpatialGate, Kernel: Square(1)}, 3, 0, 2 * 9 * 5, 1},
+	}
+	for _, tt := range tests {
+		t.Run(tt.source, func(t *testing.T) {
+			r, row := single(tt.in, tt.l)
+			if r.Errors != 0 {
+				t.Fatalf("unexpected errors: %v", r.Diags)
+			}
+			if row.Out != tt.in || row.Params != tt.params || row.Buffers != tt.buffers || row.MACs != tt.macs || row.RF != (FPair{tt.rf, tt.rf}) {
+				t.Errorf("out %v params %d buffers %d MACs %d rf %v; want %v, %d, %d, %d, %g",
+					row.Out, row.Params, row.Buffers, row.MACs, row.RF, tt.in, tt.params, tt.buffers, tt.macs, tt.rf)
+			}
+		})
+	}
+	// After a stride-2 layer each tap of the window is two input pixels
+	// apart: 3 + (7 − 1)·2 = 15 (Araujo et al. 2019).
+	r := Evaluate(&Stack{Input: Shape{3, 32, 32}, Layers: []Layer{
+		{Kind: KindConv, Filters: 8, Kernel: Square(3), Stride: Square(2), Pad: Padding{Size: Square(1)}},
+		{Kind: KindSpatialGate, Kernel: Square(7)}}})
+	if r.Errors != 0 || r.Rows[1].RF != (FPair{15, 15}) || r.Rows[1].Out != (Shape{8, 16, 16}) {
+		t.Errorf("after a stride-2 conv: rf %v out %v (%v), want 15×15, 8×16×16", r.Rows[1].RF, r.Rows[1].Out, r.Diags)
+	}
+	// An even kernel cannot keep the size with equal padding on both sides
+	// (PyTorch Conv2d: (H + 2·(k − 1)/2 − k)/1 + 1 = H − 1 for even k);
+	// zero is no window at all.
+	for _, k := range []int64{6, 0} {
+		r, _ := single(Shape{8, 10, 10}, Layer{Kind: KindSpatialGate, Kernel: Square(k)})
+		if r.Errors != 1 || r.Diags[0].Field != "kernel" {
+			t.Errorf("kernel %d: %v, want one error on kernel", k, r.Diags)
+		}
+	}
+	r, _ = single(Shape{8, 10, 10}, Layer{Kind: KindSpatialGate, Kernel: Square(6)})
+	if msg := r.Diags[0].Message(); !hasCode(r, ErrGateKernel) || msg != "kernel 6 is even; the spatial gate pads (k − 1)/2 on each side to keep the map's size, which needs an odd kernel: use 5 or 7" {
+		t.Errorf("message %q", msg)
+	}
+}

@@ -76,7 +76,7 @@ func init() {
 		&upsampleSpec, &normSpec, &actSpec, &dropoutSpec, &flattenSpec, &denseSpec,
 		&reshapeSpec, &blockSpec, &concatSpec, &addSpec, &gateSpec,
 		&scaleSpec, &shuffleSpec, &forkSpec, &branchSpec,
-		&toSpaceSpec, &toChannelsSpec, &keepSpec} {
+		&toSpaceSpec, &toChannelsSpec, &keepSpec, &spatialGateSpec} {
 		specs[s.Kind] = s
 	}
 }

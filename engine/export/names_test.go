@@ -25,7 +25,7 @@ var hostileNames = []string{
 	"self", "super", "print", "object", "Exception", "exception", "ValueError", "Ellipsis",
 	"NotImplemented", "__import__", "__name__", "type", "match", "case", "_",
 	"ChannelLayerNorm", "channel layer norm", "Dense", "dense", "PositionDense", "position dense",
-	"ChannelScale", "channel scale", "DropPath", "drop path", "center_crop", "CenterCrop",
+	"ChannelScale", "channel scale", "SpatialGate", "spatial gate", "DropPath", "drop path", "center_crop", "CenterCrop",
 	"torch", "Torch", "nn", "NN", "MODEL", "model", "INPUT_SHAPE", "input shape", "x", "sc", "t0",
 	"123net", "9", "0 day", "", "---", "DenseNet", "NoneNet",
 	"-*- coding: utf-7 -*-", "# -*- coding: latin-1 -*-", "vim: set fileencoding=utf-7 :",
@@ -33,7 +33,7 @@ var hostileNames = []string{
 }
 
 // namesStack is a small stack using every helper the prelude defines
-// (ChannelLayerNorm, PositionDense, ChannelScale, DropPath, center_crop and
+// (ChannelLayerNorm, PositionDense, ChannelScale, SpatialGate, DropPath, center_crop and
 // Dense), so a class that shadowed one would fail to build or run.
 const namesStack = `stackfit: 1
 name: placeholder
@@ -52,6 +52,7 @@ layers:
       - {act: gelu}
       - {dense: x1, per-position: true}
       - {scale: 1e-06}
+      - {spatial-gate: 7}
   - {conv: 8, kernel: 3}
   - {add: first, crop: true}
   - {concat: stage, crop: true}
@@ -70,7 +71,7 @@ try:
 except ImportError:
     sys.exit(3)
 
-HELPERS = ["ChannelLayerNorm", "Dense", "PositionDense", "ChannelScale", "DropPath", "center_crop"]
+HELPERS = ["ChannelLayerNorm", "Dense", "PositionDense", "ChannelScale", "SpatialGate", "DropPath", "center_crop"]
 
 for line in sys.stdin:
     case = json.loads(line)

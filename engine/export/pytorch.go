@@ -122,6 +122,19 @@ var helpers = []helper{
 
     def forward(self, x):
         return x * self.gamma`},
+	{"SpatialGate", `class SpatialGate(nn.Module):
+    """Scales every position of the map by a gate made from the channels'
+    mean and maximum there: a kernel x kernel convolution of the two maps
+    to one (padded to keep the size), an optional batch norm, a sigmoid."""
+
+    def __init__(self, kernel=7, bias=True, norm=False):
+        super().__init__()
+        self.conv = nn.Conv2d(2, 1, kernel, padding=kernel // 2, bias=bias)
+        self.norm = nn.BatchNorm2d(1) if norm else nn.Identity()
+
+    def forward(self, x):
+        pooled = torch.cat([torch.mean(x, 1, keepdim=True), torch.max(x, 1, keepdim=True)[0]], 1)
+        return x * torch.sigmoid(self.norm(self.conv(pooled)))`},
 	{"DropPath", `class DropPath(nn.Module):
     """Stochastic depth: zeroes a sample's residual branch with probability p
     while training, scaling the kept ones by 1 / (1 - p)."""

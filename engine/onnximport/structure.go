@@ -158,6 +158,11 @@ func (b *builder) fanOut(t string, cs []int, end, depth int) ([]*item, string, e
 		}
 		return b.residual(t, j, direct, others, depth)
 	case "Mul":
+		if len(cs) == 3 && direct && len(b.g.data[j]) == 2 {
+			if its, out, ok, err := b.spatialGate(t, j, others); ok {
+				return its, out, err
+			}
+		}
 		if len(cs) != 2 || !direct || len(b.g.data[j]) != 2 {
 			break
 		}

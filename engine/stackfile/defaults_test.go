@@ -122,9 +122,9 @@ func TestDefaultsErrors(t *testing.T) {
 		msg      string
 	}{
 		{"unknown kind with a hint", head + "defaults: {nrom: {eps: 0.001}}\n", ErrUnknown,
-			`4:12: defaults: unknown layer kind "nrom"; did you mean "norm"? (defaults are for conv, deconv, norm, act, dense)`},
+			`4:12: defaults: unknown layer kind "nrom"; did you mean "norm"? (defaults are for conv, deconv, norm, act, dense, spatial-gate)`},
 		{"kind with nothing to default", head + "defaults: {pool: {kernel: 2}}\n", ErrUnknown,
-			`4:12: defaults: defaults are for the kinds conv, deconv, norm, act and dense; remove pool from defaults`},
+			`4:12: defaults: defaults are for the kinds conv, deconv, norm, act, dense and spatial-gate; remove pool from defaults`},
 		{"field of another kind", head + "defaults: {norm: {bias: false}}\n", ErrUnknown,
 			`4:19: defaults → norm: "bias": a norm default may set eps`},
 		{"field that differs per layer", head + "defaults: {conv: {kernel: 3}}\n", ErrType,

@@ -70,7 +70,7 @@ func TestHostileInput(t *testing.T) {
 		{"negative size", head + "  - {pool: max, kernel: -2}\n", ErrRange,
 			`4:25: layer 1 (pool) → kernel: -2 is out of range; it must be between 1 and 65536`},
 		{"unknown kind", head + "  - {convolution: 8, kernel: 3}\n", ErrUnknown,
-			`4:5: layer 1: no layer kind found; start the item with one of: conv, deconv, pool, global-pool, pool-to, upsample, norm, act, dropout, flatten, dense, reshape, block, concat, add, gate, scale, shuffle, fork, branch, to-space, to-channels, keep`},
+			`4:5: layer 1: no layer kind found; start the item with one of: conv, deconv, pool, global-pool, pool-to, upsample, norm, act, dropout, flatten, dense, reshape, block, concat, add, gate, scale, shuffle, fork, branch, to-space, to-channels, keep, spatial-gate`},
 		{"duplicate names", head + "  - {conv: 8, kernel: 3, name: x}\n  - block: 1\n    name: x\n    layers: [{act: relu}]\n", ErrName,
 			`6:11: layer 2 (block) → name: "x" is already used on line 4; names must be unique`},
 		{"empty file", "", ErrMissing,

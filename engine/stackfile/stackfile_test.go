@@ -85,6 +85,8 @@ layers:
   - {reshape: [4, 4, 4]}
   - global-pool
   - {global-pool: max}
+  - spatial-gate
+  - {spatial-gate: 3, bias: false, batch-norm: true}
 `
 	s, err := Load([]byte(src))
 	if err != nil {
@@ -111,6 +113,11 @@ layers:
 	if l := s.Layers[11]; l.Kind != engine.KindScale || l.ScaleInit != 1e-6 || s.Layers[12].ScaleInit != 1 || s.Layers[13].Groups != 2 {
 		t.Errorf("scale/shuffle not read: %+v %+v %+v", l, s.Layers[12], s.Layers[13])
 	}
+	// A bare spatial gate takes the paper's 7×7 (Woo et al. 2018).
+	if n := len(s.Layers); !reflect.DeepEqual(s.Layers[n-2], engine.Layer{Kind: engine.KindSpatialGate, Kernel: engine.Square(7)}) ||
+		!reflect.DeepEqual(s.Layers[n-1], engine.Layer{Kind: engine.KindSpatialGate, Kernel: engine.Square(3), NoBias: true, GateNorm: true}) {
+		t.Errorf("spatial gates not read: %+v %+v", s.Layers[n-2], s.Layers[n-1])
+	}
 	out, _ := Save(s)
 	s2, err := Load(out)
 	if err != nil {
@@ -119,7 +126,8 @@ layers:
 	if !reflect.DeepEqual(s, s2) {
 		t.Errorf("round trip differs\n%s", out)
 	}
-	for _, line := range []string{"  - {act: hard-swish}\n", "  - {scale: 1e-06}\n  - {scale: 1.0}\n  - {shuffle: 2}\n"} {
+	for _, line := range []string{"  - {act: hard-swish}\n", "  - {scale: 1e-06}\n  - {scale: 1.0}\n  - {shuffle: 2}\n",
+		"  - {spatial-gate: 7}\n  - {spatial-gate: 3, bias: false, batch-norm: true}\n"} {
 		if !strings.Contains(string(out), line) {
 			t.Errorf("saved form lacks %q:\n%s", line, out)
 		}
@@ -139,7 +147,7 @@ func TestLoadErrors(t *testing.T) {
 		{"unknown key with hint", head + "  - {conv: 8, kernal: 3}\n",
 			ErrUnknown, `4:15: layer 1 (conv): unknown key "kernal"; did you mean "kernel"? (allowed: conv, kernel, stride, pad, dilation, groups, group-width, bias, relative-to, round, name, note)`},
 		{"unknown kind with hint", head + "  - {convv: 8, kernel: 3}\n",
-			ErrUnknown, `4:5: layer 1: unknown layer kind "convv"; did you mean "conv"? (kinds: conv, deconv, pool, global-pool, pool-to, upsample, norm, act, dropout, flatten, dense, reshape, block, concat, add, gate, scale, shuffle, fork, branch, to-space, to-channels, keep)`},
+			ErrUnknown, `4:5: layer 1: unknown layer kind "convv"; did you mean "conv"? (kinds: conv, deconv, pool, global-pool, pool-to, upsample, norm, act, dropout, flatten, dense, reshape, block, concat, add, gate, scale, shuffle, fork, branch, to-space, to-channels, keep, spatial-gate)`},
 		{"unknown top-level key", "stackfit: 1\ninput: [3, 32, 32]\nlayer:\n  - flatten\n",
 			ErrUnknown, `3:1: file: unknown key "layer"; did you mean "layers"? (allowed: stackfit, name, note, input, training, stage, quiet, defaults, units, layers)`},
 		{"wrong type", head + "  - {conv: eight, kernel: 3}\n",

@@ -42,6 +42,7 @@ BATCH = 2
 SEED = 20261202
 GENERATED = 60
 GENERATED_FORKS = 60
+GENERATED_SPATIAL_GATES = 12
 
 
 def pair(v):
@@ -144,8 +145,30 @@ class Keep(nn.Module):
         return x[:, :self.n]
 
 
+class SpatialGate(nn.Module):
+    """stackfit's spatial gate (CBAM's spatial attention, Woo et al. 2018,
+    eq. 3): x · σ(conv_k×k([mean_c x; max_c x])), padded by (k − 1)/2 to
+    keep the size, with an optional batch norm before the sigmoid (the
+    authors' code). An even kernel cannot keep the size: refused."""
+
+    def __init__(self, kernel, bias, norm):
+        super().__init__()
+        if kernel % 2 == 0:
+            raise ValueError(f"even spatial gate kernel {kernel}")
+        self.conv = nn.Conv2d(2, 1, kernel, padding=kernel // 2, bias=bias)
+        self.norm = nn.BatchNorm2d(1) if norm else nn.Identity()
+
+    def forward(self, x):
+        pooled = torch.cat([torch.mean(x, 1, keepdim=True), torch.max(x, 1, keepdim=True)[0]], 1)
+        return x * torch.sigmoid(self.norm(self.conv(pooled)))
+
+
 def build(layer, c):
     """Returns the torch module for one stack-file layer on c input channels."""
+    if layer == "spatial-gate":
+        return SpatialGate(7, True, False)
+    if isinstance(layer, dict) and "spatial-gate" in layer:
+        return SpatialGate(layer["spatial-gate"], layer.get("bias", True), layer.get("batch-norm", False))
     if "conv" in layer or "deconv" in layer:
         transposed = "deconv" in layer
         filters = layer["deconv" if transposed else "conv"]
@@ -610,8 +633,50 @@ def published_files():
     for file, size in PUBLISHED_FILES:
         with open(os.path.join(HERE, "..", "published", file)) as f:
             doc = yaml.load(f, Loader=StackLoader)
+        layers = written_out(doc["layers"], doc.get("units") or {}, doc.get("defaults") or {})
         yield (f"{doc['name']} (testdata/published/{file}) at {size}×{size}",
-               [doc["input"][0], size, size], doc["layers"])
+               [doc["input"][0], size, size], layers)
+
+
+def written_out(layers, units, defaults):
+    """A file's layers with every unit use replaced by its unit's layers
+    (arguments over the unit's defaults put in for each $name, the use a
+    block of `repeat` rounds, named as the use) and the file's per-kind
+    defaults filled into every layer that does not set the field: what
+    stackfit's loader does (README, "Units" and "File defaults")."""
+    def put(v, args):
+        if isinstance(v, str) and v.startswith("$"):
+            return args[v[1:]]
+        if isinstance(v, list):
+            return [put(x, args) for x in v]
+        if isinstance(v, dict):
+            return {k: put(x, args) for k, x in v.items()}
+        return v
+
+    def walk(items):
+        out = []
+        for layer in items:
+            if isinstance(layer, dict) and "unit" in layer:
+                unit = units[layer["unit"]]
+                args = dict(unit.get("params") or {})
+                args.update({k: v for k, v in layer.items() if k not in ("unit", "repeat", "name", "note")})
+                block = {"block": layer.get("repeat", 1), "layers": walk(put(unit["layers"], args))}
+                if "name" in layer:
+                    block["name"] = layer["name"]
+                out.append(block)
+                continue
+            if isinstance(layer, dict):
+                layer = dict(layer)
+                for k, v in (defaults.get(kind_of(layer)) or {}).items():
+                    layer.setdefault(k, v)
+                if "layers" in layer:
+                    layer["layers"] = walk(layer["layers"])
+                if "branches" in layer:
+                    layer["branches"] = [walk(b) if isinstance(b, list) else dict(b, layers=walk(b.get("layers") or []))
+                                         for b in layer["branches"]]
+            out.append(layer)
+        return out
+    return walk(layers)
 
 
 # ---- generated stacks: every kind, odd sizes, some PyTorch must refuse ----
@@ -691,6 +756,15 @@ def random_layer(rng, c, kind, hw=None):
         return None  # filled in by the caller, which knows the element count
     if kind == "scale":
         return "scale" if rng.random() < 0.2 else {"scale": rng.choice([1e-6, 1e-5, 0.1, 1.0, 0.0])}
+    if kind == "spatial-gate":
+        if rng.random() < 0.2:
+            return "spatial-gate"
+        l = {"spatial-gate": rng.choice([1, 3, 5, 7, 7, 7, 9, 4])}  # 4: refused (even)
+        if rng.random() < 0.3:
+            l["bias"] = False
+        if rng.random() < 0.3:
+            l["batch-norm"] = True
+        return l
     if kind == "shuffle":
         fits = [g for g in range(2, 9) if c % g == 0]
         misfits = [g for g in range(2, 9) if c % g]
@@ -726,7 +800,7 @@ def random_layer(rng, c, kind, hw=None):
 
 KINDS = ["conv", "deconv", "pool", "global-pool", "pool-to", "upsample", "norm", "act",
          "dropout", "flatten", "dense", "reshape", "scale", "shuffle", "block", "concat", "add", "gate", "fork",
-         "to-space", "to-channels", "keep"]
+         "to-space", "to-channels", "keep", "spatial-gate"]
 SINGLE = 14  # KINDS[:SINGLE] are the kinds random_layer writes in the first generated cases
 REARRANGING = ["to-space", "to-channels", "keep"]  # random_layer writes these too, in cases of their own
 GENERATED_REARRANGING = 18
@@ -1260,6 +1334,36 @@ def activation_cases():
                 {"conv": 8, "kernel": 3, "pad": 1, "bias": False}, {"norm": "batch"}]}]
 
 
+def generated_spatial_gates(rng, n):
+    """Random stacks with spatial gates (kernels 1 to 9, an even one now and
+    then, which stackfit and the module above refuse; bias off, batch norm
+    on), among the other single kinds and inside residual blocks, drawn
+    with their own generator so the older cases stay as they were."""
+    for i in range(n):
+        inp = [rng.choice([1, 3, 8, 16]), rng.randint(1, 24), rng.randint(1, 24)]
+        layers = [conv(rng.choice([8, 16]), 3, 1, 1)] if rng.random() < 0.6 else []
+        x = torch.zeros(1, *inp)
+        for j in range(rng.randint(2, 6)):
+            kind = "spatial-gate" if j % 2 == 0 else rng.choice(KINDS[:SINGLE])
+            if kind in ("dense", "reshape", "flatten"):
+                continue
+            layer = random_layer(rng, x.shape[1], kind)
+            if kind == "spatial-gate" and rng.random() < 0.3 and x.shape[2] > 1:
+                c = x.shape[1]
+                layer = {"block": rng.randint(1, 2), "residual": True, "after": "relu",
+                         "layers": [conv(c, 3, 1, 1), BN, RELU, conv(c, 3, 1, 1), BN, layer]}
+            layers.append(layer)
+            try:
+                r = Runner()
+                with torch.no_grad():
+                    x = r.stack(layers, torch.zeros(1, *inp))
+                if min(x.shape[1:]) < 1:
+                    break
+            except Exception:
+                break  # the case ends on the layer PyTorch refuses
+        yield f"generated spatial gate {i + 1:02d}", inp, layers
+
+
 def check_forms():
     """The script's own forms against PyTorch's: the shuffle equals
     nn.ChannelShuffle, the hard activations their definitions (Howard et al.
@@ -1304,6 +1408,7 @@ def main():
     every += list(generated(random.Random(SEED + 2), GENERATED_REARRANGING, KINDS[:SINGLE] + REARRANGING, REARRANGING, "rearranged"))
     every += list(activation_cases())
     every += list(generated(random.Random(SEED + 3), GENERATED_ACTIVATING, KINDS[:SINGLE] + ACTIVATING, ACTIVATING, "activated"))
+    every += list(generated_spatial_gates(random.Random(SEED + 4), GENERATED_SPATIAL_GATES))
     for name, inp, layers in every:
         stack = {"stackfit": 1, "name": name, "input": inp, "layers": layers}
         rows, error_at, message = run(stack)

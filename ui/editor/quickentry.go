@@ -107,6 +107,8 @@ func newLayer(k engine.Kind, c int64) engine.Layer {
 		return engine.Layer{Kind: k, PixelFactor: 2}
 	case engine.KindKeep:
 		return engine.Layer{Kind: k, Keep: max(c/2, 1)}
+	case engine.KindSpatialGate:
+		return engine.Layer{Kind: k, Kernel: engine.Square(7)} // the paper's 7×7 (Woo et al. 2018)
 	case engine.KindBlock:
 		return engine.Layer{Kind: k, Repeat: 1}
 	}
