@@ -103,7 +103,9 @@ func (d *decoder) unitParams(n *yaml.Node, where string) []engine.UnitParam {
 // form field takes: a scalar as written, a pair [h, w] as h×w.
 func (d *decoder) argText(n *yaml.Node, where string) (string, bool) {
 	if n.Kind == yaml.SequenceNode && len(n.Content) == 2 {
-		if p, ok := d.pair(n, where, 1, engine.MaxSpatial); ok {
+		// Zero is a padding's value; the field the value lands in checks
+		// its own range when the use is expanded.
+		if p, ok := d.pair(n, where, 0, engine.MaxSpatial); ok {
 			return strconv.FormatInt(p.H, 10) + "x" + strconv.FormatInt(p.W, 10), true
 		}
 		return "", false
@@ -265,11 +267,21 @@ func useNode(l *engine.Layer) *yaml.Node {
 	return m
 }
 
-// argNode writes an argument's text: a whole number as a number, anything
-// else as text.
+// argNode writes an argument's text: a whole number as a number, a
+// height–width pair ("1x7", as argText reads [1, 7]) as [1, 7] (the
+// text 0x3 would be a hexadecimal number to a YAML reader), anything else
+// as text.
 func argNode(text string) *yaml.Node {
 	if _, err := strconv.ParseInt(text, 10, 64); err == nil {
 		return &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!int", Value: text}
+	}
+	if h, w, ok := strings.Cut(text, "x"); ok {
+		_, errH := strconv.ParseUint(h, 10, 63)
+		_, errW := strconv.ParseUint(w, 10, 63)
+		if errH == nil && errW == nil {
+			return &yaml.Node{Kind: yaml.SequenceNode, Style: yaml.FlowStyle, Content: []*yaml.Node{
+				{Kind: yaml.ScalarNode, Tag: "!!int", Value: h}, {Kind: yaml.ScalarNode, Tag: "!!int", Value: w}}}
+		}
 	}
 	return strNode(text)
 }

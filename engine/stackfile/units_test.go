@@ -192,3 +192,57 @@ func TestUnitExpansionBounded(t *testing.T) {
 		t.Errorf("got %v", err)
 	}
 }
+
+// TestUnitPairArguments: a use may pass a kernel and a padding as
+// [height, width] (Inception v3's 1×7 and 7×1 convolutions, padded 0×3
+// and 3×0: Szegedy et al. 2016, figure 6); a padding of zero on one side
+// is a padding like any other, and the pair is saved as a pair — the text
+// 0x3 would read as a hexadecimal number.
+func TestUnitPairArguments(t *testing.T) {
+	const file = `stackfit: 1
+input: [8, 17, 17]
+units:
+  cb:
+    params: {c: ~, k: 1, p: [0, 0]}
+    layers:
+      - {conv: $c, kernel: $k, pad: $p, bias: false}
+      - {norm: batch}
+layers:
+  - {unit: cb, c: 16, k: [1, 7], p: [0, 3]}
+  - {unit: cb, c: 16, k: [7, 1], p: [3, 0]}
+  - {unit: cb, c: 4}
+`
+	s, err := Load([]byte(file))
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := engine.Evaluate(s)
+	if r.Errors != 0 {
+		t.Fatalf("errors: %v", r.Diags)
+	}
+	for i, want := range []engine.Pair{{H: 1, W: 7}, {H: 7, W: 1}, engine.Square(1)} {
+		c := s.Layers[i].Body[0]
+		if c.Kernel != want || c.Pad.Size != (engine.Pair{H: (want.H - 1) / 2, W: (want.W - 1) / 2}) {
+			t.Errorf("use %d: kernel %v pad %v, want kernel %v and the padding that keeps 17×17", i+1, c.Kernel, c.Pad.Size, want)
+		}
+	}
+	if out := r.Rows[len(r.Rows)-1].Out; out != (engine.Shape{C: 4, H: 17, W: 17}) {
+		t.Errorf("output %v, want 4×17×17", out)
+	}
+	data, err := Save(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"params: {c: ~, k: 1, p: [0, 0]}", "{unit: cb, c: 16, k: [1, 7], p: [0, 3]}", "{unit: cb, c: 16, k: [7, 1], p: [3, 0]}"} {
+		if !strings.Contains(string(data), want) {
+			t.Errorf("saved file lacks %q:\n%s", want, data)
+		}
+	}
+	back, err := Load(data)
+	if err != nil {
+		t.Fatalf("%v\n%s", err, data)
+	}
+	if !engine.EqualLayers(back.Layers, s.Layers) {
+		t.Error("reloaded stack differs")
+	}
+}
