@@ -44,6 +44,15 @@ func normEps(s *engine.Stack) {
 		}
 	}
 	shared := best != pytorchEps && most >= 2 && 2*most > len(norms)
+	// The norms of the units' own layers follow the same rule: the uses'
+	// expansions were counted above, and the file writes the units.
+	for i := range s.Units {
+		walk(s.Units[i].Body, func(l *engine.Layer) {
+			if l.Kind == engine.KindNorm {
+				norms = append(norms, l)
+			}
+		})
+	}
 	for _, l := range norms {
 		switch {
 		case shared && l.Eps == best:

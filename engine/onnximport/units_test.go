@@ -1,8 +1,11 @@
 package onnximport
 
 import (
+	"bytes"
 	"fmt"
 	"testing"
+
+	"google.golang.org/protobuf/proto"
 
 	"stackfit/engine"
 	"stackfit/engine/onnximport/onnxpb"
@@ -12,8 +15,9 @@ import (
 // triples is a graph of n convolution → batch norm → ReLU triples, one
 // module each (/cI/conv, /cI/bn, /cI/act), the convolutions without bias
 // as a network with batch norms writes them; widths, kernels and strides
-// from the table (a pad of k/2).
-func triples(t *testing.T, convs [][3]int64) []byte {
+// from the table (a pad of k/2); the norms carry epsilon eps (0: none,
+// which ONNX reads as 1e-5).
+func triples(t *testing.T, eps float32, convs [][3]int64) []byte {
 	weights := map[string][]int64{}
 	var nodes []*onnxpb.Node
 	x, in := "x", int64(3)
@@ -26,7 +30,7 @@ func triples(t *testing.T, convs [][3]int64) []byte {
 		}
 		nodes = append(nodes,
 			node("Conv", "/"+m+"/conv/Conv", []string{x, m + "w"}, m+"c", ints("kernel_shape", k, k), ints("strides", s, s), ints("pads", k/2, k/2, k/2, k/2)),
-			node("BatchNormalization", "/"+m+"/bn/BatchNormalization", []string{m + "c", m + "s", m + "o", m + "m", m + "v"}, m+"n"),
+			node("BatchNormalization", "/"+m+"/bn/BatchNormalization", []string{m + "c", m + "s", m + "o", m + "m", m + "v"}, m+"n", epsAttr(eps)...),
 			node("Relu", "/"+m+"/act/Relu", []string{m + "n"}, m+"a"))
 		x, in = m+"a", w
 	}
@@ -56,7 +60,7 @@ func leafRows(s *engine.Stack) []string {
 // a unit would not shorten the file.
 func TestImportUnits(t *testing.T) {
 	convs := [][3]int64{{16, 3, 2}, {32, 3, 1}, {32, 1, 1}, {32, 3, 1}}
-	s, _, err := Import(triples(t, convs), "units")
+	s, _, err := Import(triples(t, 0, convs), "units")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -103,11 +107,57 @@ func TestImportUnits(t *testing.T) {
 		t.Errorf("loaded back: %d units, rows %v", len(back.Units), leafRows(back))
 	}
 
-	two, _, err := Import(triples(t, convs[:2]), "two")
+	two, _, err := Import(triples(t, 0, convs[:2]), "two")
 	if err != nil {
 		t.Fatal(err)
 	}
 	if len(two.Units) != 0 || len(two.Layers) != 6 {
 		t.Errorf("two runs: %d units, %d layers; want none and 6 plain layers", len(two.Units), len(two.Layers))
+	}
+}
+
+// epsAttr is a norm node's epsilon attribute, none for 0.
+func epsAttr(eps float32) []*onnxpb.Attribute {
+	if eps == 0 {
+		return nil
+	}
+	return []*onnxpb.Attribute{{Name: proto.String("epsilon"), Kind: proto.Int32(1), F: proto.Float32(eps)}}
+}
+
+// TestImportUnitsEpsDefault: when every norm shares an ε other than
+// PyTorch's (torchvision's BasicConv2d, eps=0.001, in Inception v3 and
+// GoogLeNet), the file's default holds it and the unit's norm does not
+// repeat it; the rows compute with it all the same.
+func TestImportUnitsEpsDefault(t *testing.T) {
+	s, _, err := Import(triples(t, 0.001, [][3]int64{{16, 3, 2}, {32, 3, 1}, {32, 1, 1}, {32, 3, 1}}), "eps")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Units) != 1 {
+		t.Fatalf("%d units, want 1", len(s.Units))
+	}
+	if d := s.Defaults.For(engine.KindNorm); d == nil || d.Eps != 0.001 {
+		t.Fatalf("file defaults for norms %+v, want eps 0.001", d)
+	}
+	walk(s.Units[0].Body, func(l *engine.Layer) {
+		if l.Kind == engine.KindNorm && l.Eps != 0 {
+			t.Errorf("the unit's norm writes eps %g; the file's default has it", l.Eps)
+		}
+	})
+	data, err := stackfile.Save(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n := bytes.Count(data, []byte("eps:")); n != 1 {
+		t.Errorf("eps written %d times, want once:\n%s", n, data)
+	}
+	back, err := stackfile.Load(data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, row := range engine.Evaluate(back).Rows {
+		if row.Layer.Kind == engine.KindNorm && row.Layer.Eps != 0.001 {
+			t.Errorf("row %s computes with eps %g, want 0.001", row.Path, row.Layer.Eps)
+		}
 	}
 }
