@@ -74,16 +74,24 @@ func normEps(s *engine.Stack) {
 // RegNet's stages keep one group width while the widths, and so the
 // group counts, grow (Radosavovic et al. 2020, section 3).
 func groupWidths(s *engine.Stack) {
-	r := engine.Evaluate(s)
+	if w := sharedGroupWidth(s, s.Layers); w > 0 {
+		s.Layers = withGroupWidth(s, s.Layers, w)
+	}
+}
+
+// sharedGroupWidth is the group width every grouped, not depthwise
+// convolution of ls has when their group counts differ, else 0.
+func sharedGroupWidth(s *engine.Stack, ls []engine.Layer) int64 {
+	r := engine.Evaluate(&engine.Stack{Input: s.Input, Units: s.Units, Defaults: s.Defaults, Layers: ls})
 	if r.Errors != 0 {
-		return
+		return 0
 	}
 	in := map[*engine.Layer]int64{} // −1: the layer's rows differ in input channels
 	for i := range r.Rows {
 		row := &r.Rows[i]
 		l := row.Layer
-		if l.Kind != engine.KindConv || l.Depthwise || l.Groups <= 1 || row.Role != engine.RoleLayer {
-			continue
+		if !grouped(l) || row.Role != engine.RoleLayer || l.Groups == row.In.C {
+			continue // a group per channel is depthwise, not a group width of 1
 		}
 		if c, seen := in[l]; seen && c != row.In.C {
 			in[l] = -1
@@ -95,11 +103,11 @@ func groupWidths(s *engine.Stack) {
 	var groups []int64
 	for l, c := range in {
 		if c < 1 || c%l.Groups != 0 {
-			return
+			return 0
 		}
 		gw := c / l.Groups
 		if width != 0 && gw != width {
-			return
+			return 0
 		}
 		width = gw
 		if !slices.Contains(groups, l.Groups) {
@@ -107,18 +115,32 @@ func groupWidths(s *engine.Stack) {
 		}
 	}
 	if len(in) < 2 || len(groups) < 2 {
-		return
+		return 0
 	}
-	before, rows := r.Totals, len(r.Rows)
-	was := engine.CloneLayers(s.Layers)
-	walk(s.Layers, func(l *engine.Layer) {
-		if l.Kind == engine.KindConv && !l.Depthwise && l.Groups > 1 {
-			l.Groups, l.GroupWidth = 0, width
+	return width
+}
+
+// grouped reports whether l is a grouped convolution that is not
+// depthwise, written with a group count.
+func grouped(l *engine.Layer) bool {
+	return l.Kind == engine.KindConv && !l.Depthwise && l.Groups > 1
+}
+
+// withGroupWidth returns ls with its grouped convolutions written with
+// group width w, or ls itself when that would change a count.
+func withGroupWidth(s *engine.Stack, ls []engine.Layer, w int64) []engine.Layer {
+	st := &engine.Stack{Input: s.Input, Units: s.Units, Defaults: s.Defaults, Layers: ls}
+	before := engine.Evaluate(st)
+	st.Layers = engine.CloneLayers(ls)
+	walk(st.Layers, func(l *engine.Layer) {
+		if grouped(l) {
+			l.Groups, l.GroupWidth = 0, w
 		}
 	})
-	if after := engine.Evaluate(s); after.Errors != 0 || after.Totals != before || len(after.Rows) != rows {
-		s.Layers = was
+	if after := engine.Evaluate(st); after.Errors != 0 || after.Totals != before.Totals || len(after.Rows) != len(before.Rows) {
+		return ls
 	}
+	return st.Layers
 }
 
 // walk calls fn on every layer of ls, bodies included.

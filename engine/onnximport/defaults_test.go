@@ -126,6 +126,10 @@ func TestImportGroupWidth(t *testing.T) {
 		{"RegNet: 48 and 104 channels at group width 8", []int64{48, 104}, []int64{6, 13}, 8},
 		{"ResNeXt: 32 groups at 128 and 256 channels", []int64{128, 256}, []int64{32, 32}, 0},
 		{"group widths that differ", []int64{48, 104}, []int64{6, 8}, 0},
+		// Howard et al. 2017: a depthwise convolution has one group per
+		// input channel (PyTorch: groups = in_channels), which is not a
+		// group width of 1 (MobileNetV2's 32, 96 and 144 channels).
+		{"MobileNetV2's depthwise convolutions", []int64{32, 96, 144}, []int64{32, 96, 144}, 0},
 	}
 	for _, tt := range tests {
 		t.Run(tt.source, func(t *testing.T) {

@@ -35,8 +35,27 @@ func (b *builder) finish(s *engine.Stack, items []*item) []engine.Layer {
 			break
 		}
 	}
+	// RegNet's group width first, so that units are written with it.
+	if w := sharedGroupWidth(s, ls); w > 0 {
+		if nls := withGroupWidth(s, ls, w); &nls[0] != &ls[0] {
+			ls = nls
+			walkItems(its, func(it *item) {
+				if grouped(&it.l) {
+					it.l.Groups, it.l.GroupWidth = 0, w
+				}
+			})
+		}
+	}
 	s.Units, ls = b.unitize(s, its, ls)
 	return ls
+}
+
+// walkItems calls fn on every item of its, parts included.
+func walkItems(its []*item, fn func(*item)) {
+	for _, it := range its {
+		fn(it)
+		walkItems(it.kids, fn)
+	}
 }
 
 // layers names the items and builds their layers.
