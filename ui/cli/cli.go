@@ -145,7 +145,8 @@ usage:
                                   without a terminal, print its report
   stackfit FILE                   edit FILE (a new file starts empty)
   stackfit report FILE [flags]    print the numbers: text, markdown, csv or json
-  stackfit check FILE [flags]     for CI: errors, warnings and the memory verdict
+  stackfit check FILE [flags]     for CI: errors, warnings and the memory
+                                  verdict
   stackfit export FILE [flags]    write the stack as a PyTorch module
   stackfit calibrate FILE [M]     set FILE's workspace and overhead from a
                                   measurement M (python NET.py --measure)
@@ -153,10 +154,12 @@ usage:
   stackfit scale FILE [flags]     write a wider, deeper or larger-input copy
                                   (compound scaling too), or find the largest
                                   that fits the budget
-  stackfit sweep FILE [flags]     tabulate a grid of widths, depths, resolutions,
-                                  batches and precisions: MACs, memory estimate,
-                                  largest batch, and the compute-memory frontier
-  stackfit example [NAME] [-o F]  list the built-in examples, edit one, or write it to F
+  stackfit sweep FILE [flags]     tabulate a grid of widths, depths,
+                                  resolutions, batches and precisions: MACs,
+                                  memory estimate, largest batch, and the
+                                  compute-memory frontier
+  stackfit example [NAME] [-o F]  list the built-in examples, edit one, or
+                                  write it to F
   stackfit help COMMAND           the flags of one command (or COMMAND --help)
 
 FILE may be '-' to read the stack from standard input (report, check, export).
@@ -215,8 +218,9 @@ Writes a self-contained Python module with one nn.Module class for the
 stack (blocks, residual shortcuts, concatenations and crops included) and a
 comment header with stackfit's totals.
 
-  --to T         the framework: pytorch (the only one so far)   e.g. --to pytorch
-  -o FILE        write to FILE instead of standard output       e.g. -o net.py
+  --to T         the framework: pytorch (the only one so far)
+                 e.g. --to pytorch
+  -o FILE        write to FILE instead of standard output   e.g. -o net.py
 
 The module also measures: python net.py --measure --batch 64 --precision
 bf16-mixed --optimizer adamw trains a few steps on synthetic data (CUDA when
@@ -230,17 +234,23 @@ examples:
 		"sweep": sweepUsage + trainingUsage(),
 		"import": `usage: stackfit import MODEL.onnx [-o NET.yaml] [--partial]
 
-Reads an ONNX model (torch.onnx.export writes them) into a stack file, one
-layer per operator, named after the graph's nodes. This version reads
-chains of layers: a graph that branches or merges (residual additions,
-concatenations, gates) stops at that node, named with its operator and
-position. Models up to 512 MiB are read.
+Reads an ONNX model (torch.onnx.export writes them) into a stack file
+written as a person would write it: residual additions become residual
+blocks, concatenations forks, pooled products gates, repeated stages
+blocks with a repeat count, repeated conv-norm-activation runs and
+repeated modules units, named after the graph's modules. What the stack
+file cannot say (several inputs or outputs, crossing paths) stops the
+import at that node, named with its operator and position. Every import
+is checked: it must hold exactly the graph's parameters and buffers.
+Models up to 512 MiB are read.
 
   -o FILE        write the stack file to FILE (refused if FILE exists)
   --partial      write the layers before a node that stops the import
 
 Export with the batch norms kept:
-  torch.onnx.export(model, x, "net.onnx", training=torch.onnx.TrainingMode.PRESERVE, do_constant_folding=False)
+  torch.onnx.export(model, x, "net.onnx",
+                    training=torch.onnx.TrainingMode.PRESERVE,
+                    do_constant_folding=False)
 
 examples:
   stackfit import net.onnx -o net.yaml
@@ -257,7 +267,8 @@ left out or -). The file is written atomically and keeps its comments.
 
 examples:
   stackfit export net.yaml -o net.py
-  python net.py --measure --batch 64 --precision bf16-mixed | stackfit calibrate net.yaml
+  python net.py --measure --batch 64 --precision bf16-mixed \
+    | stackfit calibrate net.yaml
 `,
 	}
 })

@@ -33,7 +33,7 @@ fits the memory budget at the batch asked (a training-memory estimate).
   --input N       set the input's height and width: N or HxW
                   e.g. --input 260 or --input 240x320
   --resolution F  multiply the input's height and width by F, each rounded
-                  to the nearest whole number              e.g. --resolution 1.15
+                  to the nearest whole number   e.g. --resolution 1.15
   --phi F         compound scaling: depth alpha^F, width beta^F,
                   resolution gamma^F (F may be negative)   e.g. --phi 1
   --alpha A       compound depth base (default 1.2)
@@ -49,7 +49,8 @@ fits the memory budget at the batch asked (a training-memory estimate).
                   --max, only the answer is printed)
 
 examples:
-  stackfit scale efficientnet-b0.yaml --width 1.1 --depth 1.2 --input 260 -o b2.yaml
+  stackfit scale efficientnet-b0.yaml --width 1.1 --depth 1.2 --input 260 \
+    -o b2.yaml
   stackfit scale net.yaml --phi 1 -o net-phi1.yaml
   stackfit scale net.yaml --max phi --budget 24GiB --batch 64
   stackfit scale net.yaml --max width --budget 80GiB --batch 256 -o wide.yaml

@@ -37,12 +37,14 @@ Each flag takes a list (a,b,c) or a range (from:to:step, both ends
 included when the steps reach them); a flag left out keeps the stack as
 written (×1) or the training setting.
 
-  --width R        width multipliers      e.g. --width 0.5:2:0.25 or --width 0.75,1,1.25
+  --width R        width multipliers      e.g. --width 0.5:2:0.25
+                                          or --width 0.75,1,1.25
   --depth R        depth multipliers (each block's repeats ceil(N·F))
                                           e.g. --depth 1,1.5,2
   --resolution R   input-size multipliers e.g. --resolution 0.75:1.5:0.25
   --batch R        global batches; a range may multiply: from:to:xK
-                                          e.g. --batch 32:1024:x2 or --batch 64,128
+                                          e.g. --batch 32:1024:x2
+                                          or --batch 64,128
   --precision P    precisions, or all     e.g. --precision fp32,bf16-mixed
   --divisor N      round widths to multiples of N (default 8)
   --format F       text (default), csv or json
@@ -64,9 +66,12 @@ evaluated once per pass (on every core); batches and precisions are
 derived from it.
 
 examples:
-  stackfit sweep net.yaml --width 0.5:1.5:0.25 --depth 1,2 --budget 24GiB --batch 64
-  stackfit sweep net.yaml --resolution 0.75:1.25:0.125 --batch 16:512:x2 --precision all --budget 80GiB --format csv -o sweep.csv
-  stackfit sweep net.yaml --width 0.5:2:0.1 --depth 0.5:2:0.1 --budget 24GiB --sort peak --top 20
+  stackfit sweep net.yaml --width 0.5:1.5:0.25 --depth 1,2 --budget 24GiB \
+    --batch 64
+  stackfit sweep net.yaml --resolution 0.75:1.25:0.125 --batch 16:512:x2 \
+    --precision all --budget 80GiB --format csv -o sweep.csv
+  stackfit sweep net.yaml --width 0.5:2:0.1 --depth 0.5:2:0.1 --budget 24GiB \
+    --sort peak --top 20
 `
 
 // sweepSortMax is how many rows --sort holds without --top.

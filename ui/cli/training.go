@@ -5,6 +5,7 @@ import (
 	"flag"
 	"fmt"
 	"strings"
+	"unicode/utf8"
 
 	"stackfit/engine"
 )
@@ -18,7 +19,7 @@ type trainingFlags struct {
 
 func addTrainingFlags(fs *flag.FlagSet) trainingFlags {
 	for _, s := range engine.Settings() {
-		fs.String(s.Key, "", flagHelp(s)+", e.g. "+s.Example)
+		fs.String(s.Key, "", flagHelp(s)+", e.g. "+cliExample(s))
 	}
 	return trainingFlags{fs: fs}
 }
@@ -32,22 +33,71 @@ func flagHelp(s engine.Setting) string {
 	return s.Help
 }
 
-// trainingUsage lists the training flags for the commands' help.
+// cliExample is a setting's example as a shell takes it: quoted when it
+// holds spaces (the efficiency list).
+func cliExample(s engine.Setting) string {
+	if strings.Contains(s.Example, " ") {
+		return `"` + s.Example + `"`
+	}
+	return s.Example
+}
+
+// usageWidth is the width the flags' help is wrapped to: a terminal's
+// 80 columns (common practice for command-line help).
+const usageWidth = 80
+
+// trainingUsage lists the training flags for the commands' help as the
+// commands' own flags are listed: each flag, its help wrapped to
+// usageWidth under the help's column, and an example after three spaces
+// on the last line, or on a line of its own when it does not fit.
 func trainingUsage() string {
 	type line struct{ flag, help, example string }
 	var lines []line
-	flagW, helpW := 0, 0
+	flagW := 0
 	for _, s := range engine.Settings() {
-		l := line{"--" + s.Key + " " + placeholder(s.Kind), flagHelp(s), "e.g. --" + s.Key + " " + s.Example}
-		flagW, helpW = max(flagW, len(l.flag)), max(helpW, len(l.help))
+		l := line{"--" + s.Key + " " + placeholder(s.Kind), flagHelp(s), "e.g. --" + s.Key + " " + cliExample(s)}
+		flagW = max(flagW, len(l.flag))
 		lines = append(lines, l)
 	}
+	indent := 2 + flagW + 2
+	width := max(usageWidth-indent, 30)
 	var b strings.Builder
-	b.WriteString("\ntraining flags (report, check, export, scale, sweep; they override the file's training section):\n")
+	b.WriteString("\ntraining flags (report, check, export, scale, sweep; they override the\nfile's training section):\n")
 	for _, l := range lines {
-		fmt.Fprintf(&b, "  %-*s  %-*s  %s\n", flagW, l.flag, helpW, l.help, l.example)
+		text := wrapWords(l.help, width)
+		if last := &text[len(text)-1]; utf8.RuneCountInString(*last)+3+utf8.RuneCountInString(l.example) <= width {
+			*last += "   " + l.example
+		} else {
+			text = append(text, wrapWords(l.example, width)...)
+		}
+		for i, t := range text {
+			if i == 0 {
+				fmt.Fprintf(&b, "  %-*s  %s\n", flagW, l.flag, t)
+			} else {
+				fmt.Fprintf(&b, "%*s%s\n", indent, "", t)
+			}
+		}
 	}
 	return b.String()
+}
+
+// wrapWords breaks text at spaces into lines of at most width runes (a
+// longer word stands alone on its line).
+func wrapWords(text string, width int) []string {
+	var out []string
+	cur := ""
+	for _, w := range strings.Fields(text) {
+		switch {
+		case cur == "":
+			cur = w
+		case utf8.RuneCountInString(cur)+1+utf8.RuneCountInString(w) <= width:
+			cur += " " + w
+		default:
+			out = append(out, cur)
+			cur = w
+		}
+	}
+	return append(out, cur)
 }
 
 // placeholder names a flag's value in the help.

@@ -3,16 +3,24 @@ package cli
 import (
 	"strings"
 	"testing"
+	"unicode/utf8"
 
 	"stackfit/engine"
 )
 
 // TestTrainingUsageFromSettings: the flags' help lists every setting of
-// engine.Settings with its help and example.
+// engine.Settings with its help and example, no line wider than a
+// terminal's 80 columns.
 func TestTrainingUsageFromSettings(t *testing.T) {
 	out, _, _ := run(t, "", "help", "report")
+	for i, l := range strings.Split(out, "\n") {
+		if n := utf8.RuneCountInString(l); n > usageWidth {
+			t.Errorf("help line %d is %d columns, past %d: %q", i+1, n, usageWidth, l)
+		}
+	}
+	out = strings.Join(strings.Fields(out), " ") // the help is wrapped
 	for _, s := range engine.Settings() {
-		if !strings.Contains(out, "--"+s.Key+" ") || !strings.Contains(out, s.Help) || !strings.Contains(out, "e.g. --"+s.Key+" "+s.Example) {
+		if !strings.Contains(out, "--"+s.Key+" ") || !strings.Contains(out, s.Help) || !strings.Contains(out, "e.g. --"+s.Key+" "+cliExample(s)) {
 			t.Errorf("report help lacks %s (%q, e.g. %s)", s.Key, s.Help, s.Example)
 		}
 	}
@@ -32,6 +40,28 @@ func TestTrainingFlagErrors(t *testing.T) {
 		_, errs, code := run(t, "", "report", example, tt.flag, tt.value)
 		if code != ExitUsage || !strings.Contains(errs, tt.want) {
 			t.Errorf("%s %s: exit %d, stderr %q; want %s", tt.flag, tt.value, code, errs, tt.want)
+		}
+	}
+}
+
+// TestHelpFitsTerminal: every command's help, and the top-level one, fits
+// a terminal of usageWidth columns (common practice: 80), so that no line
+// wraps mid-word on the training box's console.
+func TestHelpFitsTerminal(t *testing.T) {
+	for _, cmd := range []string{"", "report", "check", "export", "calibrate", "import", "scale", "sweep", "example"} {
+		args := []string{"help"}
+		if cmd != "" {
+			args = append(args, cmd)
+		}
+		out, errs, _ := run(t, "", args...)
+		text := out + errs
+		if len(text) < 200 {
+			t.Fatalf("help %s: %q is not the help", cmd, text)
+		}
+		for i, l := range strings.Split(text, "\n") {
+			if n := utf8.RuneCountInString(l); n > usageWidth {
+				t.Errorf("help %s, line %d is %d columns, past %d: %q", cmd, i+1, n, usageWidth, l)
+			}
 		}
 	}
 }
