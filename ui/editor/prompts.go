@@ -3,12 +3,14 @@ package editor
 import (
 	"fmt"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 
 	tea "github.com/charmbracelet/bubbletea"
 
 	"stackfit/engine"
+	"stackfit/engine/textsafe"
 	"stackfit/ui/editor/prompt"
 )
 
@@ -31,6 +33,9 @@ func (m *Model) promptCheck(k promptKind) prompt.Check {
 		return func(v string) (string, bool) {
 			if strings.TrimSpace(v) == "" {
 				return "e.g. conv 64 k3 s2 p1 · pool max k2 · dense 10 — tab completes the kind, ? lists the syntax", false
+			}
+			if msg, ok := m.unitHint(v); ok {
+				return msg, true
 			}
 			if _, err := engine.ParseQuick(v); err != nil {
 				if f := strings.Fields(v); len(f) == 1 {
@@ -145,6 +150,9 @@ func (m *Model) refuse(why string) tea.Cmd {
 func (m *Model) submitPrompt(k promptKind, v string) tea.Cmd {
 	switch k {
 	case promptQuick:
+		if msg, ok := m.unitHint(v); ok {
+			return m.refuse(msg)
+		}
 		l, err := engine.ParseQuick(v)
 		if err != nil {
 			return m.refuse(strings.TrimPrefix(err.Error(), engine.ErrQuick.Error()+": "))
@@ -212,4 +220,37 @@ func firstLine(s string) string {
 		return s[:i] + " (and more)"
 	}
 	return s
+}
+
+// unitHint is what a quick-entry line that uses a unit lacks when the
+// stack cannot give it: no units defined yet, or none by that name (with
+// the stack's units, and the likely one).
+func (m *Model) unitHint(v string) (string, bool) {
+	f := strings.Fields(v)
+	if len(f) == 0 || f[0] != "unit" {
+		return "", false
+	}
+	names := m.stack.UnitNames()
+	if len(names) == 0 {
+		return "this stack has no units: define them under units: in the file", true
+	}
+	if len(f) < 2 {
+		return "unit needs a unit's name: " + listNames(names), true
+	}
+	if !slices.Contains(names, f[1]) {
+		msg := "no unit " + textsafe.Line(f[1]) + " in this stack; its units: " + listNames(names)
+		if s := engine.Suggest(f[1], names); s != "" {
+			msg += fmt.Sprintf("; did you mean %q?", s)
+		}
+		return msg, true
+	}
+	return "", false
+}
+
+// listNames lists up to eight names, then how many more.
+func listNames(names []string) string {
+	if len(names) <= 8 {
+		return strings.Join(names, ", ")
+	}
+	return strings.Join(names[:8], ", ") + fmt.Sprintf(" and %d more", len(names)-8)
 }

@@ -63,8 +63,16 @@ func TestUseRowsAreTheUnits(t *testing.T) {
 	press(m, ":")
 	typeText(m, "unit cbx c=8")
 	press(m, "enter")
-	if len(m.stack.Layers) != n || !strings.Contains(m.status, `did you mean "cbr"`) {
-		t.Errorf("a use of no unit: %d layers, %q", len(m.stack.Layers), m.status)
+	if v := m.View(); len(m.stack.Layers) != n || !strings.Contains(v, `no unit cbx in this stack; its units: cbr, basic; did you mean "cbr"?`) {
+		t.Errorf("a use of no unit: %d layers, screen\n%s", len(m.stack.Layers), v)
+	}
+	// a stack without units says where units come from
+	plain := newModel(t, &engine.Stack{Input: engine.Shape{C: 3, H: 32, W: 32}}, 100, 30)
+	press(plain, ":")
+	typeText(plain, "unit cbr c=8")
+	press(plain, "enter")
+	if v := plain.View(); len(plain.stack.Layers) != 0 || !strings.Contains(v, "this stack has no units: define them under units: in the file") {
+		t.Errorf("a use in a stack without units: %d layers, screen\n%s", len(plain.stack.Layers), v)
 	}
 }
 
