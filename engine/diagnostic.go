@@ -316,7 +316,7 @@ func (d Diagnostic) Message() string {
 	case WarnFinalRF:
 		return fmt.Sprintf("final receptive field %d×%d is smaller than the input %d×%d; outputs see only part of the image", d.A, d.B, d.C, d.D)
 	case WarnParamShare:
-		return fmt.Sprintf("holds %s of the stack's %s parameters (%d%%); consider global pooling, fewer units or a narrower layer", GroupDigits(d.A), GroupDigits(d.B), d.C)
+		return fmt.Sprintf("holds %s of the stack's %s parameters (%d%%); consider global pooling before a dense layer, fewer dense outputs or a narrower layer", GroupDigits(d.A), GroupDigits(d.B), d.C)
 	case WarnChannels8:
 		return fmt.Sprintf("%s %d is not a multiple of 8 (common practice for tensor-core efficiency); try %d", d.Field, d.A, d.B)
 	}
