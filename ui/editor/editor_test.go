@@ -644,6 +644,7 @@ func TestForkEditing(t *testing.T) {
 // TestListLimitAtEditTime: a list at the most items a stack file holds
 // takes no more from the editor (copy, add), so every save loads back.
 func TestListLimitAtEditTime(t *testing.T) {
+	t.Parallel() // slow: runs beside the others, after the serial tests (the memory measurements among them)
 	s := &engine.Stack{Input: engine.Shape{C: 8, H: 8, W: 8}}
 	s.Layers = make([]engine.Layer, engine.MaxSegment)
 	for i := range s.Layers {
@@ -680,6 +681,7 @@ func (j *saveJournal) Rebase([]byte) {}
 // with the file size, nothing changes and no undo step is made, and the
 // stack still saves and loads.
 func TestFileSizeLimitAtEditTime(t *testing.T) {
+	t.Parallel() // slow: runs beside the others, after the serial tests (the memory measurements among them)
 	note := strings.Repeat("n", engine.MaxNoteLen)
 	layer := engine.Layer{Kind: engine.KindAct, Note: note}
 	s := &engine.Stack{Input: engine.Shape{C: 8, H: 8, W: 8}, Layers: []engine.Layer{layer}}

@@ -41,6 +41,7 @@ var actions = [][]string{
 // state saves and loads back identically and that undoing every change
 // returns the original stack exactly.
 func TestRandomEditsUndoAll(t *testing.T) {
+	t.Parallel() // slow: runs beside the others, after the serial tests (the memory measurements among them)
 	for seed := int64(1); seed <= 40; seed++ {
 		rng := rand.New(rand.NewSource(seed))
 		m := newModel(t, example(t), 100, 30)
