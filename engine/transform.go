@@ -38,7 +38,10 @@ func gcd(a, b int64) int64 {
 // m is 0), and to a multiple of the layer's groups as well. The last layer
 // with weights keeps its width, since the task fixes it (classes, output
 // channels). A dense layer that feeds a reshape is resized to the reshape's
-// scaled element count.
+// scaled element count. A stack written with units keeps them, the
+// scaling carried into their widths and the uses' arguments, when they
+// can carry it exactly; otherwise it is returned written out, without
+// units (see carryWidths).
 func ScaleWidth(s *Stack, factor float64, m int64) (*Stack, error) {
 	if !(factor > 0) || math.IsInf(factor, 0) {
 		return nil, fmt.Errorf("%w: width factor %v must be a positive number, e.g. 0.5 or 1.25", ErrTransform, factor)
@@ -76,10 +79,7 @@ func ScaleWidth(s *Stack, factor float64, m int64) (*Stack, error) {
 			if !l.Kind.HasWeights() || l == last || l.Filters < 1 || !l.Rel.IsZero() {
 				continue // a relative width follows its input
 			}
-			step := m
-			if l.Groups > 1 {
-				step = m / gcd(m, l.Groups) * l.Groups
-			}
+			step := widthStep(l, m)
 			if l.Kind == KindDense && i+1 < len(ls) && ls[i+1].Kind == KindReshape {
 				r := &ls[i+1]
 				r.Target.C = ScaleChannels(r.Target.C, factor, m)
@@ -101,6 +101,9 @@ func ScaleWidth(s *Stack, factor float64, m int64) (*Stack, error) {
 	scale(out.Layers, Path{})
 	if err != nil {
 		return nil, err
+	}
+	if len(out.Units) > 0 {
+		out = carryWidths(out, factor, m)
 	}
 	return out, nil
 }

@@ -153,3 +153,52 @@ func TestScaleCommandRefuses(t *testing.T) {
 		t.Error("help scale differs from scale --help")
 	}
 }
+
+// TestScaleCommandUnits: a stack written with units, widened, is written
+// with its units (the uses' arguments carry the new widths) and computes
+// what the same stack written out (testdata/examples/cap-inspector.yaml)
+// computes widened the same way; where a unit cannot carry the scaling
+// (its literal width would differ between two uses: the last weighted
+// layer keeps its width), the copy is written out and says so.
+func TestScaleCommandUnits(t *testing.T) {
+	dir := t.TempDir()
+	withUnits, plain := filepath.Join(dir, "units.yaml"), filepath.Join(dir, "plain.yaml")
+	if out, errs, code := run(t, "", "scale", "../../testdata/examples/cap-inspector-units.yaml", "--width", "2", "-o", withUnits); code != ExitOK {
+		t.Fatalf("exit %d:\n%s%s", code, out, errs)
+	}
+	if out, errs, code := run(t, "", "scale", "../../testdata/examples/cap-inspector.yaml", "--width", "2", "-o", plain); code != ExitOK {
+		t.Fatalf("exit %d:\n%s%s", code, out, errs)
+	}
+	a, err := store.LoadFile(withUnits)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := store.LoadFile(plain)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ra, rb := engine.Evaluate(a), engine.Evaluate(b)
+	if len(a.Units) != 2 || ra.Totals != rb.Totals || len(ra.Rows) != len(rb.Rows) {
+		t.Errorf("with units: %d units, %+v; written out: %+v", len(a.Units), ra.Totals, rb.Totals)
+	}
+	if data, _ := os.ReadFile(withUnits); !strings.Contains(string(data), "{unit: basic, c: 128, s: 2}") {
+		t.Errorf("the uses' widths did not double:\n%s", data)
+	}
+	const twice = `stackfit: 1
+input: [3, 32, 32]
+units:
+  cb:
+    params: {c: 16}
+    layers:
+      - {conv: $c, kernel: 3, pad: 1}
+      - {conv: 10, kernel: 1}
+layers:
+  - {unit: cb}
+  - {unit: cb, c: 24}
+`
+	out, errs, code := run(t, twice, "scale", "-", "--width", "2")
+	if code != ExitOK || !strings.Contains(errs, "the units are written out") || strings.Contains(out, "unit:") ||
+		!strings.Contains(out, "{conv: 24, kernel: 1}") || !strings.Contains(out, "{conv: 10, kernel: 1}") {
+		t.Errorf("exit %d:\n%s%s", code, out, errs)
+	}
+}

@@ -396,7 +396,13 @@ func (t *stackTree) scaleFilters(num, den int64) (edit, error) {
 }
 
 func (m *Model) scaleWidth(factor float64) tea.Cmd {
-	return m.change(fmt.Sprintf("scaled every width by %g", factor), func(s *engine.Stack) (addr, error) {
+	what := fmt.Sprintf("scaled every width by %g", factor)
+	if len(m.stack.Units) > 0 {
+		if out, err := engine.ScaleWidth(m.stack, factor, 8); err == nil && len(out.Units) == 0 {
+			what += "; the units are written out (a unit's widths cannot scale the same in every use)"
+		}
+	}
+	return m.change(what, func(s *engine.Stack) (addr, error) {
 		out, err := engine.ScaleWidth(s, factor, 8)
 		if err != nil {
 			return nil, err

@@ -139,3 +139,24 @@ func capUnits(t *testing.T) *engine.Stack {
 	}
 	return s
 }
+
+// TestWidthMultiplierKeepsUnits: the width multiplier (*) on a stack
+// written with units widens the uses' arguments, keeps the units, and is
+// one undo step (engine.ScaleWidth carries the scaling into the units).
+func TestWidthMultiplierKeepsUnits(t *testing.T) {
+	m := newModel(t, capUnits(t), 100, 30)
+	before := engine.Evaluate(m.stack).Totals
+	press(m, "*")
+	typeText(m, "2")
+	press(m, "enter")
+	if len(m.stack.Units) != 2 || m.stack.Layers[0].Args[0] != (engine.Arg{Name: "c", Value: "64"}) || m.stack.Layers[0].Body[0].Filters != 64 {
+		t.Fatalf("after ×2: %d units, stem %v (status %q)", len(m.stack.Units), m.stack.Layers[0].Args, m.status)
+	}
+	if !strings.Contains(m.status, "scaled every width by 2") || strings.Contains(m.status, "written out") {
+		t.Errorf("status %q", m.status)
+	}
+	press(m, "u")
+	if got := engine.Evaluate(m.stack).Totals; got != before || m.stack.Layers[0].Args[0].Value != "32" {
+		t.Errorf("one undo: %+v, want %+v", got, before)
+	}
+}
