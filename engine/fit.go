@@ -124,7 +124,7 @@ func MaxWidth(s *Stack, t Training, a Assumptions) (float64, string, bool) {
 // it returns ctx.Err() and no answer.
 func SearchWidth(ctx context.Context, s *Stack, t Training, a Assumptions, r *Result, m *Memory) (float64, string, bool, error) {
 	try := func(alpha float64) (bool, string) {
-		scaled, err := ScaleWidth(s, alpha, 8)
+		scaled, err := scaleWidth(s, alpha, 8, false)
 		if err != nil {
 			return false, CatWeights
 		}

@@ -37,10 +37,21 @@ func (sc Scaling) IsZero() bool {
 // then the depth (ScaleDepth), then the input (ScaleInput or
 // ScaleResolution). s is not changed.
 func Scale(s *Stack, sc Scaling) (*Stack, error) {
+	return scale(s, sc, true)
+}
+
+// ScaleRows is Scale for a variant that is evaluated, never written: a
+// stack's units are left as they were and only their uses' expansions
+// scaled, which is what Evaluate reads (and cheaper: see ScaleWidth).
+func ScaleRows(s *Stack, sc Scaling) (*Stack, error) {
+	return scale(s, sc, false)
+}
+
+func scale(s *Stack, sc Scaling, carry bool) (*Stack, error) {
 	out := s.Clone()
 	var err error
 	if sc.Width != 0 && sc.Width != 1 {
-		if out, err = ScaleWidth(out, sc.Width, sc.Divisor); err != nil {
+		if out, err = scaleWidth(out, sc.Width, sc.Divisor, carry); err != nil {
 			return nil, err
 		}
 	}
@@ -274,7 +285,7 @@ func MaxScale(ctx context.Context, s *Stack, t Training, a Assumptions, x Axis, 
 		if err := ctx.Err(); err != nil {
 			return false, "", false, err
 		}
-		v, terr := Scale(s, ScalingFor(x, value(k), c))
+		v, terr := ScaleRows(s, ScalingFor(x, value(k), c))
 		if terr != nil {
 			return false, "", true, nil
 		}

@@ -352,7 +352,7 @@ func (w *sweepWorker) profile(sw *sweeper, i int64, p *sweepProfile) {
 		w.lastW, w.lastD, w.depthS = p.width, math.NaN(), nil
 		w.widthS, w.widthErr = sw.s, nil
 		if p.width != 1 {
-			w.widthS, w.widthErr = ScaleWidth(sw.s, p.width, g.Divisor)
+			w.widthS, w.widthErr = scaleWidth(sw.s, p.width, g.Divisor, false)
 		}
 	}
 	if w.widthErr != nil {

@@ -43,6 +43,13 @@ func gcd(a, b int64) int64 {
 // can carry it exactly; otherwise it is returned written out, without
 // units (see carryWidths).
 func ScaleWidth(s *Stack, factor float64, m int64) (*Stack, error) {
+	return scaleWidth(s, factor, m, true)
+}
+
+// scaleWidth is ScaleWidth; without carry, the units are left as they
+// were and only the uses' expansions scaled: what Evaluate reads, for the
+// searches and sweeps that evaluate a variant and never write it.
+func scaleWidth(s *Stack, factor float64, m int64, carry bool) (*Stack, error) {
 	if !(factor > 0) || math.IsInf(factor, 0) {
 		return nil, fmt.Errorf("%w: width factor %v must be a positive number, e.g. 0.5 or 1.25", ErrTransform, factor)
 	}
@@ -102,7 +109,7 @@ func ScaleWidth(s *Stack, factor float64, m int64) (*Stack, error) {
 	if err != nil {
 		return nil, err
 	}
-	if len(out.Units) > 0 {
+	if carry && len(out.Units) > 0 {
 		out = carryWidths(out, factor, m)
 	}
 	return out, nil

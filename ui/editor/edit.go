@@ -396,12 +396,7 @@ func (t *stackTree) scaleFilters(num, den int64) (edit, error) {
 }
 
 func (m *Model) scaleWidth(factor float64) tea.Cmd {
-	what := fmt.Sprintf("scaled every width by %g", factor)
-	if len(m.stack.Units) > 0 {
-		if out, err := engine.ScaleWidth(m.stack, factor, 8); err == nil && len(out.Units) == 0 {
-			what += "; the units are written out (a unit's widths cannot scale the same in every use)"
-		}
-	}
+	what := fmt.Sprintf("scaled every width by %g", factor) + unitsWrittenOut(m.stack, engine.Scaling{Width: factor})
 	return m.change(what, func(s *engine.Stack) (addr, error) {
 		out, err := engine.ScaleWidth(s, factor, 8)
 		if err != nil {
@@ -410,6 +405,19 @@ func (m *Model) scaleWidth(factor float64) tea.Cmd {
 		*s = *out
 		return nil, nil
 	})
+}
+
+// unitsWrittenOut is what a status line adds when scaling s by sc writes
+// its units out (engine.ScaleWidth: a unit's widths cannot scale the same
+// in every use), else "".
+func unitsWrittenOut(s *engine.Stack, sc engine.Scaling) string {
+	if len(s.Units) == 0 {
+		return ""
+	}
+	if out, err := engine.Scale(s, sc); err != nil || len(out.Units) > 0 {
+		return ""
+	}
+	return "; the units are written out (a unit's widths cannot scale the same in every use)"
 }
 
 // insertStage adds a downsampling stage after the selected top-level

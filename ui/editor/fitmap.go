@@ -143,7 +143,7 @@ func (m *Model) applyFitCell(c engine.FitCell) tea.Cmd {
 		m.setStatus("that is the stack as it is; nothing changed", statusInfo)
 		return nil
 	}
-	what := fmt.Sprintf("scaled from the map: width ×%s, input %s", factor(c.Width), pairText(c.Input))
+	what := fmt.Sprintf("scaled from the map: width ×%s, input %s", factor(c.Width), pairText(c.Input)) + unitsWrittenOut(m.stack, c.Scaling(0))
 	return m.change(what, func(st *engine.Stack) (addr, error) {
 		v, err := engine.Scale(st, c.Scaling(0))
 		if err != nil {
