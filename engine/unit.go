@@ -334,27 +334,55 @@ func CloneUnits(us []Unit) []Unit {
 // its unit, so that a unit is edited once for every use: fresh is the
 // use's expansion before the change, edited the expansion changed. A field
 // bound to a parameter sets the use's argument (this use only); any other
-// field changes the unit's layer, so every use follows. Layers added,
-// removed, moved, renamed or changed inside a nested use are refused with
-// the reason; u and use are then unchanged.
-func EditThroughUse(u *Unit, use *Layer, fresh, edited []Layer) error {
-	body, args := CloneLayers(u.Body), slices.Clone(use.Args)
-	if err := liftEdit(body, fresh, edited, &args, u.Name); err != nil {
+// field changes the unit's layer, so every use follows. A change inside a
+// nested use goes the same way one level down: a field bound to the
+// nested unit's parameter sets the nested use's argument — which, when it
+// passes the enclosing unit's parameter on ($c), sets that parameter's
+// argument instead — and any other field changes the nested unit. Layers
+// added, removed, moved or renamed inside a use are refused with the
+// reason; s and use are then unchanged.
+func EditThroughUse(s *Stack, use *Layer, fresh, edited []Layer) error {
+	if s.UnitByName(use.Unit) == nil {
+		return fmt.Errorf("no unit is named %q", use.Unit)
+	}
+	lf := &lifter{s: s, bodies: map[string][]Layer{}}
+	args := slices.Clone(use.Args)
+	if err := lf.lift(lf.body(use.Unit), fresh, edited, &args, use.Unit, 0); err != nil {
 		return err
 	}
-	u.Body, use.Args = body, args
+	for name, b := range lf.bodies {
+		s.UnitByName(name).Body = b
+	}
+	use.Args = args
 	return nil
 }
 
-func liftEdit(tmpl, fresh, edited []Layer, args *[]Arg, unit string) error {
+// lifter carries an edit of expanded rows into the units: the bodies of
+// the units it changes, committed when the whole edit can be carried.
+type lifter struct {
+	s      *Stack
+	bodies map[string][]Layer
+}
+
+// body is the changeable copy of a unit's body.
+func (lf *lifter) body(name string) []Layer {
+	if b, ok := lf.bodies[name]; ok {
+		return b
+	}
+	b := CloneLayers(lf.s.UnitByName(name).Body)
+	lf.bodies[name] = b
+	return b
+}
+
+func (lf *lifter) lift(tmpl, fresh, edited []Layer, args *[]Arg, unit string, depth int) error {
 	if len(tmpl) != len(fresh) || len(fresh) != len(edited) {
 		return fmt.Errorf("unit %s: adding, removing or moving layers of a use changes the unit's structure; edit the units: section of the file, or make the use a block of its own", unit)
 	}
 	for i := range tmpl {
 		t, f, e := &tmpl[i], &fresh[i], &edited[i]
 		if t.Unit != "" {
-			if !EqualLayers(f.Body, e.Body) || !slices.Equal(f.Args, e.Args) || f.Repeat != e.Repeat {
-				return fmt.Errorf("unit %s: that row belongs to its use of unit %s; select that use to change its arguments", unit, t.Unit)
+			if err := lf.nested(t, f, e, args, unit, depth); err != nil {
+				return err
 			}
 			continue
 		}
@@ -385,9 +413,38 @@ func liftEdit(tmpl, fresh, edited []Layer, args *[]Arg, unit string) error {
 			p.Set(t, ve)
 		}
 		*t = t.Normalized()
-		if err := liftEdit(t.Body, f.Body, e.Body, args, unit); err != nil {
+		if err := lf.lift(t.Body, f.Body, e.Body, args, unit, depth); err != nil {
 			return err
 		}
+	}
+	return nil
+}
+
+// nested carries a change of a nested use's rows (t in the enclosing
+// unit's body, f and e its expansion before and after) into its unit and
+// its arguments.
+func (lf *lifter) nested(t, f, e *Layer, args *[]Arg, unit string, depth int) error {
+	if f.Repeat != e.Repeat || f.Name != e.Name || f.Note != e.Note || f.Kind != e.Kind {
+		return fmt.Errorf("unit %s: that row is its use of unit %s, whose repeat, name and note the unit's text sets; edit the units: section of the file", unit, t.Unit)
+	}
+	if EqualLayers(f.Body, e.Body) {
+		return nil
+	}
+	if depth >= MaxBlockDepth || lf.s.UnitByName(t.Unit) == nil {
+		return fmt.Errorf("unit %s: its use of unit %s cannot be changed from here; edit the units: section of the file", unit, t.Unit)
+	}
+	var inner []Arg
+	if err := lf.lift(lf.body(t.Unit), f.Body, e.Body, &inner, t.Unit, depth+1); err != nil {
+		return err
+	}
+	for _, a := range inner {
+		if v, given := argValue(t.Args, a.Name); given {
+			if ref, isRef := ParamRef(v); isRef {
+				setArg(args, ref, a.Value) // the enclosing unit's parameter, passed on
+				continue
+			}
+		}
+		setArg(&t.Args, a.Name, a.Value) // written in the enclosing unit: every use follows
 	}
 	return nil
 }

@@ -559,11 +559,7 @@ func liftUses(s *engine.Stack, ls, fresh []engine.Layer) (bool, error) {
 		case i >= len(fresh):
 			return lifted, nil
 		case l.Unit != "" && l.Body != nil && !engine.EqualLayers(l.Body, fresh[i].Body):
-			u := s.UnitByName(l.Unit)
-			if u == nil {
-				return false, fmt.Errorf("no unit is named %q", l.Unit)
-			}
-			if err := engine.EditThroughUse(u, l, fresh[i].Body, l.Body); err != nil {
+			if err := engine.EditThroughUse(s, l, fresh[i].Body, l.Body); err != nil {
 				return false, fmt.Errorf("refused: %w", err)
 			}
 			lifted = true

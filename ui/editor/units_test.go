@@ -160,3 +160,69 @@ func TestWidthMultiplierKeepsUnits(t *testing.T) {
 		t.Errorf("one undo: %+v, want %+v", got, before)
 	}
 }
+
+// TestEditThroughNestedUse: a change to the rows of a use nested in a use
+// goes down the units the same way: a field bound to the nested unit's
+// parameter that the enclosing unit passes on ($c) sets the enclosing
+// use's argument (so widening a block of basic units widens its use),
+// an unbound field changes the nested unit for every use, and a literal
+// argument written in the enclosing unit changes there.
+func TestEditThroughNestedUse(t *testing.T) {
+	m := newModel(t, capUnits(t), 100, 30)
+	m.change("widen stage1", func(s *engine.Stack) (addr, error) {
+		body := s.Layers[1].Body[0].Body // basic's expansion: cbr's use, conv, norm
+		body[0].Body[0].Filters, body[1].Filters = 64, 64
+		return nil, nil
+	})
+	if a := m.stack.Layers[1].Body[0].Args; len(a) != 1 || a[0] != (engine.Arg{Name: "c", Value: "64"}) {
+		t.Fatalf("stage1's use of basic: args %v (status %q)", a, m.status)
+	}
+	if m.stack.Layers[2].Body[0].Args[0].Value != "64" || m.stack.Layers[0].Args[0].Value != "32" || len(m.stack.Units[0].Body[0].Binds) != 2 || len(m.stack.Units[1].Body[1].Binds) != 1 {
+		t.Errorf("other uses or the units changed: %v %v; cbr %+v", m.stack.Layers[0].Args, m.stack.Layers[2].Body[0].Args, m.stack.Units[0].Body[0])
+	}
+	if f := m.stack.Layers[1].Body[0].Body[0].Body[0].Filters; f != 64 {
+		t.Errorf("the nested conv re-expanded to %d filters, want 64", f)
+	}
+	// an unbound field of cbr, reached through basic: every cbr follows
+	m.change("kernel 5", func(s *engine.Stack) (addr, error) {
+		s.Layers[2].Body[0].Body[0].Body[0].Kernel = engine.Square(5)
+		return nil, nil
+	})
+	if k := m.stack.Units[0].Body[0].Kernel; k != engine.Square(5) || m.stack.Layers[0].Body[0].Kernel != engine.Square(5) {
+		t.Errorf("cbr's kernel %v, the stem's %v; want 5×5 for both (status %q)", k, m.stack.Layers[0].Body[0].Kernel, m.status)
+	}
+	press(m, "u", "u")
+	if m.stack.Layers[1].Body[0].Args[0].Value != "32" || m.stack.Units[0].Body[0].Kernel != engine.Square(3) {
+		t.Error("two undo steps did not restore the stack")
+	}
+	// a literal argument in the enclosing unit's text
+	s, err := stackfile.Load([]byte(`stackfit: 1
+input: [3, 16, 16]
+units:
+  cb:
+    params: {c: 8}
+    layers: [{conv: $c, kernel: 3, pad: 1}]
+  pair:
+    layers:
+      - {unit: cb, c: 16}
+      - {unit: cb}
+layers:
+  - {unit: pair}
+  - {unit: pair}
+`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	m = newModel(t, s, 100, 30)
+	m.change("widen", func(s *engine.Stack) (addr, error) {
+		s.Layers[0].Body[0].Body[0].Filters = 24
+		return nil, nil
+	})
+	pair := m.stack.UnitByName("pair")
+	if a := pair.Body[0].Args; len(a) != 1 || a[0].Value != "24" || m.stack.Layers[1].Body[0].Body[0].Filters != 24 || len(m.stack.Layers[0].Args) != 0 {
+		t.Errorf("pair's use of cb: %v; the other use of pair: %d filters (status %q)", a, m.stack.Layers[1].Body[0].Body[0].Filters, m.status)
+	}
+	if pair.Body[1].Args != nil {
+		t.Errorf("pair's second use of cb gained %v", pair.Body[1].Args)
+	}
+}
