@@ -19,7 +19,8 @@ func FuzzLoad(f *testing.F) {
 	f.Add(examples.FruitGrader())
 	// Small files only: a large seed slows every mutation.
 	files, _ := filepath.Glob("../../testdata/examples/*.yaml")
-	files = append(files, "../../testdata/published/lenet5.yaml", "../../testdata/published/dcgan-generator.yaml")
+	files = append(files, "../../testdata/published/lenet5.yaml", "../../testdata/published/dcgan-generator.yaml",
+		"../../testdata/published/googlenet.yaml", "../../testdata/papers/spatial-gate-residual.yaml") // units and defaults; a spatial gate
 	for _, p := range files {
 		if data, err := os.ReadFile(p); err == nil {
 			f.Add(data)
