@@ -8,6 +8,7 @@ import (
 	"reflect"
 	"testing"
 
+	"stackfit/engine"
 	"stackfit/engine/examples"
 )
 
@@ -70,6 +71,23 @@ func FuzzLoad(f *testing.F) {
 		b2, _ := Save(s2)
 		if !bytes.Equal(b1, b2) {
 			t.Fatalf("save is not stable:\n%s\n---\n%s", b1, b2)
+		}
+		// A stack with units, widened, is written with its units (or
+		// written out) and reads back computing what the widened
+		// expansions compute.
+		if len(s.Units) > 0 {
+			if wide, err := engine.ScaleWidth(s, 1.5, 8); err == nil {
+				rows, _ := engine.ScaleRows(s, engine.Scaling{Width: 1.5, Divisor: 8})
+				if data, err := Save(wide); err == nil {
+					back, err := Load(data)
+					if err != nil {
+						t.Fatalf("a widened stack does not load: %v\n%s", err, data)
+					}
+					if a, b := engine.Evaluate(back), engine.Evaluate(rows); a.Totals != b.Totals || len(a.Rows) != len(b.Rows) {
+						t.Fatalf("the widened file computes %+v (%d rows), its expansions %+v (%d rows)\n%s", a.Totals, len(a.Rows), b.Totals, len(b.Rows), data)
+					}
+				}
+			}
 		}
 		// Saving an edited stack over the file keeps what comments it can
 		// and always reads back as the edited stack.
