@@ -92,17 +92,18 @@ func (b *builder) unitize(s *engine.Stack, items []*item, ls []engine.Layer) ([]
 	if len(units) == 0 {
 		return nil, ls
 	}
-	// the units in the order the stack first uses them
+	// the units in the order the stack first uses them, each after the
+	// units it uses
 	first := map[string]int{}
 	var walk func([]engine.Layer)
 	walk = func(ls []engine.Layer) {
 		for i := range ls {
+			walk(ls[i].Body) // the units a unit uses come before it
 			if ls[i].Unit != "" {
 				if _, seen := first[ls[i].Unit]; !seen {
 					first[ls[i].Unit] = len(first)
 				}
 			}
-			walk(ls[i].Body)
 		}
 	}
 	walk(curLs)
@@ -311,6 +312,8 @@ func paramBase(k engine.Kind, p *engine.Param) string {
 	switch {
 	case p.Type == engine.TWidth:
 		return "c"
+	case k == engine.KindBlock && engine.SpecOf(k).Main == p:
+		return "n" // a stage's repeats
 	case engine.SpecOf(k).Main == p:
 		return engine.SpecOf(k).Key
 	case engine.ValidName(p.Quick) && !slices.Contains(engine.ReservedUseKeys, p.Quick):
@@ -510,8 +513,13 @@ func (p *pattern) name(taken map[string]bool) string {
 			}
 		}
 		name = sharedPrefix(names)
-		if name == "" {
-			name = engine.SpecOf(p.occ[0].list[p.occ[0].at].l.Kind).Key
+		if _, isKind := engine.KindByName(name); isKind || name == "" {
+			// a kind's own word would read as that kind (RegNet's
+			// block1…block4): a stage of blocks, a module of forks
+			name = map[engine.Kind]string{engine.KindBlock: "stage", engine.KindFork: "module"}[p.occ[0].list[p.occ[0].at].l.Kind]
+			if name == "" {
+				name = "unit"
+			}
 		}
 	}
 	base := name
@@ -724,7 +732,11 @@ func (b *builder) constructPatterns(items []*item, units []engine.Unit) []*patte
 		oc := &occurrence{list: items, n: 1}
 		oc.at = slices.Index(items, it)
 		fork := it
-		if it.l.Kind == engine.KindBlock && it.l.Unit == "" && len(it.kids) == 1 && it.kids[0].l.Kind == engine.KindFork {
+		switch {
+		case it.l.Kind == engine.KindBlock && it.l.Unit == "" && len(it.kids) >= 2:
+			// a stage: the block itself, its repeat count a value like any
+			// other (EfficientNet's MBConv stages, ResNet's layer1…4)
+		case it.l.Kind == engine.KindBlock && it.l.Unit == "" && len(it.kids) == 1 && it.kids[0].l.Kind == engine.KindFork:
 			plain := it.l.Normalized()
 			plain.Name, plain.Body = "", nil
 			if !plain.Equal(&engine.Layer{Kind: engine.KindBlock, Repeat: plain.Repeat}) || it.tap || refs[it] {
@@ -733,7 +745,7 @@ func (b *builder) constructPatterns(items []*item, units []engine.Unit) []*patte
 			fork = it.kids[0]
 			oc.list, oc.at, oc.repeat, oc.wrap = it.kids, 0, max(it.l.Repeat, 1), it
 		}
-		if fork.l.Kind != engine.KindFork || fork.l.Note != "" || linked(fork, refs) {
+		if fork.l.Kind != engine.KindFork && fork.l.Kind != engine.KindBlock || fork.l.Note != "" || linked(fork, refs) {
 			continue
 		}
 		l := build(fork)
