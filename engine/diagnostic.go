@@ -79,6 +79,7 @@ const (
 	ErrBranchFromSplit                 // a branch of a split fork starts from a named output
 	ErrGroupWidth                      // input channels not a multiple of the group width
 	ErrGateKernel                      // a spatial gate's kernel is even
+	WarnUnitUnused                     // a unit no layer uses
 )
 
 // codeNames are the diagnostics' stable names: the words a stack file's
@@ -130,6 +131,7 @@ var codeNames = [...]string{
 	ErrBranchFromSplit: "branch-from-split",
 	ErrGroupWidth:      "group-width",
 	ErrGateKernel:      "spatial-gate-kernel",
+	WarnUnitUnused:     "unit-unused",
 }
 
 // Name returns the code's stable name, e.g. "small-receptive-field"; ""
@@ -142,7 +144,7 @@ func (c Code) Name() string {
 }
 
 // warningCodes are the codes whose diagnostics are warnings.
-var warningCodes = []Code{WarnStrideDrop, WarnSameAsym, WarnFinalRF, WarnParamShare, WarnChannels8, WarnMergeJump, WarnForkOne}
+var warningCodes = []Code{WarnStrideDrop, WarnSameAsym, WarnFinalRF, WarnParamShare, WarnChannels8, WarnMergeJump, WarnForkOne, WarnUnitUnused}
 
 // WarningNames lists the names of every warning, the ones a stack may
 // silence, in code order.
@@ -304,6 +306,8 @@ func (d Diagnostic) Message() string {
 		return fmt.Sprintf("branch %d starts from %q, but no layer or block has that name; name the output it should read with name: %s", d.E, d.Name, d.Name)
 	case ErrBranchFromSplit:
 		return fmt.Sprintf("branch %d starts from %q, but a split fork's branches each read their share of the fork's input; use input: copy, or drop from:", d.E, d.Name)
+	case WarnUnitUnused:
+		return fmt.Sprintf("unit %s is defined but no layer uses it; add a use ({unit: %s, …}) or remove it from units:", d.Name, d.Name)
 	case ErrGateKernel:
 		return fmt.Sprintf("kernel %d is even; the spatial gate pads (k − 1)/2 on each side to keep the map's size, which needs an odd kernel: use %d or %d", d.A, d.A-1, d.A+1)
 	case ErrValue:

@@ -390,6 +390,15 @@ func (r *Result) finish() {
 				A: int64(rf.H), B: int64(rf.W), C: in.H, D: in.W})
 		}
 	}
+	if len(r.stack.Units) > 0 {
+		used := map[string]bool{}
+		markUses(r.stack.Layers, used)
+		for i := range r.stack.Units {
+			if n := r.stack.Units[i].Name; !used[n] {
+				r.diag(Diagnostic{Severity: SevWarning, Code: WarnUnitUnused, Row: -1, Field: "units", Name: n})
+			}
+		}
+	}
 	byRow := func(a, b Diagnostic) int { return a.Row - b.Row }
 	if !slices.IsSortedFunc(r.Diags, byRow) {
 		slices.SortStableFunc(r.Diags, byRow)
@@ -412,6 +421,9 @@ func RoundToMultiple(n, m int64) int64 {
 // Describe returns the diagnostic's message prefixed by the layer it
 // concerns, e.g. "layer 3 (conv \"stem\"): ...".
 func (r *Result) Describe(d Diagnostic) string {
+	if d.Code == WarnUnitUnused {
+		return "units: " + d.Message()
+	}
 	return r.Where(d.Row) + ": " + d.Message()
 }
 
@@ -435,4 +447,15 @@ func (r *Result) DiagsFor(row int) []Diagnostic {
 		hi++
 	}
 	return r.Diags[lo:hi]
+}
+
+// markUses records the units the uses in ls (their expansions included)
+// name.
+func markUses(ls []Layer, used map[string]bool) {
+	for i := range ls {
+		if ls[i].Unit != "" {
+			used[ls[i].Unit] = true
+		}
+		markUses(ls[i].Body, used)
+	}
 }

@@ -3,6 +3,7 @@ package engine_test
 import (
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -113,5 +114,43 @@ func TestScaleWidthKeepsUnits(t *testing.T) {
 				}
 			}
 		})
+	}
+}
+
+// TestUnitUnusedWarning: a unit no layer uses (nor any unit a layer uses)
+// is a warning under units:, which quiet: silences (common practice: a
+// dead definition is kept by mistake more often than on purpose).
+func TestUnitUnusedWarning(t *testing.T) {
+	const file = `stackfit: 1
+input: [3, 16, 16]
+units:
+  cb:
+    params: {c: 8}
+    layers: [{conv: $c, kernel: 3, pad: 1}]
+  pair:
+    layers: [{unit: cb}, {unit: cb}]
+  spare:
+    layers: [{unit: cb, c: 16}]
+layers:
+  - {unit: pair}
+`
+	s, err := stackfile.Load([]byte(file))
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := engine.Evaluate(s)
+	var got []string
+	for _, d := range r.Diags {
+		if d.Code == engine.WarnUnitUnused {
+			got = append(got, r.Describe(d))
+		}
+	}
+	want := "units: unit spare is defined but no layer uses it; add a use ({unit: spare, …}) or remove it from units:"
+	if len(got) != 1 || got[0] != want || r.Warnings < 1 {
+		t.Errorf("warnings %q, want one %q", got, want)
+	}
+	s.Quiet = append(s.Quiet, engine.WarnUnitUnused)
+	if r := engine.Evaluate(s); slices.ContainsFunc(r.Diags, func(d engine.Diagnostic) bool { return d.Code == engine.WarnUnitUnused }) {
+		t.Error("quiet: [unit-unused] does not silence it")
 	}
 }

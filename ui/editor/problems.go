@@ -57,7 +57,10 @@ func (m *Model) jumpProblem(dir int) {
 		}
 	}
 	if target < 0 {
-		if m.nums.res.Errors+m.nums.res.Warnings > 0 {
+		if ds := m.nums.res.DiagsFor(-1); len(ds) > 0 {
+			// the stack's own: the input shape, or a unit no layer uses
+			m.setStatus(m.nums.res.Describe(ds[0]), statusInfo)
+		} else if m.nums.res.Errors+m.nums.res.Warnings > 0 {
 			m.setStatus("the only errors and warnings concern the input shape", statusInfo)
 		} else {
 			m.setStatus("no errors or warnings", statusInfo)

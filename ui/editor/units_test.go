@@ -226,3 +226,28 @@ layers:
 		t.Errorf("pair's second use of cb gained %v", pair.Body[1].Args)
 	}
 }
+
+// TestUnusedUnitInStatus: with no layer at fault, the next-problem key
+// says which unit no layer uses (the warning has no row of its own).
+func TestUnusedUnitInStatus(t *testing.T) {
+	s, err := stackfile.Load([]byte(`stackfit: 1
+input: [8, 16, 16]
+units:
+  cb:
+    params: {c: 8}
+    layers: [{conv: $c, kernel: 3, pad: 1}]
+  spare:
+    layers: [{act: relu}]
+layers:
+  - {unit: cb}
+  - {unit: cb}
+`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := newModel(t, s, 100, 30)
+	press(m, "f")
+	if !strings.Contains(m.status, "unit spare is defined but no layer uses it") {
+		t.Errorf("status %q", m.status)
+	}
+}
