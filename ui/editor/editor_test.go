@@ -545,6 +545,28 @@ func BenchmarkKeyMove(b *testing.B) { benchKeys(b, "j", "k") }
 // number of the stack, and a new frame.
 func BenchmarkKeyEdit(b *testing.B) { benchKeys(b, ">", "<") }
 
+// BenchmarkKeyEditUnits is the same edit on a use of a unit in the
+// GoogLeNet stack file (cbr used 57 times, 54 of them inside the nine uses
+// of inception): the change
+// goes to the unit and every use is expanded again.
+func BenchmarkKeyEditUnits(b *testing.B) {
+	data, err := os.ReadFile("../../testdata/published/googlenet.yaml")
+	if err != nil {
+		b.Fatal(err)
+	}
+	s, err := stackfile.Load(data)
+	if err != nil {
+		b.Fatal(err)
+	}
+	m := newModel(b, s, 120, 40)
+	keys := [2]tea.KeyMsg{keyMsg(">"), keyMsg("<")}
+	b.ReportAllocs()
+	for i := 0; b.Loop(); i++ {
+		m.Update(keys[i%2])
+		_ = m.View()
+	}
+}
+
 // BenchmarkView measures a frame alone on stacks of 100 and 10,000 layers:
 // only visible rows are drawn, so the two should cost about the same.
 func BenchmarkView(b *testing.B) {
