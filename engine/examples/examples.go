@@ -9,6 +9,9 @@ var fruitGrader []byte
 //go:embed fruit-grader-board.yaml
 var fruitGraderBoard []byte
 
+//go:embed cap-inspector.yaml
+var capInspector []byte
+
 // FruitGrader returns the built-in example's stack file: a small classifier
 // for a camera that grades apples on a sorting line.
 func FruitGrader() []byte { return append([]byte(nil), fruitGrader...) }
@@ -31,6 +34,7 @@ func All() []Example {
 	return []Example{
 		{Name: "fruit-grader", About: "a plain conv classifier that grades apples on a sorting line (the default)", data: fruitGrader},
 		{Name: "fruit-grader-board", About: "the same job for the camera board: inverted residuals, gates, relative widths, a fork", data: fruitGraderBoard},
+		{Name: "cap-inspector", About: "a bottle-cap inspector written with units (a brick and a residual stage used by name) and a spatial gate", data: capInspector},
 	}
 }
 

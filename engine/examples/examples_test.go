@@ -63,3 +63,29 @@ func TestBoardExampleIsMobile(t *testing.T) {
 		t.Errorf("%d parameters, %d MACs: too big for the board", r.Totals.Params, r.Totals.MACs)
 	}
 }
+
+// TestCapExampleUsesUnits holds the cap-inspector example to what it
+// shows: units used by name (one nested in another, a stage's repeats a
+// parameter), a spatial gate, and rows that are those of the same stack
+// written out (engine.Inline), count for count.
+func TestCapExampleUsesUnits(t *testing.T) {
+	e, _ := Find("cap-inspector")
+	s, err := stackfile.Load(e.Data())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Units) != 2 || s.Layers[1].Unit != "stage" || s.Layers[1].Body[0].Body[0].Unit != "cna" {
+		t.Fatalf("units %d, stage1 %+v", len(s.Units), s.Layers[1])
+	}
+	r, w := engine.Evaluate(s), engine.Evaluate(engine.Inline(s))
+	if r.Totals != w.Totals || len(r.Rows) != len(w.Rows) {
+		t.Errorf("with units %+v (%d rows), written out %+v (%d rows)", r.Totals, len(r.Rows), w.Totals, len(w.Rows))
+	}
+	gate := false
+	for _, row := range r.Rows {
+		gate = gate || row.Layer.Kind == engine.KindSpatialGate
+	}
+	if !gate {
+		t.Error("no spatial gate")
+	}
+}

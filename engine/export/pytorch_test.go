@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"stackfit/engine"
+	"stackfit/engine/examples"
 	"stackfit/engine/stackfile"
 )
 
@@ -142,6 +143,14 @@ func TestExportBuildsInPyTorch(t *testing.T) {
 		rel, _ := filepath.Rel("../../testdata", f)
 		add(strings.TrimSuffix(strings.ReplaceAll(rel, string(filepath.Separator), "-"), ".yaml"), s, f)
 		files[s.Name] = true
+	}
+	// The built-in examples, which a new user exports first.
+	for _, e := range examples.All() {
+		s, err := stackfile.Load(e.Data())
+		if err != nil {
+			t.Fatalf("example %s: %v", e.Name, err)
+		}
+		add("example-"+e.Name, s, "example-"+e.Name)
 	}
 	// The reference stacks cover every kind, odd sizes, same padding, crops.
 	var doc struct {

@@ -231,7 +231,7 @@ func TestExampleCommand(t *testing.T) {
 		t.Errorf("print (exit %d):\n%s", code, out)
 	}
 	_, errs, code := run(t, "", "example", "fruit")
-	if code != ExitUsage || !strings.Contains(errs, `no example is called "fruit"; the examples: fruit-grader, fruit-grader-board`) {
+	if code != ExitUsage || !strings.Contains(errs, `no example is called "fruit"; the examples: fruit-grader, fruit-grader-board, cap-inspector`) {
 		t.Errorf("unknown name (exit %d): %s", code, errs)
 	}
 	p := filepath.Join(t.TempDir(), "board.yaml")
