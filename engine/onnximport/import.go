@@ -19,6 +19,8 @@ import (
 	"fmt"
 	"slices"
 
+	"google.golang.org/protobuf/proto"
+
 	"stackfit/engine/onnximport/onnxpb"
 
 	"stackfit/engine"
@@ -191,7 +193,7 @@ func (im *importer) input(g *onnxpb.Graph) (engine.Shape, string, error) {
 		t := v.GetType().GetTensorType()
 		dims := t.GetShape().GetDim()
 		if x != "" {
-			w := &onnxpb.Tensor{Name: v.Name, ElemType: t.ElemType}
+			w := &onnxpb.Tensor{Name: v.Name, ElemType: proto.Int32(t.GetElemType())}
 			for _, d := range dims {
 				if d.GetSize() < 1 {
 					w = nil

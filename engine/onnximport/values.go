@@ -5,6 +5,8 @@ import (
 	"math"
 	"strconv"
 
+	"google.golang.org/protobuf/proto"
+
 	"stackfit/engine/onnximport/onnxpb"
 
 	"stackfit/engine"
@@ -288,7 +290,7 @@ func (im *importer) foldData(n *onnxpb.Node, sh []int64) {
 			return
 		}
 		t := im.consts[in]
-		im.consts[out] = &onnxpb.Tensor{Name: &out, Dims: []int64{d[1], d[0]}, ElemType: t.ElemType}
+		im.consts[out] = &onnxpb.Tensor{Name: &out, Dims: []int64{d[1], d[0]}, ElemType: proto.Int32(t.GetElemType())}
 		im.initial[out] = true
 	}
 }
