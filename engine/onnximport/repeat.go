@@ -196,7 +196,7 @@ func (b *builder) name(it *item) string {
 		common = common[:n]
 	}
 	if len(common) == 0 {
-		return ""
+		return b.spanName(it, ns, split)
 	}
 	last := common[len(common)-1]
 	if isConstruct(it.l.Kind) {
@@ -234,6 +234,30 @@ func (b *builder) name(it *item) string {
 		}
 	}
 	return b.unique(sanitise(last))
+}
+
+// spanName names a construct whose nodes share no module, one that spans
+// top-level modules (Inception v3's Mixed_5c and Mixed_5d, merged into one
+// repeated block): after the first and the last, their shared beginning
+// written once (Mixed_5c-d). Anything else has no name.
+func (b *builder) spanName(it *item, ns []int, split func(int) []string) string {
+	if !isConstruct(it.l.Kind) || len(ns) == 0 {
+		return ""
+	}
+	lo, hi := ns[0], ns[0]
+	for _, k := range ns {
+		lo, hi = min(lo, k), max(hi, k)
+	}
+	a, z := split(lo), split(hi)
+	if len(a) == 0 || len(z) == 0 || a[0] == z[0] {
+		return ""
+	}
+	first, end := a[0], z[0]
+	n := 0
+	for n < len(first) && n < len(end) && first[n] == end[n] {
+		n++
+	}
+	return b.unique(sanitise(first + "-" + end[n:]))
 }
 
 // unique makes a name unique among those given.

@@ -108,6 +108,10 @@ func TestImportUnitsTorchvision(t *testing.T) {
 		if limit, ok := maxLines[n.Name]; ok && (lines > limit || len(s.Units) == 0) {
 			t.Errorf("%s: %d lines, %d units; want at most %d lines with units\n%s", n.Name, lines, len(s.Units), limit, file)
 		}
+		// merged top-level modules are named after the first and the last
+		if n.Name == "inception_v3" && !bytes.Contains(file, []byte("repeat: 2, name: Mixed_5c-d}")) {
+			t.Errorf("inception_v3: Mixed_5c and Mixed_5d are not one use named Mixed_5c-d\n%s", file)
+		}
 		if want, ok := stages[n.Name]; ok {
 			got := 0
 			for _, l := range s.Layers {
