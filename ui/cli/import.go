@@ -123,7 +123,13 @@ func runImport(args []string, std IO) int {
 		fmt.Fprintf(std.Err, "stackfit import: %s\n", textsafe.Text(err.Error()))
 		return ExitUsage
 	}
-	fmt.Fprintf(std.Out, "wrote %s: %d layers from %d nodes; check it with: stackfit check %s\n", textsafe.Line(*out), len(s.Layers), res.Nodes, textsafe.Line(*out))
+	r := engine.Evaluate(s)
+	units := ""
+	if len(s.Units) > 0 {
+		units = fmt.Sprintf(", %d unit%s", len(s.Units), map[bool]string{true: "s"}[len(s.Units) > 1])
+	}
+	fmt.Fprintf(std.Out, "wrote %s: %d top-level items%s, %d rows, %s parameters, from %d nodes; check it with: stackfit check %s\n",
+		textsafe.Line(*out), len(s.Layers), units, len(r.Rows), engine.GroupDigits(r.Totals.Params), res.Nodes, textsafe.Line(*out))
 	return ExitOK
 }
 

@@ -1,6 +1,7 @@
 package cli
 
 import (
+	"fmt"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -54,8 +55,8 @@ func TestImportRoundTrip(t *testing.T) {
 	}
 	for _, name := range names {
 		src, graph, out := src(name), filepath.Join(dir, name+".onnx"), filepath.Join(dir, name+".yaml")
-		var e strings.Builder
-		if code := Run([]string{"import", graph, "-o", out}, IO{Out: new(strings.Builder), Err: &e}); code != ExitOK {
+		var o, e strings.Builder
+		if code := Run([]string{"import", graph, "-o", out}, IO{Out: &o, Err: &e}); code != ExitOK {
 			t.Fatalf("%s: import exit %d: %s", name, code, e.String())
 		}
 		want, err := store.LoadFile(src)
@@ -69,6 +70,9 @@ func TestImportRoundTrip(t *testing.T) {
 		rw, rg := engine.Evaluate(want), engine.Evaluate(got)
 		if rg.Errors != 0 || rg.Totals != rw.Totals || rg.Output != rw.Output || got.Input != want.Input {
 			t.Errorf("%s: imported %+v → %v, published %+v → %v", name, rg.Totals, rg.Output, rw.Totals, rw.Output)
+		}
+		if say := fmt.Sprintf("%d rows, %s parameters, from ", len(rg.Rows), engine.GroupDigits(rg.Totals.Params)); !strings.Contains(o.String(), say) {
+			t.Errorf("%s: the import says %q, want it to say %q", name, o.String(), say)
 		}
 		shapes := func(r *engine.Result) []engine.Shape {
 			var out []engine.Shape
