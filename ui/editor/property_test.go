@@ -42,9 +42,29 @@ var actions = [][]string{
 // returns the original stack exactly.
 func TestRandomEditsUndoAll(t *testing.T) {
 	t.Parallel() // slow: runs beside the others, after the serial tests (the memory measurements among them)
-	for seed := int64(1); seed <= 40; seed++ {
+	randomEditsUndoAll(t, example, 40)
+}
+
+// TestRandomEditsUndoAllUnits is the same on a stack written with units
+// (the cap inspector): edits of a use's rows go to its unit or its
+// arguments, or are refused, and every state still saves and loads back,
+// and undoing every change restores the file exactly.
+func TestRandomEditsUndoAllUnits(t *testing.T) {
+	t.Parallel()
+	randomEditsUndoAll(t, capUnits, 20)
+}
+
+func randomEditsUndoAll(t *testing.T, start func(testing.TB) *engine.Stack, seeds int64) {
+	total := 0
+	defer func() {
+		t.Logf("%d changes in %d sequences", total, seeds)
+		if total < int(seeds) {
+			t.Errorf("only %d changes made in %d sequences: the actions do not reach this stack", total, seeds)
+		}
+	}()
+	for seed := int64(1); seed <= seeds; seed++ {
 		rng := rand.New(rand.NewSource(seed))
-		m := newModel(t, example(t), 100, 30)
+		m := newModel(t, start(t), 100, 30)
 		orig, _ := stackfile.Save(m.stack)
 		changes := 0
 		for step := 0; step < 40; step++ {
@@ -67,7 +87,13 @@ func TestRandomEditsUndoAll(t *testing.T) {
 			if !bytes.Equal(data, again) || !sameStack(back, m.stack) {
 				t.Fatalf("seed %d step %d %v: save/load does not round-trip\n%s", seed, step, a, data)
 			}
+			// the numbers on screen are the file's: a use's rows are its
+			// unit's expansion, never a stale copy
+			if rs, rb := engine.Evaluate(m.stack), engine.Evaluate(back); rs.Totals != rb.Totals || len(rs.Rows) != len(rb.Rows) {
+				t.Fatalf("seed %d step %d %v: the editor computes %+v (%d rows), its file %+v (%d rows)\n%s", seed, step, a, rs.Totals, len(rs.Rows), rb.Totals, len(rb.Rows), data)
+			}
 		}
+		total += changes
 		for len(m.hist.undo) > 0 {
 			press(m, "u")
 		}

@@ -127,7 +127,7 @@ func TestPickerOffersUnits(t *testing.T) {
 }
 
 // capUnits loads the cap inspector written with units.
-func capUnits(t *testing.T) *engine.Stack {
+func capUnits(t testing.TB) *engine.Stack {
 	t.Helper()
 	data, err := os.ReadFile("../../testdata/examples/cap-inspector-units.yaml")
 	if err != nil {
