@@ -89,6 +89,9 @@ func randomEditsUndoAll(t *testing.T, start func(testing.TB) *engine.Stack, seed
 			}
 			// the numbers on screen are the file's: a use's rows are its
 			// unit's expansion, never a stale copy
+			if len(back.Units) == 0 {
+				continue // no expansions to go stale
+			}
 			if rs, rb := engine.Evaluate(m.stack), engine.Evaluate(back); rs.Totals != rb.Totals || len(rs.Rows) != len(rb.Rows) {
 				t.Fatalf("seed %d step %d %v: the editor computes %+v (%d rows), its file %+v (%d rows)\n%s", seed, step, a, rs.Totals, len(rs.Rows), rb.Totals, len(rb.Rows), data)
 			}
