@@ -97,9 +97,17 @@ func (u *unitClasses) class(unit string, fwd []string) string {
 // write defines the unit classes, after the model's class (Python looks
 // them up when the model is built).
 func (u *unitClasses) write(b *bufio.Writer) {
+	variants := map[string]int{}
+	for _, c := range u.order {
+		variants[c.unit]++
+	}
 	for _, c := range u.order {
 		fmt.Fprintf(b, "\n\nclass %s(nn.Module):\n", c.name)
-		fmt.Fprintf(b, "    \"\"\"Unit %s of the stack file; each use passes its own layers.\"\"\"\n\n", readable(c.unit))
+		if n := variants[c.unit]; n > 1 {
+			fmt.Fprintf(b, "    \"\"\"Unit %s of the stack file, one of its %d forms: its uses here run\n    this forward (the others differ in repeats or shortcuts); each use\n    passes its own layers.\"\"\"\n\n", readable(c.unit), n)
+		} else {
+			fmt.Fprintf(b, "    \"\"\"Unit %s of the stack file; each use passes its own layers.\"\"\"\n\n", readable(c.unit))
+		}
 		b.WriteString("    def __init__(self, **layers):\n        super().__init__()\n")
 		b.WriteString("        for name, layer in layers.items():\n            self.add_module(name, layer)\n")
 		b.WriteString("\n    def forward(self, x):\n")
