@@ -14,6 +14,16 @@ import "strconv"
 // as the last layer's fixed width inside a unit used twice) the stack is
 // written out without units (Inline), which is always exact.
 
+// UnitsWrittenOut says why after, a scaled copy of before, has lost the
+// units before had: ScaleWidth writes a stack out where a unit cannot
+// hold the new widths. ok is false when nothing was written out.
+func UnitsWrittenOut(before, after *Stack) (why string, ok bool) {
+	if len(before.Units) == 0 || len(after.Units) > 0 {
+		return "", false
+	}
+	return "the units are written out: a unit's widths cannot scale the same in every use", true
+}
+
 // widthKind reports whether a kind's main value is a width that ScaleWidth
 // scales.
 func widthKind(k Kind) bool {
@@ -65,7 +75,7 @@ func carryWidths(scaled *Stack, factor float64, m int64) *Stack {
 		}
 	}
 	for _, a := range w.pending {
-		if v, given := argValue(a.use.Args, a.param); given {
+		if v, given := ArgValue(a.use.Args, a.param); given {
 			if _, isRef := ParamRef(v); !isRef {
 				setArg(&a.use.Args, a.param, a.value)
 			}
@@ -138,7 +148,7 @@ func (w *widthLift) lift(tmpl, exp []Layer, vals map[string]string) {
 			}
 			w.lift(u.Body, e.Body, inner)
 			for q, v := range inner {
-				if a, given := argValue(t.Args, q); given {
+				if a, given := ArgValue(t.Args, q); given {
 					if ref, isRef := ParamRef(a); isRef {
 						w.value(vals, ref, v)
 						continue
@@ -179,15 +189,6 @@ func boundTo(l *Layer, field string) (string, bool) {
 		}
 	}
 	return "", false
-}
-
-// widthStep is the multiple a layer's scaled width is rounded to: m, and
-// a multiple of the layer's groups as well.
-func widthStep(l *Layer, m int64) int64 {
-	if l.Groups > 1 {
-		return m / gcd(m, l.Groups) * l.Groups
-	}
-	return m
 }
 
 // sameWidths reports whether two expansions of one stack have the same

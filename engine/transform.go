@@ -32,6 +32,15 @@ func gcd(a, b int64) int64 {
 	return a
 }
 
+// widthStep is the multiple a layer's scaled width is rounded to: m, and
+// a multiple of the layer's groups as well.
+func widthStep(l *Layer, m int64) int64 {
+	if l.Groups > 1 {
+		return m / gcd(m, l.Groups) * l.Groups
+	}
+	return m
+}
+
 // ScaleWidth returns a copy of s with every layer's width multiplied by
 // factor: the width multiplier of Howard et al. 2017 (MobileNets). Filter
 // and unit counts are rounded with ScaleChannels to a multiple of m (8 when

@@ -77,10 +77,13 @@ func (e *UnitError) Error() string {
 }
 
 // UnitByName returns the stack's unit with that name.
-func (s *Stack) UnitByName(name string) *Unit {
-	for i := range s.Units {
-		if s.Units[i].Name == name {
-			return &s.Units[i]
+func (s *Stack) UnitByName(name string) *Unit { return UnitIn(s.Units, name) }
+
+// UnitIn returns the unit called name among us, or nil.
+func UnitIn(us []Unit, name string) *Unit {
+	for i := range us {
+		if us[i].Name == name {
+			return &us[i]
 		}
 	}
 	return nil
@@ -189,10 +192,10 @@ func (e *expander) use(l *Layer, outer []Arg, p Path) error {
 	}
 	var resolved []Arg // the use's own arguments, references replaced
 	for _, q := range u.Params {
-		v, given := argValue(l.Args, q.Name)
+		v, given := ArgValue(l.Args, q.Name)
 		if given {
 			if ref, ok := ParamRef(v); ok {
-				if v, given = argValue(outer, ref); !given {
+				if v, given = ArgValue(outer, ref); !given {
 					return fail("argument %s refers to $%s, which the enclosing unit does not pass", q.Name, ref)
 				}
 			}
@@ -233,7 +236,7 @@ func (e *expander) bind(ls []Layer, values []Arg, u *Unit, label string) error {
 	for i := range ls {
 		l := &ls[i]
 		for _, b := range l.Binds {
-			v, ok := argValue(values, b.Param)
+			v, ok := ArgValue(values, b.Param)
 			if !ok {
 				return &UnitError{Use: label, Unit: u.Name,
 					Msg: fmt.Sprintf("its field %s refers to $%s, which is not one of its parameters", b.Field, b.Param)}
@@ -283,7 +286,8 @@ func FieldWant(err error) string {
 	return err.Error()
 }
 
-func argValue(args []Arg, name string) (string, bool) {
+// ArgValue returns the value of a use's argument by name.
+func ArgValue(args []Arg, name string) (string, bool) {
 	for _, a := range args {
 		if a.Name == name {
 			return a.Value, true
@@ -438,7 +442,7 @@ func (lf *lifter) nested(t, f, e *Layer, args *[]Arg, unit string, depth int) er
 		return err
 	}
 	for _, a := range inner {
-		if v, given := argValue(t.Args, a.Name); given {
+		if v, given := ArgValue(t.Args, a.Name); given {
 			if ref, isRef := ParamRef(v); isRef {
 				setArg(args, ref, a.Value) // the enclosing unit's parameter, passed on
 				continue

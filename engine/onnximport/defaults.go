@@ -10,16 +10,6 @@ import (
 // BatchNormalization and InstanceNormalization when epsilon is absent).
 const pytorchEps = 1e-5
 
-// tidy writes what repeats across the stack once: a norm ε most norms
-// share becomes the file's default for norms, and grouped convolutions
-// that share one group width while their group counts differ (RegNet's
-// design) are written with that group width. The stack computes exactly
-// what it did before; a rewrite that would change a count is dropped.
-func tidy(s *engine.Stack) {
-	groupWidths(s)
-	normEps(s)
-}
-
 // normEps sets the file's default ε for norms to the value most norms
 // share when that is not PyTorch's, and leaves it out of those norms; a
 // norm with another ε keeps it written (PyTorch's 1e-5 included, then).
@@ -68,23 +58,20 @@ func normEps(s *engine.Stack) {
 	}
 }
 
-// groupWidths writes grouped convolutions with their group width (input
+// Grouped convolutions are written with their group width (input
 // channels per group) when every grouped convolution of the stack that is
 // not depthwise has the same group width and their group counts differ:
 // RegNet's stages keep one group width while the widths, and so the
-// group counts, grow (Radosavovic et al. 2020, section 3).
-func groupWidths(s *engine.Stack) {
-	if w := sharedGroupWidth(s, s.Layers); w > 0 {
-		s.Layers = withGroupWidth(s, s.Layers, w)
-	}
-}
+// group counts, grow (Radosavovic et al. 2020, section 3). finish does it
+// before the units are found, so that they carry it.
 
 // sharedGroupWidth is the group width every grouped, not depthwise
-// convolution of ls has when their group counts differ, else 0.
-func sharedGroupWidth(s *engine.Stack, ls []engine.Layer) int64 {
-	r := engine.Evaluate(&engine.Stack{Input: s.Input, Units: s.Units, Defaults: s.Defaults, Layers: ls})
+// convolution of ls has when their group counts differ, else 0; r is ls
+// evaluated.
+func sharedGroupWidth(s *engine.Stack, ls []engine.Layer) (w int64, r *engine.Result) {
+	r = engine.Evaluate(&engine.Stack{Input: s.Input, Units: s.Units, Defaults: s.Defaults, Layers: ls})
 	if r.Errors != 0 {
-		return 0
+		return 0, r
 	}
 	in := map[*engine.Layer]int64{} // −1: the layer's rows differ in input channels
 	for i := range r.Rows {
@@ -103,11 +90,11 @@ func sharedGroupWidth(s *engine.Stack, ls []engine.Layer) int64 {
 	var groups []int64
 	for l, c := range in {
 		if c < 1 || c%l.Groups != 0 {
-			return 0
+			return 0, r
 		}
 		gw := c / l.Groups
 		if width != 0 && gw != width {
-			return 0
+			return 0, r
 		}
 		width = gw
 		if !slices.Contains(groups, l.Groups) {
@@ -115,9 +102,9 @@ func sharedGroupWidth(s *engine.Stack, ls []engine.Layer) int64 {
 		}
 	}
 	if len(in) < 2 || len(groups) < 2 {
-		return 0
+		return 0, r
 	}
-	return width
+	return width, r
 }
 
 // grouped reports whether l is a grouped convolution that is not
@@ -126,21 +113,18 @@ func grouped(l *engine.Layer) bool {
 	return l.Kind == engine.KindConv && !l.Depthwise && l.Groups > 1
 }
 
-// withGroupWidth returns ls with its grouped convolutions written with
-// group width w, or ls itself when that would change a count.
-func withGroupWidth(s *engine.Stack, ls []engine.Layer, w int64) []engine.Layer {
-	st := &engine.Stack{Input: s.Input, Units: s.Units, Defaults: s.Defaults, Layers: ls}
-	before := engine.Evaluate(st)
-	st.Layers = engine.CloneLayers(ls)
-	walk(st.Layers, func(l *engine.Layer) {
+// withGroupWidth returns a copy of ls with its grouped convolutions
+// written with group width w, and false when that would change a count
+// of before (ls evaluated).
+func withGroupWidth(s *engine.Stack, ls []engine.Layer, w int64, before *engine.Result) ([]engine.Layer, bool) {
+	out := engine.CloneLayers(ls)
+	walk(out, func(l *engine.Layer) {
 		if grouped(l) {
 			l.Groups, l.GroupWidth = 0, w
 		}
 	})
-	if after := engine.Evaluate(st); after.Errors != 0 || after.Totals != before.Totals || len(after.Rows) != len(before.Rows) {
-		return ls
-	}
-	return st.Layers
+	after := engine.Evaluate(&engine.Stack{Input: s.Input, Units: s.Units, Defaults: s.Defaults, Layers: out})
+	return out, after.Errors == 0 && after.Totals == before.Totals && len(after.Rows) == len(before.Rows)
 }
 
 // walk calls fn on every layer of ls, bodies included.

@@ -152,7 +152,7 @@ func (im *importer) model(m *onnxpb.Model, consts map[string]*onnxpb.Tensor, nam
 	s := &engine.Stack{Name: name, Input: in}
 	if err != nil {
 		s.Layers = b.finish(s, items)
-		tidy(s)
+		normEps(s)
 		if werr := writable(s); werr != nil {
 			s.Layers = nil // the layers before the stop are past a limit: none are kept
 		}
@@ -164,7 +164,7 @@ func (im *importer) model(m *onnxpb.Model, consts map[string]*onnxpb.Tensor, nam
 		}
 	}
 	s.Layers = b.finish(s, items)
-	tidy(s)
+	normEps(s)
 	im.res.Read = im.res.Nodes
 	if err := writable(s); err != nil {
 		return nil, nil, err

@@ -36,8 +36,8 @@ func (b *builder) finish(s *engine.Stack, items []*item) []engine.Layer {
 		}
 	}
 	// RegNet's group width first, so that units are written with it.
-	if w := sharedGroupWidth(s, ls); w > 0 {
-		if nls := withGroupWidth(s, ls, w); &nls[0] != &ls[0] {
+	if w, r := sharedGroupWidth(s, ls); w > 0 {
+		if nls, same := withGroupWidth(s, ls, w, r); same {
 			ls = nls
 			walkItems(its, func(it *item) {
 				if grouped(&it.l) {

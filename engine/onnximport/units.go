@@ -261,12 +261,12 @@ func shapeOf(ls []engine.Layer, units []engine.Unit) (string, []field, []string)
 			if l.Unit != "" {
 				// a use: its unit, and each parameter's value a field
 				key.WriteString("unit " + l.Unit + ";")
-				u := unitNamed(units, l.Unit)
+				u := engine.UnitIn(units, l.Unit)
 				if u == nil {
 					key.WriteString("?;")
 				} else {
 					for _, q := range u.Params {
-						v, given := argOf(l.Args, q.Name)
+						v, given := engine.ArgValue(l.Args, q.Name)
 						if !given {
 							v = q.Default
 						}
@@ -394,7 +394,7 @@ func (p *pattern) define(s *engine.Stack, units []engine.Unit, taken map[string]
 			}
 			if j := p.slot[f]; j >= 0 {
 				args = append(args, engine.Arg{Name: fd.key, Value: "$" + params[j].Name})
-			} else if v, given := argOf(l.Args, fd.key); given {
+			} else if v, given := engine.ArgValue(l.Args, fd.key); given {
 				args = append(args, engine.Arg{Name: fd.key, Value: v})
 			}
 		}
@@ -697,26 +697,6 @@ func unnamed(its []*item) []*item {
 		out[i] = &c
 	}
 	return out
-}
-
-// unitNamed returns the unit with that name among us, or nil.
-func unitNamed(us []engine.Unit, name string) *engine.Unit {
-	for i := range us {
-		if us[i].Name == name {
-			return &us[i]
-		}
-	}
-	return nil
-}
-
-// argOf is a use's argument by name.
-func argOf(args []engine.Arg, name string) (string, bool) {
-	for _, a := range args {
-		if a.Name == name {
-			return a.Value, true
-		}
-	}
-	return "", false
 }
 
 // constructPatterns finds the forks at the top level (alone, or repeated

@@ -275,13 +275,8 @@ func argNode(text string) *yaml.Node {
 	if _, err := strconv.ParseInt(text, 10, 64); err == nil {
 		return &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!int", Value: text}
 	}
-	if h, w, ok := strings.Cut(text, "x"); ok {
-		_, errH := strconv.ParseUint(h, 10, 63)
-		_, errW := strconv.ParseUint(w, 10, 63)
-		if errH == nil && errW == nil {
-			return &yaml.Node{Kind: yaml.SequenceNode, Style: yaml.FlowStyle, Content: []*yaml.Node{
-				{Kind: yaml.ScalarNode, Tag: "!!int", Value: h}, {Kind: yaml.ScalarNode, Tag: "!!int", Value: w}}}
-		}
+	if p, err := engine.ParsePair("", text, 0, engine.MaxSpatial); err == nil {
+		return &yaml.Node{Kind: yaml.SequenceNode, Style: yaml.FlowStyle, Content: []*yaml.Node{intNode(p.H), intNode(p.W)}}
 	}
 	return strNode(text)
 }

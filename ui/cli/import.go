@@ -125,8 +125,11 @@ func runImport(args []string, std IO) int {
 	}
 	r := engine.Evaluate(s)
 	units := ""
-	if len(s.Units) > 0 {
-		units = fmt.Sprintf(", %d unit%s", len(s.Units), map[bool]string{true: "s"}[len(s.Units) > 1])
+	switch n := len(s.Units); {
+	case n == 1:
+		units = ", 1 unit"
+	case n > 1:
+		units = fmt.Sprintf(", %d units", n)
 	}
 	fmt.Fprintf(std.Out, "wrote %s: %d top-level items%s, %d rows, %s parameters, from %d nodes; check it with: stackfit check %s\n",
 		textsafe.Line(*out), len(s.Layers), units, len(r.Rows), engine.GroupDigits(r.Totals.Params), res.Nodes, textsafe.Line(*out))

@@ -274,10 +274,7 @@ func runScale(args []string, std IO) int {
 		how = append(how, "the largest "+answerPart+" that fits "+budgetAt)
 	}
 	note := "scaled by stackfit scale: " + strings.Join(how, "; then ")
-	if len(s.Units) > 0 && len(v.Units) == 0 {
-		// engine.ScaleWidth writes the units out when their uses would
-		// need different widths inside one unit
-		const why = "the units are written out: a unit's widths cannot scale the same in every use"
+	if why, ok := engine.UnitsWrittenOut(s, v); ok {
 		note += "; " + why
 		fmt.Fprintln(std.Err, "stackfit scale: "+why)
 	}

@@ -396,9 +396,14 @@ func (t *stackTree) scaleFilters(num, den int64) (edit, error) {
 }
 
 func (m *Model) scaleWidth(factor float64) tea.Cmd {
-	what := fmt.Sprintf("scaled every width by %g", factor) + unitsWrittenOut(m.stack, engine.Scaling{Width: factor})
+	// scaled once, here: change applies it to its copy of m.stack, and
+	// the status line says whether the units were written out
+	out, err := engine.ScaleWidth(m.stack, factor, 8)
+	what := fmt.Sprintf("scaled every width by %g", factor)
+	if err == nil {
+		what += unitsNote(m.stack, out)
+	}
 	return m.change(what, func(s *engine.Stack) (addr, error) {
-		out, err := engine.ScaleWidth(s, factor, 8)
 		if err != nil {
 			return nil, err
 		}
@@ -407,17 +412,13 @@ func (m *Model) scaleWidth(factor float64) tea.Cmd {
 	})
 }
 
-// unitsWrittenOut is what a status line adds when scaling s by sc writes
-// its units out (engine.ScaleWidth: a unit's widths cannot scale the same
-// in every use), else "".
-func unitsWrittenOut(s *engine.Stack, sc engine.Scaling) string {
-	if len(s.Units) == 0 {
-		return ""
+// unitsNote is what a status line adds when a scaling of before wrote its
+// units out (engine.UnitsWrittenOut), else "".
+func unitsNote(before, after *engine.Stack) string {
+	if why, ok := engine.UnitsWrittenOut(before, after); ok {
+		return "; " + why
 	}
-	if out, err := engine.Scale(s, sc); err != nil || len(out.Units) > 0 {
-		return ""
-	}
-	return "; the units are written out (a unit's widths cannot scale the same in every use)"
+	return ""
 }
 
 // insertStage adds a downsampling stage after the selected top-level

@@ -143,9 +143,12 @@ func (m *Model) applyFitCell(c engine.FitCell) tea.Cmd {
 		m.setStatus("that is the stack as it is; nothing changed", statusInfo)
 		return nil
 	}
-	what := fmt.Sprintf("scaled from the map: width ×%s, input %s", factor(c.Width), pairText(c.Input)) + unitsWrittenOut(m.stack, c.Scaling(0))
+	v, err := engine.Scale(m.stack, c.Scaling(0)) // once: change applies it to its copy
+	what := fmt.Sprintf("scaled from the map: width ×%s, input %s", factor(c.Width), pairText(c.Input))
+	if err == nil {
+		what += unitsNote(m.stack, v)
+	}
 	return m.change(what, func(st *engine.Stack) (addr, error) {
-		v, err := engine.Scale(st, c.Scaling(0))
 		if err != nil {
 			return nil, err
 		}
