@@ -107,7 +107,10 @@ type Result struct {
 	quiet uint64 // bit c set: warnings of code c are silenced (Stack.Quiet)
 	stack *Stack
 	taps  map[string]tap // named outputs seen so far
-	synth synthPool      // layers residual blocks add, reused between evaluations
+	// unitsUsed: the units the stack's uses name (for WarnUnitUnused),
+	// kept between evaluations as taps is
+	unitsUsed map[string]bool
+	synth     synthPool // layers residual blocks add, reused between evaluations
 
 	top       flow                          // the stack's own flow
 	gates     [MaxBlockDepth + 1]flow       // each open gate's flow, by depth
@@ -391,10 +394,13 @@ func (r *Result) finish() {
 		}
 	}
 	if len(r.stack.Units) > 0 {
-		used := map[string]bool{}
-		markUses(r.stack.Layers, used)
+		if r.unitsUsed == nil {
+			r.unitsUsed = map[string]bool{}
+		}
+		clear(r.unitsUsed)
+		markUses(r.stack.Layers, r.unitsUsed)
 		for i := range r.stack.Units {
-			if n := r.stack.Units[i].Name; !used[n] {
+			if n := r.stack.Units[i].Name; !r.unitsUsed[n] {
 				r.diag(Diagnostic{Severity: SevWarning, Code: WarnUnitUnused, Row: -1, Field: "units", Name: n})
 			}
 		}
